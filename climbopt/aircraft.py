@@ -1,0 +1,293 @@
+"""Aircraft model shared by both solvers: drag polar, CLmax, engine ratings, in a standard atmosphere.
+
+Every method accepts numpy arrays/floats (broadcast together) or CasADi MX symbols, and both
+paths evaluate the same C2 spline fits (:mod:`climbopt.fits`), so the energy-state maps and the
+collocation solver see one and the same aircraft.
+
+Conventions
+-----------
+* Engine tables are over Mach and pressure altitude at full rating; ``throttle`` scales thrust
+  (or shaft power) linearly, and fuel flow in proportion (constant specific consumption at a
+  given altitude and Mach; common practice, no source).
+* Off-standard days: at a fixed pressure altitude and Mach, thrust (or shaft power) is taken
+  proportional to the density ratio, i.e. multiplied by ``T_std / T`` (theta correction of
+  corrected thrust T/delta held constant with a density lapse; common practice, no source), and
+  specific fuel consumption proportional to ``sqrt(T / T_std)`` (corrected TSFC; common
+  practice, no source). With a zero offset both factors are exactly 1.
+* Propeller thrust = eta(M) * P_shaft / V_true (e.g. Anderson, *Aircraft Performance and Design*,
+  1999, sec. 3.3). It is only defined above a small speed, so a propeller model's Mach domain
+  starts at ``PROPELLER_MIN_MACH``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from climbopt.atmosphere import G0, SmoothAtmosphere
+from climbopt.fits import Fit1D, Fit2D, ModelDomainError, is_casadi
+from climbopt.scenario import Rating, Scenario
+
+__all__ = ["AircraftModel", "Domain", "ModelDomainError", "PointPerformance", "build_model"]
+
+#: Lowest Mach number at which the propeller thrust model T = eta P / V is used.
+PROPELLER_MIN_MACH = 0.05
+
+
+@dataclass(frozen=True)
+class Domain:
+    """A rectangle in pressure altitude [m] x Mach."""
+
+    altitude_min_m: float
+    altitude_max_m: float
+    mach_min: float
+    mach_max: float
+
+
+@dataclass(frozen=True)
+class PointPerformance:
+    """Forces and rates at flight points (numpy arrays, SI).
+
+    ``ps_m_s`` is specific excess power V (T - D) / (m g0) [m/s] (e.g. Anderson 1999, eq. 6.5).
+    """
+
+    mach: np.ndarray
+    dynamic_pressure_pa: np.ndarray
+    cl: np.ndarray
+    cd: np.ndarray
+    drag_n: np.ndarray
+    thrust_n: np.ndarray
+    fuel_flow_kg_s: np.ndarray
+    ps_m_s: np.ndarray
+
+
+class _RatingFits:
+    """Fits of one engine rating."""
+
+    def __init__(self, rating: Rating):
+        self.name = rating.name
+        self.kind = rating.kind
+        self.tsfc_kg_per_n_s = rating.tsfc_kg_per_n_s
+        self.psfc_kg_per_w_s = rating.psfc_kg_per_w_s
+        main = rating.thrust_n if rating.kind == "jet" else rating.shaft_power_w
+        label = "thrust" if rating.kind == "jet" else "shaft power"
+        self.main = Fit2D(main.mach, main.altitude_m, main.values,
+                          f"{label}[{rating.name}](Mach,altitude)", "Mach", "altitude [m]")
+        self.eta = None
+        if rating.kind == "propeller":
+            self.eta = Fit1D(rating.propeller_efficiency.mach, rating.propeller_efficiency.values,
+                             f"propeller efficiency[{rating.name}](Mach)")
+        self.fuel = None
+        if rating.fuel_flow_kg_s is not None:
+            t = rating.fuel_flow_kg_s
+            self.fuel = Fit2D(t.mach, t.altitude_m, t.values,
+                              f"fuel flow[{rating.name}](Mach,altitude)", "Mach", "altitude [m]")
+        self.domain = _intersect(
+            Domain(self.main.data_v.low, self.main.data_v.high,
+                   self.main.data_u.low, self.main.data_u.high),
+            None if self.fuel is None else Domain(self.fuel.data_v.low, self.fuel.data_v.high,
+                                                  self.fuel.data_u.low, self.fuel.data_u.high),
+        )
+        if self.eta is not None:
+            lo = max(self.domain.mach_min, self.eta.data.low, PROPELLER_MIN_MACH)
+            self.domain = Domain(self.domain.altitude_min_m, self.domain.altitude_max_m,
+                                 lo, min(self.domain.mach_max, self.eta.data.high))
+
+
+def _intersect(a: Domain, b: Domain | None) -> Domain:
+    if b is None:
+        return a
+    return Domain(max(a.altitude_min_m, b.altitude_min_m), min(a.altitude_max_m, b.altitude_max_m),
+                  max(a.mach_min, b.mach_min), min(a.mach_max, b.mach_max))
+
+
+def _sqrt(x):
+    if is_casadi(x):
+        import casadi as ca
+
+        return ca.sqrt(x)
+    return np.sqrt(x)
+
+
+class AircraftModel:
+    """The aircraft and its air: build with :func:`build_model`.
+
+    Attributes
+    ----------
+    reference_area_m2 : float
+        Wing reference area [m^2].
+    mass_kg : float
+        Start mass [kg].
+    atmosphere : SmoothAtmosphere
+        C2 US Standard Atmosphere 1976 twin with the scenario's temperature offset.
+    domain : Domain
+        Where all tables used by the default rating have data (intersection over aero tables
+        and the rating's engine tables).
+    fit_domain : Domain
+        The wider rectangle over which the fits are defined (data plus margins).
+    """
+
+    def __init__(self, scenario: Scenario):
+        ac = scenario.aircraft
+        prop = scenario.propulsion
+        self.name = ac.name
+        self.reference_area_m2 = float(ac.reference_area_m2)
+        self.mass_kg = float(ac.mass_kg)
+        self.fuel_capacity_kg = ac.fuel_capacity_kg
+        self.temperature_offset_k = float(scenario.atmosphere.temperature_offset_k)
+        self.atmosphere = SmoothAtmosphere(self.temperature_offset_k)
+        self._standard_day = SmoothAtmosphere(0.0)
+        self.throttle_min = float(prop.throttle_min)
+        self.throttle_max = float(prop.throttle_max)
+        self.thrust_alignment = prop.thrust_alignment
+        self.thrust_scale = float(prop.thrust_scale)
+        self.default_rating = scenario.mission.rating or prop.default_rating
+
+        drag = ac.drag
+        self.drag_kind = drag.kind
+        if drag.kind == "parabolic":
+            self._cd0 = Fit1D(drag.cd0.mach, drag.cd0.values, "CD0(Mach)")
+            self._k = Fit1D(drag.k.mach, drag.k.values, "k(Mach)")
+            aero_mach = [self._cd0.data, self._k.data]
+            aero_fit = [self._cd0.fit, self._k.fit]
+        else:
+            self._cd_table = Fit2D(drag.cd_mach, drag.cd_cl, drag.cd_table, "CD(Mach,CL)",
+                                   "Mach", "CL")
+            aero_mach = [self._cd_table.data_u]
+            aero_fit = [self._cd_table.fit_u]
+        self._cl_max = Fit1D(ac.cl_max.mach, ac.cl_max.values, "CLmax(Mach)")
+        aero_mach.append(self._cl_max.data)
+        aero_fit.append(self._cl_max.fit)
+        self._lift_slope = None
+        if drag.lift_slope_per_rad is not None:
+            t = drag.lift_slope_per_rad
+            self._lift_slope = Fit1D(t.mach, t.values, "CL_alpha(Mach)")
+            aero_mach.append(self._lift_slope.data)
+            aero_fit.append(self._lift_slope.fit)
+
+        self._ratings = {name: _RatingFits(r) for name, r in prop.ratings.items()}
+        if self.default_rating not in self._ratings:
+            raise KeyError(f"unknown rating {self.default_rating!r}")
+        rd = self._ratings[self.default_rating].domain
+        self.domain = Domain(
+            rd.altitude_min_m, rd.altitude_max_m,
+            max([rd.mach_min] + [i.low for i in aero_mach]),
+            min([rd.mach_max] + [i.high for i in aero_mach]),
+        )
+        main = self._ratings[self.default_rating].main
+        self.fit_domain = Domain(
+            main.fit_v.low, main.fit_v.high,
+            max([main.fit_u.low] + [i.low for i in aero_fit]),
+            min([main.fit_u.high] + [i.high for i in aero_fit]),
+        )
+
+    # ------------------------------------------------------------------ aerodynamics
+    @property
+    def has_lift_slope(self) -> bool:
+        """True when the scenario gives CL_alpha(M) (needed for thrust along the body axis)."""
+        return self._lift_slope is not None
+
+    @property
+    def ratings(self) -> tuple[str, ...]:
+        """Names of the engine ratings."""
+        return tuple(self._ratings)
+
+    def drag_coefficient(self, cl, mach, *, check: bool = True):
+        """Drag coefficient CD(CL, M) [-]: CD0(M) + k(M) CL^2, or the CD(CL, M) table fit."""
+        if self.drag_kind == "parabolic":
+            return self._cd0(mach, check=check) + self._k(mach, check=check) * cl**2
+        return self._cd_table(mach, cl, check=check)
+
+    def cl_max(self, mach, *, check: bool = True):
+        """Maximum usable lift coefficient CLmax(M) [-] (stall or buffet onset)."""
+        return self._cl_max(mach, check=check)
+
+    def lift_slope_per_rad(self, mach, *, check: bool = True):
+        """Lift-curve slope CL_alpha(M) [1/rad]."""
+        if self._lift_slope is None:
+            raise ValueError("the scenario gives no lift_slope table (aircraft.drag.lift_slope)")
+        return self._lift_slope(mach, check=check)
+
+    # ------------------------------------------------------------------ propulsion
+    def _rating(self, rating: str | None) -> _RatingFits:
+        name = rating or self.default_rating
+        try:
+            return self._ratings[name]
+        except KeyError:
+            raise ValueError(f"unknown engine rating {name!r}; known: {', '.join(self._ratings)}")
+
+    def _day_factors(self, altitude_m):
+        """(thrust factor, sfc factor) for the temperature offset; (1, 1) on a standard day."""
+        if self.temperature_offset_k == 0.0:
+            return 1.0, 1.0
+        t_std = self._standard_day(altitude_m).temperature_k
+        ratio = (t_std + self.temperature_offset_k) / t_std
+        return 1.0 / ratio, _sqrt(ratio)
+
+    def thrust_n(self, altitude_m, mach, throttle=1.0, rating: str | None = None, *,
+                 check: bool = True):
+        """Net thrust of all engines [N] at pressure altitude [m], Mach and throttle [-]."""
+        r = self._rating(rating)
+        thrust_factor, _ = self._day_factors(altitude_m)
+        main = r.main(mach, altitude_m, check=check) * (throttle * self.thrust_scale * thrust_factor)
+        if r.kind == "jet":
+            return main
+        tas = mach * self.atmosphere(altitude_m).speed_of_sound_m_s
+        return r.eta(mach, check=check) * main / tas
+
+    def fuel_flow_kg_s(self, altitude_m, mach, throttle=1.0, rating: str | None = None, *,
+                       check: bool = True):
+        """Fuel flow of all engines [kg/s]."""
+        r = self._rating(rating)
+        thrust_factor, sfc_factor = self._day_factors(altitude_m)
+        scale = throttle * self.thrust_scale * thrust_factor * sfc_factor
+        if r.fuel is not None:
+            return r.fuel(mach, altitude_m, check=check) * scale
+        full = r.main(mach, altitude_m, check=check)
+        sfc = r.tsfc_kg_per_n_s if r.kind == "jet" else r.psfc_kg_per_w_s
+        return sfc * full * scale
+
+    # ------------------------------------------------------------------ domain
+    def in_domain(self, altitude_m, mach) -> np.ndarray:
+        """Boolean mask: True where (altitude, Mach) lies inside every table's data."""
+        h = np.asarray(altitude_m, dtype=float)
+        m = np.asarray(mach, dtype=float)
+        d = self.domain
+        return (h >= d.altitude_min_m) & (h <= d.altitude_max_m) & (m >= d.mach_min) & (m <= d.mach_max)
+
+    # ------------------------------------------------------------------ point performance
+    def evaluate(self, altitude_m, tas_m_s, mass_kg, load_factor=1.0, throttle=1.0,
+                 rating: str | None = None, *, check: bool = True) -> PointPerformance:
+        """Forces and specific excess power at flight points (numpy only).
+
+        Lift equals ``load_factor`` times weight: CL = n m g0 / (q S); D = q S CD(CL, M);
+        Ps = V (T - D) / (m g0) [m/s] (energy-state method; Rutowski, J. Aeronaut. Sci. 21(3),
+        1954). With ``check=False`` points outside the fits are clipped (mask them yourself
+        with :meth:`in_domain`).
+        """
+        h = np.asarray(altitude_m, dtype=float)
+        v = np.asarray(tas_m_s, dtype=float)
+        atm = self.atmosphere(h)
+        mach = v / atm.speed_of_sound_m_s
+        q = 0.5 * atm.density_kg_m3 * v**2
+        weight = np.asarray(mass_kg, dtype=float) * G0
+        with np.errstate(divide="ignore", invalid="ignore"):
+            cl = load_factor * weight / (q * self.reference_area_m2)
+        cd = self.drag_coefficient(cl, mach, check=check)
+        drag = q * self.reference_area_m2 * cd
+        thrust = self.thrust_n(h, mach, throttle, rating, check=check)
+        fuel = self.fuel_flow_kg_s(h, mach, throttle, rating, check=check)
+        ps = v * (thrust - drag) / weight
+        return PointPerformance(mach, q, cl, cd, drag, thrust, fuel, ps)
+
+    def specific_excess_power_m_s(self, altitude_m, tas_m_s, mass_kg, load_factor=1.0,
+                                  throttle=1.0, rating: str | None = None, *, check: bool = True):
+        """Specific excess power Ps = V (T - D) / (m g0) [m/s] (see :meth:`evaluate`)."""
+        return self.evaluate(altitude_m, tas_m_s, mass_kg, load_factor, throttle, rating,
+                             check=check).ps_m_s
+
+
+def build_model(scenario: Scenario) -> AircraftModel:
+    """Build the shared aircraft model (fits are made once here)."""
+    return AircraftModel(scenario)

@@ -1,0 +1,224 @@
+"""Smooth (C2) fits of sparse tables, evaluated identically on numpy arrays and CasADi MX symbols.
+
+Method (chosen so the fits are twice continuously differentiable for IPOPT yet do not overshoot):
+
+1. The table is resampled densely with a monotone piecewise-cubic Hermite interpolant (PCHIP;
+   Fritsch & Carlson, SIAM J. Numer. Anal. 17(2), 1980), which never overshoots the data: between
+   two table points it stays within their values, and it keeps local extrema at table points.
+   Each table interval is split into ``SUBDIVISIONS`` equal pieces. 2-D tables are resampled
+   along each axis in turn (tensor-product PCHIP).
+2. Beyond the data the samples are extended linearly with PCHIP's end slope over a margin (see
+   :func:`margin`), so that stray solver iterates just outside the data still see finite,
+   smooth values rather than the exact zero a CasADi B-spline returns outside its knots.
+3. A C2 cubic interpolating B-spline (not-a-knot ends) is passed through the dense samples
+   (de Boor, *A Practical Guide to Splines*, 1978). Because the samples are dense and PCHIP is C1,
+   the spline's deviation from PCHIP is a small fraction of the data spacing's curvature jump.
+
+The numpy path uses :mod:`scipy.interpolate` with the same knots and coefficients that are handed
+to ``casadi.bspline`` for the MX path, so both agree to rounding.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.interpolate import PchipInterpolator, RectBivariateSpline, make_interp_spline
+
+try:  # CasADi is a hard dependency, but keep numpy-only use importable without it.
+    import casadi as ca
+except ImportError:  # pragma: no cover
+    ca = None
+
+#: Dense pieces per table interval in step 1.
+SUBDIVISIONS = 8
+
+
+class ModelDomainError(ValueError):
+    """A model table was asked for a value far outside its data."""
+
+
+def is_casadi(x) -> bool:
+    """True when ``x`` is a CasADi symbolic or numeric matrix type."""
+    return ca is not None and isinstance(x, (ca.MX, ca.SX, ca.DM))
+
+
+def margin(grid: np.ndarray) -> float:
+    """Width of the linear extension beyond each end of a table axis: 10% of the axis span."""
+    return 0.10 * float(grid[-1] - grid[0])
+
+
+def _dense_axis(grid: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Dense sample points: each interval split in SUBDIVISIONS pieces, plus margin points.
+
+    Returns (all points, points inside the data, points in the low margin, in the high margin).
+    """
+    inside = [np.linspace(a, b, SUBDIVISIONS + 1)[:-1] for a, b in zip(grid[:-1], grid[1:])]
+    inside = np.concatenate(inside + [grid[-1:]])
+    step = float(np.min(np.diff(inside)))
+    m = margin(grid)
+    n_m = max(2, int(np.ceil(m / step)))
+    low = grid[0] - m * np.arange(n_m, 0, -1) / n_m
+    high = grid[-1] + m * np.arange(1, n_m + 1) / n_m
+    return np.concatenate([low, inside, high]), inside, low, high
+
+
+def _pchip_extended(grid: np.ndarray, values: np.ndarray, points: np.ndarray, axis: int = 0):
+    """PCHIP of ``values`` along ``axis`` at ``points``, extended linearly beyond the grid."""
+    p = PchipInterpolator(grid, values, axis=axis, extrapolate=True)
+    dp = p.derivative()
+    out = p(np.clip(points, grid[0], grid[-1]))
+    lo = points < grid[0]
+    hi = points > grid[-1]
+    shape = [1] * out.ndim
+    shape[axis] = -1
+    if lo.any():
+        d = (points - grid[0]).reshape(shape)
+        lo_v = np.take(p(grid[0:1]), 0, axis=axis)
+        lo_s = np.take(dp(grid[0:1]), 0, axis=axis)
+        ext = np.expand_dims(lo_v, axis) + np.expand_dims(lo_s, axis) * d
+        sel = [slice(None)] * out.ndim
+        sel[axis] = lo
+        out[tuple(sel)] = ext[tuple(sel)]
+    if hi.any():
+        d = (points - grid[-1]).reshape(shape)
+        hi_v = np.take(p(grid[-1:]), 0, axis=axis)
+        hi_s = np.take(dp(grid[-1:]), 0, axis=axis)
+        ext = np.expand_dims(hi_v, axis) + np.expand_dims(hi_s, axis) * d
+        sel = [slice(None)] * out.ndim
+        sel[axis] = hi
+        out[tuple(sel)] = ext[tuple(sel)]
+    return out
+
+
+def _check_grid(grid: np.ndarray, name: str) -> None:
+    if grid.ndim != 1 or grid.size < 2:
+        raise ValueError(f"{name}: a table axis needs at least 2 points")
+    if not np.all(np.diff(grid) > 0):
+        raise ValueError(f"{name}: table axis must be strictly increasing")
+
+
+@dataclass(frozen=True)
+class Interval:
+    """Closed interval [low, high] of one input of a fit."""
+
+    low: float
+    high: float
+
+
+class Fit1D:
+    """C2 fit y(x) of a 1-D table (see module docstring for the method).
+
+    Parameters
+    ----------
+    x, y : array_like
+        Table grid (strictly increasing) and values.
+    name : str
+        Quantity name used in error messages, e.g. ``"CD0(Mach)"``.
+    """
+
+    def __init__(self, x, y, name: str):
+        x = np.asarray(x, dtype=float)
+        y = np.asarray(y, dtype=float)
+        _check_grid(x, name)
+        if y.shape != x.shape:
+            raise ValueError(f"{name}: {y.size} values for {x.size} grid points")
+        self.name = name
+        self.data = Interval(float(x[0]), float(x[-1]))
+        dense, _, _, _ = _dense_axis(x)
+        self.fit = Interval(float(dense[0]), float(dense[-1]))
+        samples = _pchip_extended(x, y, dense)
+        self._spline = make_interp_spline(dense, samples, k=3)
+        self._ca = None
+
+    def _casadi_function(self):
+        if self._ca is None:
+            s = ca.MX.sym("x")
+            expr = ca.bspline(s, ca.DM(self._spline.c), [list(self._spline.t)], [3], 1, {})
+            self._ca = ca.Function(self.name.replace("(", "_").replace(")", ""), [s], [expr])
+        return self._ca
+
+    def __call__(self, x, *, check: bool = True):
+        """Evaluate at ``x`` (numpy array/float, or CasADi MX).
+
+        numpy: raises :class:`ModelDomainError` where ``x`` lies outside the fit's extended
+        domain when ``check`` is true; with ``check=False`` inputs are clipped to that domain.
+        """
+        if is_casadi(x):
+            if isinstance(x, ca.SX):
+                raise TypeError(f"{self.name}: CasADi B-splines need MX symbols, not SX")
+            f = self._casadi_function()
+            if x.numel() == 1:
+                return f(x)
+            return ca.reshape(f.map(x.numel())(ca.vec(x).T), x.shape)
+        x = np.asarray(x, dtype=float)
+        if check:
+            _domain_check(self.name, "input", x, self.fit)
+        return self._spline(np.clip(x, self.fit.low, self.fit.high))
+
+
+class Fit2D:
+    """C2 tensor-product fit z(u, v) of a 2-D table with rows over ``u`` and columns over ``v``."""
+
+    def __init__(self, u, v, z, name: str, u_name: str = "u", v_name: str = "v"):
+        u = np.asarray(u, dtype=float)
+        v = np.asarray(v, dtype=float)
+        z = np.asarray(z, dtype=float)
+        _check_grid(u, f"{name} {u_name}")
+        _check_grid(v, f"{name} {v_name}")
+        if z.shape != (u.size, v.size):
+            raise ValueError(f"{name}: table shape {z.shape}, expected {(u.size, v.size)}")
+        self.name, self.u_name, self.v_name = name, u_name, v_name
+        self.data_u = Interval(float(u[0]), float(u[-1]))
+        self.data_v = Interval(float(v[0]), float(v[-1]))
+        du, _, _, _ = _dense_axis(u)
+        dv, _, _, _ = _dense_axis(v)
+        self.fit_u = Interval(float(du[0]), float(du[-1]))
+        self.fit_v = Interval(float(dv[0]), float(dv[-1]))
+        along_v = _pchip_extended(v, z, dv, axis=1)  # (nu, ndv)
+        dense = _pchip_extended(u, along_v, du, axis=0)  # (ndu, ndv)
+        self._spline = RectBivariateSpline(du, dv, dense, kx=3, ky=3, s=0)
+        self._ca = None
+
+    def _casadi_function(self):
+        if self._ca is None:
+            tu, tv, c = self._spline.tck
+            coeffs = np.asarray(c).reshape(len(tu) - 4, len(tv) - 4).ravel(order="F")
+            s = ca.MX.sym("uv", 2)
+            expr = ca.bspline(s, ca.DM(coeffs), [list(tu), list(tv)], [3, 3], 1, {})
+            self._ca = ca.Function(self.name.replace("(", "_").replace(")", "").replace(",", "_"),
+                                   [s], [expr])
+        return self._ca
+
+    def __call__(self, u, v, *, check: bool = True):
+        """Evaluate at (u, v): numpy arrays broadcast together, or CasADi MX scalars/rows."""
+        if is_casadi(u) or is_casadi(v):
+            if isinstance(u, ca.SX) or isinstance(v, ca.SX):
+                raise TypeError(f"{self.name}: CasADi B-splines need MX symbols, not SX")
+            u = ca.MX(u) if not isinstance(u, ca.MX) else u
+            v = ca.MX(v) if not isinstance(v, ca.MX) else v
+            f = self._casadi_function()
+            if u.numel() == 1 and v.numel() == 1:
+                return f(ca.vertcat(u, v))
+            n = max(u.numel(), v.numel())
+            uu = ca.repmat(ca.vec(u).T, 1, n) if u.numel() == 1 else ca.vec(u).T
+            vv = ca.repmat(ca.vec(v).T, 1, n) if v.numel() == 1 else ca.vec(v).T
+            out = f.map(n)(ca.vertcat(uu, vv))
+            return ca.reshape(out, u.shape if u.numel() == n else v.shape)
+        u, v = np.broadcast_arrays(np.asarray(u, dtype=float), np.asarray(v, dtype=float))
+        if check:
+            _domain_check(self.name, self.u_name, u, self.fit_u)
+            _domain_check(self.name, self.v_name, v, self.fit_v)
+        uc = np.clip(u, self.fit_u.low, self.fit_u.high)
+        vc = np.clip(v, self.fit_v.low, self.fit_v.high)
+        return self._spline.ev(uc.ravel(), vc.ravel()).reshape(u.shape)
+
+
+def _domain_check(name: str, what: str, x: np.ndarray, interval: Interval) -> None:
+    bad = ~((x >= interval.low) & (x <= interval.high))
+    if np.any(bad):
+        worst = x[bad].flat[0]
+        raise ModelDomainError(
+            f"{name}: {what} = {worst:.6g} lies outside the table data and its margin "
+            f"[{interval.low:.6g}, {interval.high:.6g}]; climbopt does not extrapolate further"
+        )
