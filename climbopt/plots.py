@@ -1,0 +1,358 @@
+"""Plots (matplotlib): specific-excess-power and fuel-specific-energy maps with the flight
+envelope and the climb paths, and time histories of every result.
+
+Each function takes ``ax=None`` (or ``axes=None``) and returns the axes it drew on; nothing here
+saves files except :func:`save_figure`, and nothing is shown. The colour scheme is our own and
+built to stay readable when printed in grey: the two objectives differ in lightness (dark slate
+for minimum time, light ochre for minimum fuel) and marker shape, the two methods in line style
+(energy-state dashed with open markers, collocation solid with filled markers). Path lines carry
+``gid="path"``, zoom markers ``gid="zoom"``, so tests and users can find them on the axes.
+"""
+
+from __future__ import annotations
+
+import matplotlib
+
+matplotlib.use("Agg")  # files only; must precede pyplot
+
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+from matplotlib.colors import LinearSegmentedColormap  # noqa: E402
+from matplotlib.lines import Line2D  # noqa: E402
+from matplotlib.patches import Patch  # noqa: E402
+
+from climbopt import CAUTION  # noqa: E402
+from climbopt.atmosphere import standard_atmosphere  # noqa: E402
+from climbopt.results import Trajectory  # noqa: E402
+from climbopt.units import kg_to_lb, m_s_to_kt, m_to_ft  # noqa: E402
+
+__all__ = [
+    "path_style",
+    "plot_energy_map",
+    "plot_ps_map",
+    "plot_fs_map",
+    "plot_time_histories",
+    "add_caution",
+    "save_figure",
+]
+
+# ------------------------------------------------------------------------------------------
+# colours and styles (ours)
+
+#: Objective colours: dark slate (time), light ochre (fuel), mid green (weighted); their grey
+#: values are about 25 %, 65 % and 45 % so they stay apart in grey print.
+OBJECTIVE_COLOURS = {"time": "#233d4d", "fuel": "#e0a33a", "weighted": "#5c8a4a"}
+OBJECTIVE_MARKERS = {"time": "o", "fuel": "s", "weighted": "D"}
+METHOD_LINESTYLES = {"energy-state": (0, (6, 3)), "collocation": "-"}
+
+#: Background colour map of the field contours: paper white to pale blue-grey, monotone in
+#: lightness so that grey print keeps the order.
+FIELD_CMAP = LinearSegmentedColormap.from_list(
+    "climbopt_field", ["#fbfaf5", "#dfe6e4", "#b8c7c9", "#8fa6ad"])
+
+#: Hatch and colour of regions outside the flight envelope.
+ENVELOPE_HATCH = "////"
+ENVELOPE_COLOUR = "#c8c8c8"
+
+#: Labels of the envelope limits (names as in climbopt.energy.LIMIT_NAMES) and their line styles.
+LIMIT_LABELS = {
+    "data": "edge of table data",
+    "altitude": "altitude limit",
+    "stall": "CLmax",
+    "dynamic_pressure": "q limit",
+    "mach": "Mach limit",
+    "cas": "CAS limit",
+    "cas_restriction": "CAS restriction",
+}
+LIMIT_LINESTYLES = {
+    "data": ":", "altitude": "-", "stall": "-", "dynamic_pressure": "-.",
+    "mach": (0, (8, 2, 2, 2)), "cas": (0, (4, 2)), "cas_restriction": (0, (1, 1)),
+}
+
+def path_style(method: str, objective: str) -> dict:
+    """Line properties of one result: colour by objective, line style and marker fill by method."""
+    colour = OBJECTIVE_COLOURS.get(objective, "#555555")
+    return {
+        "color": colour,
+        "linestyle": METHOD_LINESTYLES.get(method, "-."),
+        "marker": OBJECTIVE_MARKERS.get(objective, "v"),
+        "markerfacecolor": "white" if method == "energy-state" else colour,
+        "markeredgecolor": colour,
+        "markersize": 5,
+        "linewidth": 2.0 if method == "collocation" else 1.8,
+    }
+
+
+def _label(traj: Trajectory) -> str:
+    text = f"{traj.method}, minimum {traj.objective}"
+    if not traj.converged:
+        text += " (NOT CONVERGED)"
+    return text
+
+
+# ------------------------------------------------------------------------------------------
+# axis units
+
+def _axis_units(units: str) -> dict:
+    if units == "us":
+        return {
+            "alt": (lambda h: m_to_ft(h) / 1000.0, "altitude [1000 ft]"),
+            "tas": (m_s_to_kt, "true airspeed [kt]"),
+            "ps": (lambda p: m_to_ft(p) * 60.0, "Ps [ft/min]"),
+            "fs": (lambda f: m_to_ft(f) / kg_to_lb(1.0), "Ps / fuel flow [ft/lb]"),
+            "he": (lambda h: m_to_ft(h) / 1000.0, "kft"),
+            "mass": (kg_to_lb, "mass [lb]"),
+        }
+    if units == "si":
+        return {
+            "alt": (lambda h: h / 1000.0, "altitude [km]"),
+            "tas": (lambda v: v, "true airspeed [m/s]"),
+            "ps": (lambda p: p, "Ps [m/s]"),
+            "fs": (lambda f: f, "Ps / fuel flow [m/kg]"),
+            "he": (lambda h: h / 1000.0, "km"),
+            "mass": (lambda m: m, "mass [kg]"),
+        }
+    raise ValueError(f"units must be 'si' or 'us', got {units!r}")
+
+
+def _nice_levels(lo: float, hi: float, count: int = 10) -> np.ndarray:
+    """Round contour levels covering [lo, hi] (1, 2, 2.5, 5 x 10^k steps)."""
+    if not (np.isfinite(lo) and np.isfinite(hi)) or hi <= lo:
+        return np.array([lo])
+    raw = (hi - lo) / count
+    mag = 10.0 ** np.floor(np.log10(raw))
+    step = mag * min((s for s in (1, 2, 2.5, 5, 10) if s * mag >= raw), default=10)
+    return np.arange(np.ceil(lo / step) * step, hi + 0.5 * step, step)
+
+
+# ------------------------------------------------------------------------------------------
+# energy maps
+
+def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str = "mach",
+                    units: str = "si", ax=None, title: str | None = None,
+                    show_limits: bool = True, legend: bool = True):
+    """Contours of Ps (``quantity="ps"``) or fuel-specific energy Ps / fuel flow (``"fs"``)
+    over altitude vs Mach (``x="mach"``) or vs true airspeed (``x="tas"``), with lines of
+    constant energy height, the region outside the flight envelope hatched, each envelope limit
+    drawn and labelled, and the given trajectories overlaid (zooms marked with arrows).
+
+    Parameters
+    ----------
+    energy_map : climbopt.energy.EnergyMap
+        The fields (any grid kind; curvilinear axes are handled).
+    trajectories : sequence of Trajectory
+        Paths to overlay (each with its own style, see :func:`path_style`).
+    units : "si" or "us"
+        Axis units (km, m/s, m/kg or 1000 ft, kt, ft/min, ft/lb).
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    if quantity not in ("ps", "fs"):
+        raise ValueError(f"quantity must be 'ps' or 'fs', got {quantity!r}")
+    if x not in ("mach", "tas"):
+        raise ValueError(f"x must be 'mach' or 'tas', got {x!r}")
+    u = _axis_units(units)
+    if ax is None:
+        _, ax = plt.subplots(figsize=(8.0, 6.0))
+    alt_fn, alt_label = u["alt"]
+    Y = alt_fn(np.broadcast_to(energy_map.altitude_m[:, None], energy_map.shape))
+    X = energy_map.mach if x == "mach" else u["tas"][0](energy_map.tas_m_s)
+    X = np.asarray(X, dtype=float)
+    feasible = np.asarray(energy_map.feasible, dtype=bool)
+
+    if quantity == "ps":
+        field_si = np.asarray(energy_map.ps_m_s, dtype=float)
+        fn, flabel = u["ps"]
+    else:
+        field_si = np.asarray(energy_map.fuel_specific_energy_m_kg, dtype=float)
+        field_si = np.where(np.asarray(energy_map.fields.ps_m_s) > 0.0, field_si, np.nan)
+        fn, flabel = u["fs"]
+    field_disp = fn(field_si)
+    finite = field_disp[np.isfinite(field_disp)]
+    handles = []
+    if finite.size:
+        top = float(np.nanmax(finite))
+        low = 0.0 if quantity == "fs" else min(0.0, float(np.nanmin(finite)))
+        levels = _nice_levels(low, top, 12)
+        if levels.size >= 2:
+            ax.contourf(X, Y, field_disp, levels=levels, cmap=FIELD_CMAP, extend="both")
+            cs = ax.contour(X, Y, field_disp, levels=levels, colors="#3a3a3a", linewidths=0.6)
+            ax.clabel(cs, levels[::2], fontsize=7, fmt="%g")
+            handles.append(Line2D([], [], color="#3a3a3a", linewidth=0.6, label=flabel))
+        if quantity == "ps":
+            zero = ax.contour(X, Y, field_disp, levels=[0.0], colors="black", linewidths=1.6)
+            if zero.allsegs and any(len(s) for s in zero.allsegs[0]):
+                ax.clabel(zero, fmt={0.0: "Ps = 0"}, fontsize=8)
+            handles.append(Line2D([], [], color="black", linewidth=1.6,
+                                  label="Ps = 0 (steady ceiling)"))
+
+    # energy-height lines
+    he_fn, he_unit = u["he"]
+    he = he_fn(np.asarray(energy_map.energy_height_m, dtype=float))
+    he_levels = _nice_levels(float(np.nanmin(he)), float(np.nanmax(he)), 8)
+    if he_levels.size >= 2:
+        hs = ax.contour(X, Y, he, levels=he_levels, colors="#6b6b6b", linewidths=0.8,
+                        linestyles=(0, (2, 2)))
+        ax.clabel(hs, fontsize=7, fmt=lambda v: f"he {v:g} {he_unit}")
+        handles.append(Line2D([], [], color="#6b6b6b", linewidth=0.8, linestyle=(0, (2, 2)),
+                              label=f"energy height [{he_unit}]"))
+
+    # outside the envelope
+    if not feasible.all():
+        ax.contourf(X, Y, (~feasible).astype(float), levels=[0.5, 1.5],
+                    colors=[ENVELOPE_COLOUR], hatches=[ENVELOPE_HATCH], alpha=0.6)
+        handles.append(Patch(facecolor=ENVELOPE_COLOUR, hatch=ENVELOPE_HATCH, alpha=0.6,
+                             label="outside flight envelope"))
+    if show_limits:
+        for name, ok in getattr(energy_map.fields, "limits", {}).items():
+            ok = np.asarray(ok, dtype=float)
+            if ok.min() == ok.max():
+                continue  # limit never active on this map
+            ls = LIMIT_LINESTYLES.get(name, "-")
+            cs = ax.contour(X, Y, ok, levels=[0.5], colors="black", linewidths=1.0,
+                            linestyles=[ls])
+            ax.clabel(cs, fmt={0.5: LIMIT_LABELS.get(name, name)}, fontsize=7, inline=True)
+            handles.append(Line2D([], [], color="black", linewidth=1.0, linestyle=ls,
+                                  label=LIMIT_LABELS.get(name, name)))
+
+    # paths
+    dt = float(getattr(energy_map, "temperature_offset_k", 0.0))
+    for traj in trajectories:
+        tb = traj.table
+        px = tb["mach"] if x == "mach" else u["tas"][0](tb["tas_m_s"])
+        style = path_style(traj.method, traj.objective)
+        line, = ax.plot(px, alt_fn(tb["altitude_m"]), label=_label(traj),
+                        markevery=max(1, len(px) // 8), **style)
+        line.set_gid("path")
+        handles.append(line)
+        for zoom in traj.zooms:
+            _mark_zoom(ax, zoom, x, alt_fn, u["tas"][0], dt, style["color"])
+    if any(traj.zooms for traj in trajectories):
+        handles.append(Line2D([], [], color="black", marker="*", linestyle="none",
+                              markersize=9, label="zoom (constant energy)"))
+
+    ax.set_xlabel("Mach number" if x == "mach" else u["tas"][1])
+    ax.set_ylabel(alt_label)
+    ax.set_xlim(float(np.nanmin(X)), float(np.nanmax(X)))
+    ax.set_ylim(float(np.nanmin(Y)), float(np.nanmax(Y)))
+    if title is None:
+        what = "Specific excess power" if quantity == "ps" else "Fuel-specific energy"
+        title = (f"{what}, mass {energy_map.mass_kg:,.0f} kg, n = {energy_map.load_factor:g}, "
+                 f"rating {energy_map.rating}")
+    ax.set_title(title, fontsize=10)
+    if legend and handles:
+        ax.legend(handles=handles, fontsize=7, loc="upper left", framealpha=0.9)
+    return ax
+
+
+def _mark_zoom(ax, zoom, x, alt_fn, tas_fn, temperature_offset_k, colour):
+    """Arrow from the start to the end of a constant-energy zoom, stars at both ends."""
+    def xval(h, v):
+        if x == "tas":
+            return float(tas_fn(v))
+        a = float(standard_atmosphere(h, temperature_offset_k).speed_of_sound_m_s)
+        return v / a
+
+    x0, y0 = xval(zoom.from_altitude_m, zoom.from_tas_m_s), float(alt_fn(zoom.from_altitude_m))
+    x1, y1 = xval(zoom.to_altitude_m, zoom.to_tas_m_s), float(alt_fn(zoom.to_altitude_m))
+    pts, = ax.plot([x0, x1], [y0, y1], linestyle="none", marker="*", markersize=9,
+                   color="black", markerfacecolor=colour)
+    pts.set_gid("zoom")
+    ax.annotate("", xy=(x1, y1), xytext=(x0, y0),
+                arrowprops={"arrowstyle": "->", "color": "black", "linewidth": 1.2})
+    ax.annotate(f"zoom {zoom.kind}", xy=(0.5 * (x0 + x1), 0.5 * (y0 + y1)), fontsize=7,
+                xytext=(4, 4), textcoords="offset points")
+
+
+def plot_ps_map(energy_map, trajectories=(), *, x: str = "mach", units: str = "si", ax=None,
+                **kw):
+    """Ps contours with every path overlaid (see :func:`plot_energy_map`)."""
+    return plot_energy_map(energy_map, trajectories, quantity="ps", x=x, units=units, ax=ax,
+                           **kw)
+
+
+def plot_fs_map(energy_map, trajectories=(), *, x: str = "mach", units: str = "si", ax=None,
+                **kw):
+    """Fuel-specific-energy contours with the minimum-fuel paths only (trajectories of other
+    objectives are left out)."""
+    fuel = [t for t in trajectories if t.objective == "fuel"]
+    return plot_energy_map(energy_map, fuel, quantity="fs", x=x, units=units, ax=ax, **kw)
+
+
+# ------------------------------------------------------------------------------------------
+# time histories
+
+#: Panels of the time-history figure: (column or derived name, axis label key).
+TIME_PANELS = ("altitude", "mach", "flight_path_angle", "throttle", "mass")
+
+
+def plot_time_histories(trajectories, *, units: str = "si", axes=None):
+    """Altitude, Mach, flight-path angle, throttle and mass against time for every result, on
+    five panels sharing the time axis.
+
+    The energy-state flight-path angle is the steady-climb value of its per-point table; its
+    zooms are instantaneous, so they appear as vertical steps.
+
+    Returns
+    -------
+    ndarray of 5 matplotlib.axes.Axes
+    """
+    u = _axis_units(units)
+    if axes is None:
+        fig, axes = plt.subplots(len(TIME_PANELS), 1, sharex=True, figsize=(8.0, 9.0))
+    axes = np.asarray(axes).ravel()
+    if axes.size != len(TIME_PANELS):
+        raise ValueError(f"plot_time_histories needs {len(TIME_PANELS)} axes, got {axes.size}")
+    labels = {
+        "altitude": u["alt"][1], "mach": "Mach number", "flight_path_angle": "path angle [deg]",
+        "throttle": "throttle [-]", "mass": u["mass"][1],
+    }
+    for traj in trajectories:
+        tb = traj.table
+        t = tb["time_s"] - tb["time_s"][0]
+        values = {
+            "altitude": u["alt"][0](tb["altitude_m"]),
+            "mach": tb["mach"],
+            "flight_path_angle": np.degrees(tb["flight_path_angle_rad"]),
+            "throttle": tb["throttle"],
+            "mass": u["mass"][0](tb["mass_kg"]),
+        }
+        style = path_style(traj.method, traj.objective)
+        for ax, key in zip(axes, TIME_PANELS):
+            line, = ax.plot(t, values[key], label=_label(traj),
+                            markevery=max(1, len(t) // 8), **style)
+            line.set_gid("path")
+    for ax, key in zip(axes, TIME_PANELS):
+        ax.set_ylabel(labels[key], fontsize=8)
+        ax.grid(True, color="#dddddd", linewidth=0.5)
+    axes[-1].set_xlabel("time from start [s]")
+    if len(trajectories):
+        axes[0].legend(fontsize=7, loc="best")
+    return axes
+
+
+# ------------------------------------------------------------------------------------------
+# files
+
+def add_caution(fig) -> None:
+    """Write climbopt's caution at the foot of a figure."""
+    fig.text(0.01, 0.005, CAUTION, fontsize=6, color="#444444", ha="left", va="bottom",
+             wrap=True)
+
+
+def save_figure(fig, path_stem, formats=("png", "svg"), dpi: int = 120) -> list:
+    """Save ``fig`` as ``<path_stem>.png`` and ``.svg`` (with the caution at its foot) and close
+    it. Returns the paths written."""
+    from pathlib import Path
+
+    add_caution(fig)
+    written = []
+    for fmt in formats:
+        path = Path(f"{path_stem}.{fmt}")
+        fig.savefig(path, dpi=dpi, bbox_inches="tight")
+        written.append(path)
+    plt.close(fig)
+    return written
+

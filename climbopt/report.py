@@ -1,0 +1,503 @@
+"""Reports: the comparison table of all results, ``summary.json``, ``comparison.csv``, the
+per-point CSV and the climb-schedule CSV of each result, and atomic output folders.
+
+Values are SI inside; :data:`DISPLAY_UNITS` says what each quantity is shown in for ``"si"`` and
+``"us"`` output (ft, kt, lb, nmi). ``summary.json`` keeps SI keys whatever the display units, so
+scripts can rely on it (see ARCHITECTURE.md), and adds a ``display`` block in the chosen units.
+Nothing here prints; :mod:`climbopt.cli` decides what goes to the terminal.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import csv
+import io
+import json
+import math
+import os
+import shutil
+import tempfile
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from climbopt import CAUTION, __version__
+from climbopt.results import COLUMNS, Trajectory
+from climbopt.units import kg_to_lb, m_s_to_kt, m_to_ft, m_to_nmi
+
+if TYPE_CHECKING:  # pragma: no cover
+    from climbopt.schedule import ClimbSchedule
+
+UNIT_SYSTEMS = ("si", "us")
+
+
+@dataclass
+class FailedRun:
+    """A solve that produced no usable trajectory (kept so the table can show the failure).
+
+    ``status`` is the solver's status text, ``message`` the error message.
+    """
+
+    method: str
+    objective: str
+    status: str
+    message: str
+    iterations: int = 0
+    wall_s: float = 0.0
+    notes: list[str] = field(default_factory=list)
+    converged: bool = False
+
+
+# ------------------------------------------------------------------------------------------
+# units for display
+
+def _identity(x):
+    return x
+
+
+def _per_min(fn):
+    return lambda x: fn(x) * 60.0
+
+
+#: quantity -> {unit system: (unit label, converter from SI)}
+DISPLAY_UNITS: dict[str, dict[str, tuple[str, object]]] = {
+    "time": {"si": ("s", _identity), "us": ("s", _identity)},
+    "altitude": {"si": ("m", _identity), "us": ("ft", m_to_ft)},
+    "distance": {"si": ("km", lambda x: x / 1000.0), "us": ("nmi", m_to_nmi)},
+    "speed": {"si": ("m/s", _identity), "us": ("kt", m_s_to_kt)},
+    "mass": {"si": ("kg", _identity), "us": ("lb", kg_to_lb)},
+    "rate": {"si": ("m/s", _identity), "us": ("ft/min", _per_min(m_to_ft))},
+    "angle": {"si": ("rad", _identity), "us": ("deg", np.degrees)},
+    "none": {"si": ("-", _identity), "us": ("-", _identity)},
+}
+
+#: Kind of quantity of each per-point column (see :data:`climbopt.results.COLUMNS`).
+COLUMN_KINDS: dict[str, str] = {
+    "time_s": "time",
+    "altitude_m": "altitude",
+    "tas_m_s": "speed",
+    "mach": "none",
+    "cas_m_s": "speed",
+    "energy_height_m": "altitude",
+    "ps_m_s": "rate",
+    "flight_path_angle_rad": "angle",
+    "mass_kg": "mass",
+    "fuel_used_kg": "mass",
+    "distance_m": "distance",
+    "throttle": "none",
+}
+
+
+def _check_units(units: str) -> None:
+    if units not in UNIT_SYSTEMS:
+        raise ValueError(f"units must be one of {UNIT_SYSTEMS}, got {units!r}")
+
+
+def to_display(kind: str, value_si, units: str):
+    """Convert an SI value of quantity ``kind`` to the display unit of ``units``.
+
+    Returns ``(value, unit_label)``. ``None`` stays ``None``.
+    """
+    _check_units(units)
+    label, fn = DISPLAY_UNITS[kind][units]
+    if value_si is None:
+        return None, label
+    return fn(value_si), label
+
+
+def column_header(key: str, units: str) -> str:
+    """CSV header of a per-point column in ``units``: the quantity name with its unit, e.g.
+    ``altitude_ft`` (``"us"``) or ``altitude_m`` (``"si"``, identical to :data:`COLUMNS`)."""
+    _check_units(units)
+    if units == "si":
+        return key
+    stem = key
+    for suffix in ("_m_s", "_rad", "_kg", "_m", "_s"):
+        if key.endswith(suffix):
+            stem = key[: -len(suffix)]
+            break
+    label = DISPLAY_UNITS[COLUMN_KINDS[key]][units][0]
+    if label == "-":
+        return stem
+    return f"{stem}_{label.replace('/', '_per_')}"
+
+
+# ------------------------------------------------------------------------------------------
+# comparison
+
+def verification_miss(verification: dict | None) -> float | None:
+    """The headline re-simulation miss of a verification record (relative, as a fraction), or
+    ``None``. Uses the first of ``final_state_miss_rel``, ``final_energy_height_miss_rel``,
+    ``final_state_miss`` found."""
+    if not verification:
+        return None
+    for key in ("final_state_miss_rel", "final_energy_height_miss_rel", "final_state_miss"):
+        value = verification.get(key)
+        if isinstance(value, (int, float)) and math.isfinite(value):
+            return float(value)
+    return None
+
+
+def comparison(results: list[Trajectory | FailedRun]) -> list[dict]:
+    """One record per result (SI), with the differences to the best converged row.
+
+    Each record holds the :meth:`Trajectory.summary` keys plus ``time_diff_pct`` and
+    ``fuel_diff_pct`` (percent above the least time and least fuel among *converged* rows;
+    ``None`` for unconverged rows, which are never ranked), ``best_time`` / ``best_fuel`` flags,
+    ``verification_miss`` and ``has_trajectory``.
+    """
+    records = []
+    for r in results:
+        if isinstance(r, Trajectory):
+            rec = r.summary()
+            rec["has_trajectory"] = True
+        else:
+            rec = {
+                "method": r.method, "objective": r.objective, "time_s": None, "fuel_kg": None,
+                "distance_m": None, "final_mass_kg": None, "converged": False, "status": r.status,
+                "iterations": int(r.iterations), "wall_s": float(r.wall_s), "verification": None,
+                "zooms": 0, "notes": list(r.notes) + [r.message], "has_trajectory": False,
+            }
+        rec["verification_miss"] = verification_miss(rec.get("verification"))
+        records.append(rec)
+    ranked = [rec for rec in records if rec["converged"] and rec["time_s"] is not None]
+    best_time = min((rec["time_s"] for rec in ranked), default=None)
+    best_fuel = min((rec["fuel_kg"] for rec in ranked), default=None)
+    for rec in records:
+        if any(rec is x for x in ranked):
+            rec["time_diff_pct"] = _pct(rec["time_s"], best_time)
+            rec["fuel_diff_pct"] = _pct(rec["fuel_kg"], best_fuel)
+            rec["best_time"] = rec["time_s"] == best_time
+            rec["best_fuel"] = rec["fuel_kg"] == best_fuel
+        else:
+            rec["time_diff_pct"] = None
+            rec["fuel_diff_pct"] = None
+            rec["best_time"] = False
+            rec["best_fuel"] = False
+    return records
+
+
+def _pct(value: float, best: float | None) -> float | None:
+    if best is None or best == 0.0:
+        return None
+    return 100.0 * (value - best) / abs(best)
+
+
+def _fmt(value, digits: int = 1) -> str:
+    if value is None:
+        return "-"
+    if isinstance(value, float) and not math.isfinite(value):
+        return "-"
+    return f"{value:,.{digits}f}"
+
+
+def comparison_columns(units: str) -> list[tuple[str, str]]:
+    """``(record key, header)`` pairs of the comparison table/CSV in ``units``."""
+    m = DISPLAY_UNITS["mass"][units][0]
+    d = DISPLAY_UNITS["distance"][units][0]
+    return [
+        ("method", "method"), ("objective", "objective"), ("time_s", "time [s]"),
+        ("fuel_kg", f"fuel [{m}]"), ("distance_m", f"distance [{d}]"),
+        ("final_mass_kg", f"final mass [{m}]"), ("time_diff_pct", "time vs best [%]"),
+        ("fuel_diff_pct", "fuel vs best [%]"), ("converged", "converged"),
+        ("iterations", "iterations"), ("wall_s", "wall [s]"),
+        ("verification_miss", "verification miss [%]"),
+    ]
+
+
+_KINDS = {"time_s": "time", "fuel_kg": "mass", "distance_m": "distance", "final_mass_kg": "mass"}
+
+
+def display_record(rec: dict, units: str) -> dict:
+    """The comparison record's numbers in display units, keyed by the headers of
+    :func:`comparison_columns` (numbers stay numbers; ``verification_miss`` in %)."""
+    out = {}
+    for key, header in comparison_columns(units):
+        value = rec.get(key)
+        if key in _KINDS:
+            value = to_display(_KINDS[key], value, units)[0]
+        elif key == "verification_miss" and value is not None:
+            value = 100.0 * value
+        out[header] = value
+    return out
+
+
+def format_table(records: list[dict], units: str = "si") -> str:
+    """The comparison table as aligned plain text, with a legend line and the caution."""
+    _check_units(units)
+    cols = comparison_columns(units)
+    lines = [[h for _, h in cols]]
+    for rec in records:
+        disp = display_record(rec, units)
+        row = []
+        for key, header in cols:
+            v = disp[header]
+            if key in ("method", "objective"):
+                row.append(str(v))
+            elif key == "converged":
+                row.append("yes" if v else "NO")
+            elif key == "iterations":
+                row.append(str(v))
+            elif key in ("time_diff_pct", "fuel_diff_pct"):
+                if not rec["converged"]:
+                    row.append("not ranked")
+                else:
+                    best = rec["best_time"] if key == "time_diff_pct" else rec["best_fuel"]
+                    row.append("best" if best else f"+{_fmt(v, 1)}")
+            elif key == "verification_miss":
+                row.append(_fmt(v, 3))
+            elif key == "wall_s":
+                row.append(_fmt(v, 2))
+            else:
+                row.append(_fmt(v, 1))
+        lines.append(row)
+    widths = [max(len(r[i]) for r in lines) for i in range(len(cols))]
+    text = []
+    for j, r in enumerate(lines):
+        cells = [c.ljust(widths[i]) if i < 2 else c.rjust(widths[i]) for i, c in enumerate(r)]
+        text.append("  ".join(cells).rstrip())
+        if j == 0:
+            text.append("  ".join("-" * w for w in widths))
+    if any(not rec["converged"] for rec in records):
+        text.append("NO = not converged: shown for information, never ranked as optimal.")
+    return "\n".join(text)
+
+
+# ------------------------------------------------------------------------------------------
+# files
+
+def result_stem(method: str, objective: str) -> str:
+    """File-name stem of one result, e.g. ``energy-state_time``."""
+    return f"{method}_{objective}".replace(" ", "-")
+
+
+def _header_lines(scenario_name: str, units: str, what: str) -> list[str]:
+    return [f"# climbopt {__version__}: {what}; scenario: {scenario_name}; units: {units}",
+            f"# caution: {CAUTION}"]
+
+
+def read_csv(path) -> tuple[list[str], list[list[str]]]:
+    """Read a climbopt CSV (skipping ``#`` comment lines); returns ``(header, rows)``."""
+    with open(path, newline="", encoding="utf-8") as fh:
+        lines = [ln for ln in fh if not ln.startswith("#")]
+    rows = list(csv.reader(lines))
+    return rows[0], rows[1:]
+
+
+def _write_csv(path: Path, comments: list[str], header: list[str], rows) -> None:
+    buf = io.StringIO()
+    for c in comments:
+        buf.write(c + "\n")
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(header)
+    for r in rows:
+        w.writerow(r)
+    Path(path).write_text(buf.getvalue(), encoding="utf-8")
+
+
+def _cell(v) -> str:
+    if v is None:
+        return ""
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, float):
+        return "" if not math.isfinite(v) else repr(round(v, 6))
+    return str(v)
+
+
+def write_trajectory_csv(path, trajectory: Trajectory, units: str = "si",
+                         scenario_name: str = "") -> None:
+    """Write the full per-point table of one trajectory (column order of :data:`COLUMNS`)."""
+    _check_units(units)
+    header = [column_header(k, units) for k in COLUMNS]
+    conv = [to_display(COLUMN_KINDS[k], trajectory.table[k], units)[0] for k in COLUMNS]
+    label = f"{trajectory.method}, minimum {trajectory.objective}"
+    if not trajectory.converged:
+        label += " (NOT CONVERGED: not an optimum)"
+    rows = ([_cell(float(col[i])) for col in conv] for i in range(len(conv[0])))
+    _write_csv(Path(path), _header_lines(scenario_name, units, label), header, rows)
+
+
+def schedule_records(schedule: ClimbSchedule, units: str = "si") -> tuple[list[str], list[list]]:
+    """Header and rows of a climb schedule in ``units`` (speed to fly as CAS or Mach)."""
+    _check_units(units)
+    alt_u = DISPLAY_UNITS["altitude"][units][0]
+    spd_u = DISPLAY_UNITS["speed"][units][0]
+    mass_u = DISPLAY_UNITS["mass"][units][0]
+    dist_u = DISPLAY_UNITS["distance"][units][0]
+    header = [f"altitude [{alt_u}]", "fly", "speed to fly", f"CAS [{spd_u}]", "Mach",
+              f"TAS [{spd_u}]", "time [s]", f"fuel [{mass_u}]", f"distance [{dist_u}]", "point"]
+    rows = []
+    for r in schedule.rows:
+        cas = to_display("speed", r.cas_m_s, units)[0]
+        to_fly = f"{cas:.0f} {spd_u}" if r.fly == "CAS" else f"M {r.mach:.3f}"
+        rows.append([
+            round(float(to_display("altitude", r.altitude_m, units)[0]), 1), r.fly, to_fly,
+            round(float(cas), 1), round(r.mach, 4),
+            round(float(to_display("speed", r.tas_m_s, units)[0]), 1), round(r.time_s, 1),
+            round(float(to_display("mass", r.fuel_kg, units)[0]), 1),
+            round(float(to_display("distance", r.distance_m, units)[0]), 2), r.point])
+    return header, rows
+
+
+def schedule_summary(schedule: ClimbSchedule, units: str = "si") -> str:
+    """One line: the fitted constant CAS / Mach pair and its crossover altitude."""
+    cas, spd_u = to_display("speed", schedule.climb_cas_m_s, units)
+    alt, alt_u = to_display("altitude", schedule.crossover_altitude_m, units)
+    return (f"closest constant schedule: {cas:.0f} {spd_u} / M {schedule.climb_mach:.2f}, "
+            f"crossover at {alt:,.0f} {alt_u}")
+
+
+def write_schedule_csv(path, schedule: ClimbSchedule, units: str = "si",
+                       scenario_name: str = "") -> None:
+    """Write a crew-style climb schedule as CSV (with the crossover in a comment line)."""
+    header, rows = schedule_records(schedule, units)
+    comments = _header_lines(scenario_name, units,
+                             f"climb schedule, {schedule.method}, minimum {schedule.objective}")
+    comments.append(f"# {schedule_summary(schedule, units)}")
+    comments += [f"# note: {n}" for n in schedule.notes]
+    _write_csv(Path(path), comments, header, ([_cell(v) for v in r] for r in rows))
+
+
+def format_schedule(schedule: ClimbSchedule, units: str = "si") -> str:
+    """The climb schedule as aligned plain text."""
+    header, rows = schedule_records(schedule, units)
+    cells = [header] + [[_cell(v) for v in r] for r in rows]
+    widths = [max(len(r[i]) for r in cells) for i in range(len(header))]
+    out = [f"{schedule.method}, minimum {schedule.objective}: {schedule_summary(schedule, units)}"]
+    for j, r in enumerate(cells):
+        out.append("  ".join(c.rjust(widths[i]) for i, c in enumerate(r)).rstrip())
+        if j == 0:
+            out.append("  ".join("-" * w for w in widths))
+    out += [f"note: {n}" for n in schedule.notes]
+    return "\n".join(out)
+
+
+def write_comparison_csv(path, records: list[dict], units: str = "si",
+                         scenario_name: str = "") -> None:
+    """Write the comparison table as CSV in ``units``."""
+    cols = comparison_columns(units)
+    rows = []
+    for rec in records:
+        disp = display_record(rec, units)
+        rows.append([_cell(disp[h]) for _, h in cols])
+    _write_csv(Path(path), _header_lines(scenario_name, units, "comparison"),
+               [h for _, h in cols], rows)
+
+
+def summary_document(records: list[dict], *, scenario_name: str, scenario_path: str,
+                     units: str = "si", schedules: dict | None = None,
+                     files: dict | None = None, exit_code: int = 0,
+                     errors: list[str] | None = None) -> dict:
+    """The ``summary.json`` document: SI keys per result (stable), display values in ``units``,
+    schedule summaries, files written, and the caution."""
+    _check_units(units)
+    schedules = schedules or {}
+    files = files or {}
+    results = []
+    for rec in records:
+        out = {k: v for k, v in rec.items()}
+        stem = result_stem(rec["method"], rec["objective"])
+        out["display"] = display_record(rec, units)
+        sched = schedules.get(stem)
+        if sched is not None:
+            out["schedule"] = {
+                "climb_cas_m_s": sched.climb_cas_m_s, "climb_mach": sched.climb_mach,
+                "crossover_altitude_m": sched.crossover_altitude_m,
+                "text": schedule_summary(sched, units),
+            }
+        out["files"] = files.get(stem, [])
+        results.append(out)
+    return {
+        "climbopt_version": __version__,
+        "scenario": {"name": scenario_name, "path": str(scenario_path)},
+        "units": units,
+        "results": results,
+        "exit_code": int(exit_code),
+        "errors": list(errors or []),
+        "caution": CAUTION,
+    }
+
+
+def _json_default(obj):
+    if isinstance(obj, np.generic):
+        return obj.item()
+    if isinstance(obj, np.ndarray):
+        return obj.tolist()
+    if isinstance(obj, Path):
+        return str(obj)
+    raise TypeError(f"cannot write {type(obj).__name__} to JSON")
+
+
+def _clean(obj):
+    """Replace NaN/inf by None so the JSON is standard."""
+    if isinstance(obj, dict):
+        return {k: _clean(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_clean(v) for v in obj]
+    if isinstance(obj, (float, np.floating)) and not math.isfinite(float(obj)):
+        return None
+    return obj
+
+
+def dumps_summary(document: dict) -> str:
+    """``summary.json`` text (standard JSON, NaN written as null)."""
+    return json.dumps(_clean(document), indent=2, default=_json_default)
+
+
+def write_summary_json(path, document: dict) -> None:
+    """Write ``summary.json``."""
+    Path(path).write_text(dumps_summary(document) + "\n", encoding="utf-8")
+
+
+def write_text_atomic(path, text: str) -> None:
+    """Write one file atomically: a temporary file in the same folder, then a rename."""
+    path = Path(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise
+
+
+@contextlib.contextmanager
+def atomic_output_dir(out_dir):
+    """Context manager yielding a temporary sibling folder to write into; on success the folder
+    replaces ``out_dir`` by renames, on any exception it is deleted and ``out_dir`` is untouched.
+
+    The swap renames an existing ``out_dir`` aside, renames the new folder into place, then
+    deletes the old one; if the second rename fails the old folder is renamed back. An existing
+    folder is therefore never left half-overwritten.
+    """
+    out_dir = Path(out_dir)
+    out_dir.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.new-", dir=out_dir.parent))
+    try:
+        yield tmp
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    old = None
+    try:
+        if out_dir.exists():
+            old = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.old-", dir=out_dir.parent))
+            os.rmdir(old)
+            os.rename(out_dir, old)
+        try:
+            os.rename(tmp, out_dir)
+        except BaseException:
+            if old is not None:
+                os.rename(old, out_dir)
+                old = None
+            raise
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    if old is not None:
+        shutil.rmtree(old, ignore_errors=True)
