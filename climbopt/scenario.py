@@ -1264,3 +1264,176 @@ def load_scenario(path) -> Scenario:
     return Scenario(name=name, description=description, source_path=path, aircraft=aircraft,
                     propulsion=propulsion, atmosphere=atmosphere, mission=mission, limits=limits,
                     solver=solver, display_units=dict(r.units))
+
+
+# ============================================================================================
+# Human-readable summary, in the file's own units (used by `climbopt check`).
+# ============================================================================================
+
+
+def _u(scenario: Scenario, fld: str, fallback: str) -> str:
+    return scenario.display_units.get(fld) or fallback
+
+
+def _q(value_si: float, unit: str) -> str:
+    """Format an SI value in ``unit`` (empty unit: plain number)."""
+    if not unit:
+        return _fmt(value_si)
+    return f"{_fmt(from_si(value_si, unit))} {unit}"
+
+
+def _range(values, unit: str) -> str:
+    lo, hi = min(values), max(values)
+    if lo == hi:
+        return f"{_q(lo, unit)} (constant)"
+    if not unit:
+        return f"{_fmt(lo)} to {_fmt(hi)}"
+    return f"{_fmt(from_si(lo, unit))} to {_fmt(from_si(hi, unit))} {unit}"
+
+
+def _flat(table: Table2D) -> list[float]:
+    return [v for row in table.values for v in row]
+
+
+def _describe_table1d(label: str, table: Table1D, unit: str = "") -> str:
+    if min(table.values) == max(table.values):
+        return f"{label}: {_q(table.values[0], unit)} at all Mach numbers"
+    return (f"{label}: {_range(table.values, unit)} over Mach {_fmt(table.mach[0])} to "
+            f"{_fmt(table.mach[-1])} ({len(table.mach)} points)")
+
+
+def _describe_point(scenario: Scenario, key: str, point: FlightPoint, dt_k: float) -> list[str]:
+    fld = f"mission.{key}"
+    u_alt = _u(scenario, f"{fld}.altitude", "ft")
+    u_speed = _u(scenario, f"{fld}.{point.speed_kind}", "kt")
+    mach, q, cas, rho = _point_state(point, dt_k)
+    he = energy_height_m(point.altitude_m, point.tas_m_s)
+    g0 = _g0()
+    eas = point.tas_m_s * math.sqrt(rho / 1.225)  # EAS = TAS sqrt(rho / rho0), rho0 = 1.225 kg/m^3
+    given = (f"Mach {_fmt(point.speed_value)}" if point.speed_kind == "mach"
+             else f"{point.speed_kind.upper()} {_q(point.speed_value, u_speed)}")
+    lines = [
+        f"  {key}: altitude {_q(point.altitude_m, u_alt)}, {given}",
+        f"      = Mach {mach:.3f}, TAS {_q(point.tas_m_s, u_speed)}, CAS {_q(cas, u_speed)}, "
+        f"EAS {_q(eas, u_speed)}, dynamic pressure {_q(q, _u(scenario, 'limits.max_dynamic_pressure', 'kPa'))}",
+        f"      flight-path angle {_q(point.flight_path_angle_rad, _u(scenario, f'{fld}.flight_path_angle', 'deg'))}, "
+        f"energy height {_q(he, u_alt)}",
+    ]
+    ac = scenario.aircraft
+    cl = ac.mass_kg * g0 / (q * ac.reference_area_m2)
+    clmax = float(_interp(mach, ac.cl_max.mach, ac.cl_max.values))
+    note = "" if cl < clmax else "  <-- above CLmax: the start mass cannot fly level here"
+    lines.append(f"      lift coefficient in level flight at the start mass {cl:.3f} (CLmax {clmax:.3g}){note}")
+    return lines
+
+
+def _interp(x: float, xs, ys) -> float:
+    """Piecewise-linear lookup, clamped at the ends (display only)."""
+    if x <= xs[0]:
+        return ys[0]
+    for i in range(1, len(xs)):
+        if x <= xs[i]:
+            t = (x - xs[i - 1]) / (xs[i] - xs[i - 1])
+            return ys[i - 1] + t * (ys[i] - ys[i - 1])
+    return ys[-1]
+
+
+def describe_scenario(scenario: Scenario) -> str:
+    """What the program understood from a scenario, as text in the units the file used."""
+    s = scenario
+    ac, prop, mis, lim, sol = s.aircraft, s.propulsion, s.mission, s.limits, s.solver
+    dt_k = s.atmosphere.temperature_offset_k
+    out: list[str] = [f"Scenario: {s.name}"]
+    if s.description:
+        out.append(f"  {s.description}")
+    out.append(f"  file: {s.source_path}")
+
+    out.append("")
+    out.append(f"Aircraft: {ac.name}")
+    line = (f"  reference area {_q(ac.reference_area_m2, _u(s, 'aircraft.reference_area', 'm^2'))}, "
+            f"start mass {_q(ac.mass_kg, _u(s, 'aircraft.mass', 'kg'))}")
+    if ac.fuel_capacity_kg is not None:
+        line += f", fuel capacity {_q(ac.fuel_capacity_kg, _u(s, 'aircraft.fuel_capacity', _u(s, 'aircraft.mass', 'kg')))}"
+    out.append(line)
+    d = ac.drag
+    if d.kind == "parabolic":
+        out.append(f"  drag polar: parabolic, CD = CD0(M) + k(M) CL^2 over Mach {_fmt(d.cd0.mach[0])} to "
+                   f"{_fmt(d.cd0.mach[-1])} ({len(d.cd0.mach)} points); CD0 {_range(d.cd0.values, '')}, "
+                   f"k {_range(d.k.values, '')}")
+    else:
+        cds = [v for row in d.cd_table for v in row]
+        out.append(f"  drag polar: table CD(CL, M), {len(d.cd_mach)} Mach x {len(d.cd_cl)} CL points, Mach "
+                   f"{_fmt(d.cd_mach[0])} to {_fmt(d.cd_mach[-1])}, CL {_fmt(d.cd_cl[0])} to "
+                   f"{_fmt(d.cd_cl[-1])}; CD {_range(cds, '')}")
+    if d.lift_slope_per_rad is not None:
+        out.append("  " + _describe_table1d("lift-curve slope", d.lift_slope_per_rad,
+                                            _u(s, "aircraft.drag.lift_slope", "1/rad")))
+    out.append("  " + _describe_table1d("maximum lift coefficient", ac.cl_max))
+
+    out.append("")
+    align = "along the flight path" if prop.thrust_alignment == "path" else "along the body axis"
+    out.append(f"Propulsion: default rating '{prop.default_rating}', throttle {_fmt(prop.throttle_min)} to "
+               f"{_fmt(prop.throttle_max)}, thrust {align}, thrust scale {_fmt(prop.thrust_scale)}")
+    for name, rt in prop.ratings.items():
+        base = f"propulsion.ratings.{name}"
+        main = rt.thrust_n if rt.kind == "jet" else rt.shaft_power_w
+        u_alt = _u(s, f"{base}.altitude", "ft")
+        out.append(f"  rating '{name}' ({rt.kind}): {'thrust' if rt.kind == 'jet' else 'shaft power'} table {len(main.mach)} Mach x {len(main.altitude_m)} "
+                   f"altitudes, Mach {_fmt(main.mach[0])} to {_fmt(main.mach[-1])}, altitude "
+                   f"{_range(main.altitude_m, u_alt)}")
+        if rt.kind == "jet":
+            out.append(f"    thrust (all engines) {_range(_flat(rt.thrust_n), _u(s, base + '.thrust', 'kN'))}")
+        else:
+            out.append(f"    shaft power (all engines) "
+                       f"{_range(_flat(rt.shaft_power_w), _u(s, base + '.shaft_power', 'kW'))}")
+            out.append("    " + _describe_table1d("propeller efficiency", rt.propeller_efficiency))
+        if rt.fuel_flow_kg_s is not None:
+            out.append(f"    fuel flow table {_range(_flat(rt.fuel_flow_kg_s), _u(s, base + '.fuel_flow', 'kg/h'))}")
+        elif base + ".specific_impulse" in s.display_units:
+            isp = 1.0 / (_g0() * rt.tsfc_kg_per_n_s)
+            out.append(f"    fuel: specific impulse {_q(isp, _u(s, base + '.specific_impulse', 's'))} "
+                       f"(TSFC {_q(rt.tsfc_kg_per_n_s, 'lb/lbf/h')})")
+        elif rt.tsfc_kg_per_n_s is not None:
+            out.append(f"    fuel: TSFC {_q(rt.tsfc_kg_per_n_s, _u(s, base + '.tsfc', 'lb/lbf/h'))}")
+        else:
+            out.append(f"    fuel: PSFC {_q(rt.psfc_kg_per_w_s, _u(s, base + '.psfc', 'lb/hp/h'))}")
+
+    out.append("")
+    out.append(f"Atmosphere: US Standard Atmosphere 1976, temperature offset "
+               f"{_q(dt_k, _u(s, 'atmosphere.temperature_offset', 'K'))}")
+
+    out.append("")
+    out.append(f"Mission: climb with rating '{mis.rating or prop.default_rating}'")
+    out.extend(_describe_point(s, "start", mis.start, dt_k))
+    out.extend(_describe_point(s, "target", mis.target, dt_k))
+    u_alt = _u(s, "mission.target.altitude", "ft")
+    gain = (energy_height_m(mis.target.altitude_m, mis.target.tas_m_s)
+            - energy_height_m(mis.start.altitude_m, mis.start.tas_m_s))
+    out.append(f"  energy height to gain: {_q(gain, u_alt)}")
+    if mis.dash_distance_m is not None:
+        out.append(f"  then dash at the target state to a ground distance of "
+                   f"{_q(mis.dash_distance_m, _u(s, 'mission.dash_distance', 'nmi'))} from the start")
+
+    out.append("")
+    out.append("Limits:")
+    none = "none"
+    top = (f"to {_q(lim.max_altitude_m, _u(s, 'limits.max_altitude', u_alt))}" if lim.max_altitude_m is not None
+           else "(no upper limit)")
+    out.append(f"  altitude from {_q(lim.min_altitude_m, _u(s, 'limits.min_altitude', u_alt))} {top}")
+    out.append(f"  max Mach {_fmt(lim.max_mach) if lim.max_mach is not None else none}, max CAS "
+               f"{_q(lim.max_cas_m_s, _u(s, 'limits.max_cas', 'kt')) if lim.max_cas_m_s is not None else none}, "
+               f"max dynamic pressure "
+               f"{_q(lim.max_dynamic_pressure_pa, _u(s, 'limits.max_dynamic_pressure', 'kPa')) if lim.max_dynamic_pressure_pa is not None else none}, "
+               f"max load factor {_fmt(lim.max_load_factor)}")
+    if lim.cas_restriction is not None:
+        rc, below = lim.cas_restriction
+        out.append(f"  CAS at most {_q(rc, _u(s, 'limits.cas_restriction.cas', 'kt'))} below "
+                   f"{_q(below, _u(s, 'limits.cas_restriction.below', 'ft'))}")
+
+    out.append("")
+    ipopt = ", ".join(f"{k}={v}" for k, v in sol.ipopt.items()) or "defaults"
+    out.append(f"Solver: energy-state grid {sol.grid_altitude_points} altitudes x {sol.grid_speed_points} speeds; "
+               f"collocation {sol.intervals} intervals ({sol.transcription}), mesh tolerance "
+               f"{_fmt(sol.mesh_tolerance)}, up to {sol.max_mesh_refinements} refinements, cost weight "
+               f"{_q(sol.cost_weight_kg_per_s, _u(s, 'solver.cost_weight', 'kg/s'))}; IPOPT options: {ipopt}")
+    return "\n".join(out)
