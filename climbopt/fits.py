@@ -20,6 +20,7 @@ to ``casadi.bspline`` for the MX path, so both agree to rounding.
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 
 import numpy as np
@@ -135,7 +136,7 @@ class Fit1D:
         if self._ca is None:
             s = ca.MX.sym("x")
             expr = ca.bspline(s, ca.DM(self._spline.c), [list(self._spline.t)], [3], 1, {})
-            self._ca = ca.Function(self.name.replace("(", "_").replace(")", ""), [s], [expr])
+            self._ca = ca.Function(_casadi_name(self.name), [s], [expr])
         return self._ca
 
     def __call__(self, x, *, check: bool = True):
@@ -186,8 +187,7 @@ class Fit2D:
             coeffs = np.asarray(c).reshape(len(tu) - 4, len(tv) - 4).ravel(order="F")
             s = ca.MX.sym("uv", 2)
             expr = ca.bspline(s, ca.DM(coeffs), [list(tu), list(tv)], [3, 3], 1, {})
-            self._ca = ca.Function(self.name.replace("(", "_").replace(")", "").replace(",", "_"),
-                                   [s], [expr])
+            self._ca = ca.Function(_casadi_name(self.name), [s], [expr])
         return self._ca
 
     def __call__(self, u, v, *, check: bool = True):
@@ -212,6 +212,12 @@ class Fit2D:
         uc = np.clip(u, self.fit_u.low, self.fit_u.high)
         vc = np.clip(v, self.fit_v.low, self.fit_v.high)
         return self._spline.ev(uc.ravel(), vc.ravel()).reshape(u.shape)
+
+
+def _casadi_name(name: str) -> str:
+    """A valid CasADi function name made from a quantity name like ``thrust[max](Mach,altitude)``."""
+    words = re.findall(r"[A-Za-z0-9]+", name)
+    return "fit_" + "_".join(words)
 
 
 def _domain_check(name: str, what: str, x: np.ndarray, interval: Interval) -> None:
