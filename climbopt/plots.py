@@ -155,7 +155,7 @@ def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str
         raise ValueError(f"x must be 'mach' or 'tas', got {x!r}")
     u = _axis_units(units)
     if ax is None:
-        _, ax = plt.subplots(figsize=(8.0, 6.0))
+        _, ax = plt.subplots(figsize=(10.0, 6.0))
     alt_fn, alt_label = u["alt"]
     Y = alt_fn(np.broadcast_to(energy_map.altitude_m[:, None], energy_map.shape))
     X = energy_map.mach if x == "mach" else u["tas"][0](energy_map.tas_m_s)
@@ -174,27 +174,28 @@ def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str
     handles = []
     if finite.size:
         top = float(np.nanmax(finite))
-        low = 0.0 if quantity == "fs" else min(0.0, float(np.nanmin(finite)))
-        levels = _nice_levels(low, top, 12)
+        # the useful range is Ps > 0; show only a band of negative Ps below it
+        low = 0.0 if quantity == "fs" else max(min(0.0, float(np.nanmin(finite))), -0.4 * top)
+        levels = _nice_levels(low, top, 14)
         if levels.size >= 2:
             ax.contourf(X, Y, field_disp, levels=levels, cmap=FIELD_CMAP, extend="both")
             cs = ax.contour(X, Y, field_disp, levels=levels, colors="#3a3a3a", linewidths=0.6)
             ax.clabel(cs, levels[::2], fontsize=7, fmt="%g")
             handles.append(Line2D([], [], color="#3a3a3a", linewidth=0.6, label=flabel))
-        if quantity == "ps":
-            zero = ax.contour(X, Y, field_disp, levels=[0.0], colors="black", linewidths=1.6)
-            if zero.allsegs and any(len(s) for s in zero.allsegs[0]):
-                ax.clabel(zero, fmt={0.0: "Ps = 0"}, fontsize=8)
-            handles.append(Line2D([], [], color="black", linewidth=1.6,
-                                  label="Ps = 0 (steady ceiling)"))
+    ps_feasible = np.where(feasible, np.asarray(energy_map.fields.ps_m_s, dtype=float), np.nan)
+    if np.nanmin(ps_feasible) < 0.0 < np.nanmax(ps_feasible):
+        zero = ax.contour(X, Y, ps_feasible, levels=[0.0], colors="black", linewidths=1.6)
+        ax.clabel(zero, fmt={0.0: "Ps = 0"}, fontsize=8)
+        handles.append(Line2D([], [], color="black", linewidth=1.6,
+                              label="Ps = 0 (steady ceiling)"))
 
     # energy-height lines
     he_fn, he_unit = u["he"]
     he = he_fn(np.asarray(energy_map.energy_height_m, dtype=float))
-    he_levels = _nice_levels(float(np.nanmin(he)), float(np.nanmax(he)), 8)
+    he_levels = _nice_levels(float(np.nanmin(he)), float(np.nanmax(he)), 12)
     if he_levels.size >= 2:
         hs = ax.contour(X, Y, he, levels=he_levels, colors="#6b6b6b", linewidths=0.8,
-                        linestyles=(0, (2, 2)))
+                        linestyles=[(0, (2, 2))])
         ax.clabel(hs, fontsize=7, fmt=lambda v: f"he {v:g} {he_unit}")
         handles.append(Line2D([], [], color="#6b6b6b", linewidth=0.8, linestyle=(0, (2, 2)),
                               label=f"energy height [{he_unit}]"))
@@ -243,7 +244,8 @@ def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str
                  f"rating {energy_map.rating}")
     ax.set_title(title, fontsize=10)
     if legend and handles:
-        ax.legend(handles=handles, fontsize=7, loc="upper left", framealpha=0.9)
+        ax.legend(handles=handles, fontsize=7, loc="upper left", bbox_to_anchor=(1.01, 1.0),
+                  borderaxespad=0.0, framealpha=0.9)
     return ax
 
 
