@@ -183,7 +183,7 @@ def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str
             ax.clabel(cs, levels[::2], fontsize=7, fmt="%g")
             handles.append(Line2D([], [], color="#3a3a3a", linewidth=0.6, label=flabel))
     ps_feasible = np.where(feasible, np.asarray(energy_map.fields.ps_m_s, dtype=float), np.nan)
-    if np.nanmin(ps_feasible) < 0.0 < np.nanmax(ps_feasible):
+    if np.isfinite(ps_feasible).any() and np.nanmin(ps_feasible) < 0.0 < np.nanmax(ps_feasible):
         zero = ax.contour(X, Y, ps_feasible, levels=[0.0], colors="black", linewidths=1.6)
         ax.clabel(zero, fmt={0.0: "Ps = 0"}, fontsize=8)
         handles.append(Line2D([], [], color="black", linewidth=1.6,

@@ -17,9 +17,10 @@ G0 = 9.80665
 
 def straight_climb(method="energy-state", objective="time", *, top_m=11000.0, cas_m_s=150.0,
                    mach=0.78, rate_m_s=10.0, fuel_flow_kg_s=1.5, mass0_kg=60000.0, n=120,
-                   converged=True, level_s=0.0, temperature_offset_k=0.0):
+                   converged=True, level_s=0.0, temperature_offset_k=0.0, restriction=None):
     """Climb from 0 m to ``top_m`` at ``rate_m_s``: constant CAS, then constant Mach above the
-    crossover; optionally a level leg of ``level_s`` seconds at the top."""
+    crossover; optionally a level leg of ``level_s`` seconds at the top and a speed restriction
+    ``(cas_m_s, below_m)`` flown below an altitude."""
     from climbopt.airspeed import cas_from_tas, tas_from_speed
     from climbopt.atmosphere import standard_atmosphere
 
@@ -27,6 +28,9 @@ def straight_climb(method="energy-state", objective="time", *, top_m=11000.0, ca
     a = standard_atmosphere(h, temperature_offset_k).speed_of_sound_m_s
     v_cas = np.asarray(tas_from_speed("cas", cas_m_s, h, temperature_offset_k), float)
     v = np.minimum(v_cas, mach * a)  # below the crossover the CAS gives the lower Mach
+    if restriction is not None:
+        v_low = np.asarray(tas_from_speed("cas", restriction[0], h, temperature_offset_k), float)
+        v = np.where(h < restriction[1], v_low, v)
     t = h / rate_m_s
     if level_s > 0.0:
         t_level = t[-1] + np.linspace(0.0, level_s, 20)[1:]
