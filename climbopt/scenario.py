@@ -256,42 +256,15 @@ _MAX_ELEMENT_PROBLEMS = 3
 
 
 def _tas_from_speed(kind: str, value: float, altitude_m: float, temperature_offset_k: float) -> float:
-    try:
-        from climbopt.airspeed import tas_from_speed
-    except ImportError:  # TEMPORARY until climbopt/airspeed.py lands -- delete before finishing
-        tas_from_speed = _fallback_tas_from_speed
+    from climbopt.airspeed import tas_from_speed
+
     return float(tas_from_speed(kind, value, altitude_m, temperature_offset_k))
 
 
 def _cas_from_tas(tas_m_s: float, altitude_m: float, temperature_offset_k: float) -> float:
-    try:
-        from climbopt.airspeed import cas_from_tas
-    except ImportError:  # TEMPORARY until climbopt/airspeed.py lands -- delete before finishing
-        cas_from_tas = _fallback_cas_from_tas
+    from climbopt.airspeed import cas_from_tas
+
     return float(cas_from_tas(tas_m_s, altitude_m, temperature_offset_k))
-
-
-def _fallback_tas_from_speed(kind, value, h, dt):  # TEMPORARY, subsonic only
-    from climbopt.atmosphere import P0_PA, A0_M_S, RHO0_KG_M3, standard_atmosphere
-    atm = standard_atmosphere(h, dt)
-    a, p, rho = float(atm.speed_of_sound_m_s), float(atm.pressure_pa), float(atm.density_kg_m3)
-    if kind == "mach":
-        return value * a
-    if kind == "tas":
-        return value
-    if kind == "eas":
-        return value * math.sqrt(RHO0_KG_M3 / rho)
-    qc = P0_PA * ((1 + 0.2 * (value / A0_M_S) ** 2) ** 3.5 - 1)
-    mach = math.sqrt(5 * ((qc / p + 1) ** (1 / 3.5) - 1))
-    return mach * a
-
-
-def _fallback_cas_from_tas(tas, h, dt):  # TEMPORARY, subsonic only
-    from climbopt.atmosphere import P0_PA, A0_M_S, standard_atmosphere
-    atm = standard_atmosphere(h, dt)
-    m = tas / float(atm.speed_of_sound_m_s)
-    qc = float(atm.pressure_pa) * ((1 + 0.2 * m * m) ** 3.5 - 1)
-    return A0_M_S * math.sqrt(5 * ((qc / P0_PA + 1) ** (1 / 3.5) - 1))
 
 
 def _g0() -> float:
@@ -1303,13 +1276,15 @@ def _describe_table1d(label: str, table: Table1D, unit: str = "") -> str:
 
 
 def _describe_point(scenario: Scenario, key: str, point: FlightPoint, dt_k: float) -> list[str]:
+    from climbopt.airspeed import eas_from_tas
+
     fld = f"mission.{key}"
     u_alt = _u(scenario, f"{fld}.altitude", "ft")
     u_speed = _u(scenario, f"{fld}.{point.speed_kind}", "kt")
     mach, q, cas, rho = _point_state(point, dt_k)
     he = energy_height_m(point.altitude_m, point.tas_m_s)
     g0 = _g0()
-    eas = point.tas_m_s * math.sqrt(rho / 1.225)  # EAS = TAS sqrt(rho / rho0), rho0 = 1.225 kg/m^3
+    eas = float(eas_from_tas(point.tas_m_s, rho))
     given = (f"Mach {_fmt(point.speed_value)}" if point.speed_kind == "mach"
              else f"{point.speed_kind.upper()} {_q(point.speed_value, u_speed)}")
     lines = [
