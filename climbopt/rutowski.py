@@ -1,0 +1,768 @@
+"""Energy-state (Rutowski) climb paths: minimum time, minimum fuel, weighted, with an optional dash.
+
+Method
+------
+The aircraft is reduced to one state, the energy height ``he = h + V^2 / (2 g0)``, which grows
+at the specific excess power, ``d he / dt = Ps`` (Rutowski, J. Aeronautical Sciences 21(3), 1954;
+Bryson, Desai & Hoffman, J. Aircraft 6(6), 1969). Altitude and speed become controls that can be
+exchanged instantly at constant energy ("zooms"). For a climb from energy ``he0`` to ``hef``
+
+* time     ``t = integral dhe / Ps``,
+* fuel     ``F = integral (fuel flow / Ps) dhe``,
+* distance ``x = integral (V / Ps) dhe`` (horizontal distance taken as path length, cos(gamma) = 1),
+
+so each cost is minimised by choosing, on every energy level separately, the feasible point
+(h, V) on the line ``h = he - V^2 / (2 g0)`` that maximises
+
+* ``Ps``                          minimum time (tangency of Ps and he contours; Rutowski 1954),
+* ``Ps / fuel flow``              minimum fuel (fuel-specific energy; Rutowski 1954),
+* ``Ps / (fuel flow + w)``        minimum ``fuel + w * time`` (w = ``solver.cost_weight_kg_per_s``).
+
+In general ``Ps / r`` with the running cost rate ``r = a * fuel flow + b``:
+(a, b) = (0, 1), (1, 0), (1, w).
+
+Dash to a ground distance (``mission.dash_distance_m = D``): the climb is followed by level
+flight at the target state (speed ``V_d``, cost rate ``r_d`` = its fuel flow at the throttle
+that holds level flight, combined as above) until the ground distance D from the start is
+covered. The total cost is
+
+    J = integral r / Ps dhe + r_d (D - integral V / Ps dhe) / V_d
+      = r_d D / V_d + integral (r - r_d V / V_d) / Ps dhe,
+
+so, D being fixed, each energy level is now best spent at the point maximising
+``Ps / (r - r_d V / V_d)``: for minimum time ``Ps / (1 - V / V_d)``, for minimum fuel
+``Ps / (ff - ff_d V / V_d)`` (the range-aware energy climb of the energy-state literature on
+climb/dash, e.g. Schultz & Zagalsky, J. Aircraft 9(2), 1972, from memory; the derivation here is
+the one above). Speed covered during the climb is worth its dash-equivalent cost. Points where
+the bracket ``r - r_d V / V_d`` is not positive climb *and* cover distance more cheaply than the
+dash itself; there the problem is degenerate (the cheapest plan would cruise there rather than
+dash at the target), so such points are left out and, on any level that has no other climbing
+point, the plain objective is used (reported in the notes). ``r_d`` is taken at the mass at the
+end of the climb (first order). The "climb on the plain path, then dash" answer is computed too;
+both totals appear in the notes and the cheaper one is returned.
+
+Numerics
+--------
+Energy levels are spaced evenly from the start to the target energy
+(``solver.grid_altitude_points`` levels). Each constant-energy line is parametrised by true
+airspeed between the altitude bounds and sampled at ``solver.grid_speed_points`` points; the two
+best sampled peaks are refined by a bounded golden-section search (:func:`climbopt.energy.
+maximise_on_lines`), so a maximum on a limit boundary (stall, q, Mach, CAS, altitude, table data)
+is found to within a fraction of a millimetre per second: the path then rides that limit. Where
+the optimal point jumps between branches (e.g. subsonic to supersonic), the jump energy is found
+by bisection on the energy to 1/1024 of a level spacing and a constant-energy zoom is inserted
+there. Costs are integrated with the trapezoidal rule in he over levels and jump points.
+
+Mass: the optimum on each level is chosen at the mass the aircraft has there. The path is
+solved with the start mass on every level, the mass is integrated along it, and the path is
+solved again with that mass profile, until the fuel burnt changes by less than 2e-5 of itself (a
+fixed-point iteration of the march in he; the first passes on a coarse grid, then two or three
+on the full grid).
+
+Zooms take no time, no fuel and no distance in this model (its main idealisation): the real
+aircraft needs time to trade altitude for speed, so the energy-state time is an optimistic
+estimate, most so when a long final zoom is needed (Bryson, Desai & Hoffman 1969).
+
+Flight-path angle (approximate): ``dh/dt = Ps * dh/dhe`` along the path (dh/dhe from finite
+differences of the optimal altitude between levels), ``gamma = asin(dh/dt / V)``.
+"""
+
+from __future__ import annotations
+
+import math
+import time as _time
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from climbopt.airspeed import cas_from_mach
+from climbopt.atmosphere import G0
+from climbopt.energy import LIMIT_NAMES, energy_fields, maximise_on_lines
+from climbopt.results import Trajectory, Zoom
+
+__all__ = ["InfeasibleMission", "solve_energy_state"]
+
+_FT = 0.3048
+#: Bisection steps locating a branch jump between two energy levels (1/1024 of the spacing).
+_JUMP_BISECTIONS = 10
+#: Bisection steps locating the energy ceiling.
+_CEILING_BISECTIONS = 30
+#: Maximum passes of the mass fixed-point iteration, and its tolerance on fuel burnt
+#: (1 g plus 2e-5 of the fuel burnt).
+_MAX_PASSES = 8
+_MASS_TOL_KG = 1e-3
+_MASS_TOL_REL = 2e-5
+#: Coarse grid (levels, speeds) of the first mass passes.
+_COARSE = (60, 80)
+#: A start or target point closer than this to the locus point (altitude) needs no zoom [m].
+_ZOOM_MIN_M = 1.0
+
+
+class InfeasibleMission(RuntimeError):
+    """The mission cannot be flown with this aircraft and these limits.
+
+    Attributes
+    ----------
+    max_energy_height_m : float
+        Highest energy height [m] the aircraft can reach from the start (where the largest
+        specific excess power on the energy level falls to zero), or NaN when the cause is
+        something else (e.g. a target outside the envelope).
+    altitude_m, mach : float
+        Where on that energy level the largest Ps lies (NaN if not applicable).
+    """
+
+    def __init__(self, message: str, max_energy_height_m: float = math.nan,
+                 altitude_m: float = math.nan, mach: float = math.nan):
+        super().__init__(message)
+        self.max_energy_height_m = float(max_energy_height_m)
+        self.altitude_m = float(altitude_m)
+        self.mach = float(mach)
+
+
+@dataclass(frozen=True)
+class _Cost:
+    """Running cost rate r = a * fuel flow + b per second of climb; optional dash terms."""
+
+    fuel_weight: float
+    time_weight: float
+    dash_rate: float | None = None  # r_d, cost per second while dashing
+    dash_tas_m_s: float | None = None  # V_d
+
+
+@dataclass
+class _Problem:
+    """Everything fixed during one solve."""
+
+    model: object
+    limits: object
+    rating: str
+    throttle: float
+    h_bottom_m: float
+    h_top_m: float
+    points: int
+    refine: bool
+
+
+def _m_ft(x_m: float) -> str:
+    return f"{x_m:,.0f} m ({x_m / _FT:,.0f} ft)"
+
+
+# ------------------------------------------------------------------------------------ levels
+
+
+def _line_bounds(prob: _Problem, he: np.ndarray):
+    """Speed range [m/s] of each constant-energy line inside the altitude bounds."""
+    v_hi = np.sqrt(2.0 * G0 * np.maximum(he - prob.h_bottom_m, 0.0))
+    v_lo = np.sqrt(2.0 * G0 * np.maximum(he - prob.h_top_m, 0.0))
+    v_lo = np.maximum(v_lo, 1e-3 * v_hi)
+    return v_lo, v_hi
+
+
+def _fields(prob: _Problem, he, tas, mass):
+    """Energy fields on constant-energy lines: altitude from he and speed."""
+    h = he - tas**2 / (2.0 * G0)
+    return energy_fields(prob.model, h, tas, mass, limits=prob.limits, load_factor=1.0,
+                         throttle=prob.throttle, rating=prob.rating)
+
+
+def _value(f, cost: _Cost | None, dash: bool):
+    """Objective to maximise at points (``-inf`` where not allowed). ``cost=None``: plain Ps."""
+    ps = f.ps_m_s
+    ok = f.feasible & (ps > 0.0)
+    if cost is None:
+        return np.where(ok, ps, -np.inf)
+    denom = cost.fuel_weight * f.fuel_flow_kg_s + cost.time_weight
+    if dash:
+        denom = denom - cost.dash_rate * f.tas_m_s / cost.dash_tas_m_s
+    ok = ok & (denom > 0.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(ok, ps / denom, -np.inf)
+
+
+def _optimise_levels(prob: _Problem, he, mass, cost: _Cost | None, dash: bool,
+                     points: int | None = None):
+    """Best speed on each energy level; returns (tas, value, used_plain_fallback mask)."""
+    he = np.atleast_1d(np.asarray(he, dtype=float))
+    mass = np.broadcast_to(np.asarray(mass, dtype=float), he.shape)
+    v_lo, v_hi = _line_bounds(prob, he)
+    n = points or prob.points
+
+    def objective_for(use_dash, rows):
+        def obj(v, line):
+            r = rows[line]
+            f = _fields(prob, he[r][:, None], v, mass[r][:, None])
+            return _value(f, cost, use_dash)
+        return obj
+
+    all_rows = np.arange(he.size)
+    v, val = maximise_on_lines(objective_for(dash, all_rows), v_lo, v_hi, n,
+                               refine=prob.refine)
+    fallback = np.zeros(he.shape, dtype=bool)
+    if dash:
+        bad = ~np.isfinite(val)
+        if bad.any():
+            rows = np.flatnonzero(bad)
+            v2, val2 = maximise_on_lines(objective_for(False, rows), v_lo[rows], v_hi[rows], n,
+                                         refine=prob.refine)
+            v[rows] = v2
+            val[rows] = val2
+            fallback[rows] = np.isfinite(val2)
+    return v, val, fallback
+
+
+def _ceiling(prob: _Problem, he_ok: float, he_bad: float, mass: float):
+    """Bisect for the energy height where the largest Ps on the level reaches zero.
+
+    Returns (ceiling he [m], altitude [m] and Mach of the largest Ps there)."""
+    v_ok, _, _ = _optimise_levels(prob, he_ok, mass, None, False)
+    lo, hi = he_ok, he_bad
+    best_v = v_ok[0]
+    for _ in range(_CEILING_BISECTIONS):
+        if hi - lo < 0.01:
+            break
+        mid = 0.5 * (lo + hi)
+        v, val, _ = _optimise_levels(prob, mid, mass, None, False)
+        if np.isfinite(val[0]):
+            lo, best_v = mid, v[0]
+        else:
+            hi = mid
+    if not np.isfinite(best_v):  # nothing feasible even at the lower end: report the start
+        return lo, math.nan, math.nan
+    h = lo - best_v**2 / (2.0 * G0)
+    a = float(prob.model.atmosphere(h).speed_of_sound_m_s)
+    return lo, float(h), float(best_v / a)
+
+
+def _raise_ceiling(prob, he_levels, val, mass_levels, he_target):
+    """Raise InfeasibleMission for the first level without a climbing point."""
+    bad = np.flatnonzero(~np.isfinite(val))
+    k = int(bad[0])
+    if k == 0:
+        he_c, h_c, m_c = he_levels[0], math.nan, math.nan
+        # where on the start level is Ps largest (it is <= 0)?
+        v_lo, v_hi = _line_bounds(prob, he_levels[:1])
+
+        def obj(v, line):
+            f = _fields(prob, he_levels[line][:, None], v, mass_levels[line][:, None])
+            return np.where(f.feasible, f.ps_m_s, -np.inf)
+
+        v, ps = maximise_on_lines(obj, v_lo, v_hi, prob.points)
+        if np.isfinite(ps[0]):
+            h_c = float(he_c - v[0] ** 2 / (2.0 * G0))
+            m_c = float(v[0] / prob.model.atmosphere(h_c).speed_of_sound_m_s)
+        where = ("" if not np.isfinite(h_c) else
+                 f"; the largest specific excess power on that level, {ps[0]:.2f} m/s, is at "
+                 f"altitude {_m_ft(h_c)}, Mach {m_c:.2f}")
+        raise InfeasibleMission(
+            f"the aircraft cannot climb at all from the start: no feasible point on the start "
+            f"energy level {_m_ft(he_c)} has positive specific excess power{where}; the "
+            f"highest reachable energy height is the start's, {_m_ft(he_c)}",
+            he_c, h_c, m_c)
+    he_c, h_c, m_c = _ceiling(prob, he_levels[k - 1], he_levels[k], mass_levels[k - 1])
+    raise InfeasibleMission(
+        f"target energy height {_m_ft(he_target)} is not reachable: the highest reachable energy "
+        f"height is {_m_ft(he_c)} (energy ceiling, where specific excess power falls to zero), "
+        f"at altitude {_m_ft(h_c)}, Mach {m_c:.2f} (mass {mass_levels[k - 1]:,.0f} kg, rating "
+        f"{prob.rating!r}, limits applied)",
+        he_c, h_c, m_c)
+
+
+def _locate_jumps(prob, he_levels, v, mass_fn, cost, dash):
+    """Find branch jumps of the optimal locus between consecutive levels.
+
+    Returns a list of (k, he_jump, v_before, v_after): the jump lies between levels k and k+1.
+    """
+    h = he_levels - v**2 / (2.0 * G0)
+    dhe = he_levels[1] - he_levels[0] if he_levels.size > 1 else 1.0
+    cand = np.flatnonzero(np.abs(np.diff(h)) > 4.0 * dhe + 100.0)
+    if cand.size == 0:
+        return []
+    lo = he_levels[cand].copy()
+    hi = he_levels[cand + 1].copy()
+    v_a = v[cand].copy()
+    v_b = v[cand + 1].copy()
+    for _ in range(_JUMP_BISECTIONS):
+        mid = 0.5 * (lo + hi)
+        vm, _, _ = _optimise_levels(prob, mid, mass_fn(mid), cost, dash)
+        h_m = mid - vm**2 / (2.0 * G0)
+        h_a = lo - v_a**2 / (2.0 * G0)
+        h_b = hi - v_b**2 / (2.0 * G0)
+        to_a = np.abs(h_m - h_a) <= np.abs(h_m - h_b)
+        lo = np.where(to_a, mid, lo)
+        v_a = np.where(to_a, vm, v_a)
+        hi = np.where(to_a, hi, mid)
+        v_b = np.where(to_a, v_b, vm)
+    width = hi - lo
+    jump_h = np.abs((hi - v_b**2 / (2.0 * G0)) - (lo - v_a**2 / (2.0 * G0)))
+    out = []
+    for j, k in enumerate(cand):
+        if jump_h[j] > 10.0 + 20.0 * width[j]:
+            out.append((int(k), float(hi[j]), float(v_a[j]), float(v_b[j])))
+    return out
+
+
+# ------------------------------------------------------------------------------------ path
+
+
+@dataclass
+class _Path:
+    """Nodes of the optimal locus in increasing energy; ``zoom_after[i]``: i -> i+1 is a zoom."""
+
+    he: np.ndarray
+    tas: np.ndarray
+    zoom_after: np.ndarray
+    fallback_levels: int = 0
+
+    @property
+    def altitude(self):
+        return self.he - self.tas**2 / (2.0 * G0)
+
+
+def _solve_levels(prob, he_levels, mass_fn, cost, dash, he_target):
+    """Optimal speed on every level (raises InfeasibleMission above the energy ceiling)."""
+    mass_levels = mass_fn(he_levels)
+    v, val, fallback = _optimise_levels(prob, he_levels, mass_levels, cost, dash)
+    if not np.all(np.isfinite(val)):
+        _raise_ceiling(prob, he_levels, val, mass_levels, he_target)
+    return v, fallback
+
+
+def _build_path(he_levels, v, jumps, fallback) -> _Path:
+    """Locus nodes with each jump inserted as a pair of points at the jump energy."""
+    he_nodes, v_nodes, zoom = [], [], []
+    jump_at = {k: (he_j, va, vb) for k, he_j, va, vb in jumps}
+    for k in range(he_levels.size):
+        he_nodes.append(he_levels[k])
+        v_nodes.append(v[k])
+        zoom.append(False)
+        if k in jump_at:
+            he_j, va, vb = jump_at[k]
+            # both sides at the same energy he_j (the before-point moved up by < 1/1024 of a
+            # level spacing in energy, keeping its speed)
+            he_nodes += [he_j, he_j]
+            v_nodes += [va, vb]
+            zoom += [True, False]
+    return _Path(np.array(he_nodes), np.array(v_nodes), np.array(zoom),
+                 int(np.count_nonzero(fallback)))
+
+
+def _integrate(prob, path: _Path, mass_fn, start_mass):
+    """Time, fuel, distance, mass at the nodes (trapezoid in he; zooms free)."""
+    h = path.altitude
+    mass_guess = mass_fn(path.he)
+    f = energy_fields(prob.model, h, path.tas, mass_guess, limits=prob.limits, load_factor=1.0,
+                      throttle=prob.throttle, rating=prob.rating)
+    ps = np.asarray(f.ps_m_s, dtype=float)
+    ff = np.asarray(f.fuel_flow_kg_s, dtype=float)
+    inv = 1.0 / ps
+    dhe = np.diff(path.he)
+    free = path.zoom_after[:-1]
+    seg = lambda g: np.where(free, 0.0, 0.5 * dhe * (g[:-1] + g[1:]))  # noqa: E731
+    t = np.concatenate([[0.0], np.cumsum(seg(inv))])
+    fuel = np.concatenate([[0.0], np.cumsum(seg(ff * inv))])
+    dist = np.concatenate([[0.0], np.cumsum(seg(path.tas * inv))])
+    return dict(time=t, fuel=fuel, distance=dist, mass=start_mass - fuel, fields=f)
+
+
+def _mass_function(he_nodes, mass_nodes):
+    he_nodes = np.asarray(he_nodes, dtype=float)
+    mass_nodes = np.asarray(mass_nodes, dtype=float)
+
+    def fn(he):
+        return np.interp(he, he_nodes, mass_nodes)
+
+    return fn
+
+
+# ------------------------------------------------------------------------------------ dash
+
+
+def _dash_throttle(prob, altitude_m, tas_m_s, mass_kg):
+    """Throttle and fuel flow holding level unaccelerated flight (thrust = drag) at a point.
+
+    Thrust is linear in throttle in the aircraft model, so throttle = D / T(1)."""
+    f = energy_fields(prob.model, altitude_m, tas_m_s, mass_kg, limits=prob.limits,
+                      load_factor=1.0, throttle=1.0, rating=prob.rating)
+    drag = float(f.drag_n)
+    thrust_full = float(f.thrust_n)
+    throttle = drag / thrust_full if thrust_full > 0 else math.inf
+    return throttle, drag, thrust_full, float(f.mach)
+
+
+def _dash(prob, target, mass0, distance_m, steps=40):
+    """Level flight at the target state over ``distance_m``; mass updated (RK4 in distance).
+
+    Returns dict with arrays distance, time, mass, fuel, throttle (relative to the dash start)."""
+    h, v = target.altitude_m, target.tas_m_s
+    model = prob.model
+
+    def rates(m):
+        thr, drag, thrust, mach = _dash_throttle(prob, h, v, m)
+        if thr > prob.throttle + 1e-12:
+            raise InfeasibleMission(
+                f"the dash at the target state (altitude {_m_ft(h)}, Mach {mach:.2f}) needs "
+                f"{drag:,.0f} N of thrust to hold level flight, more than the {thrust * prob.throttle:,.0f} N "
+                f"available with rating {prob.rating!r}",
+                math.nan, h, mach)
+        thr_used = max(thr, model.throttle_min)
+        ff = float(model.fuel_flow_kg_s(h, mach, thr_used, prob.rating))
+        return ff, thr_used
+
+    x = np.linspace(0.0, max(distance_m, 0.0), steps + 1)
+    m = np.empty_like(x)
+    m[0] = mass0
+    for i in range(steps):
+        dx = x[i + 1] - x[i]
+        k1 = -rates(m[i])[0] / v
+        k2 = -rates(m[i] + 0.5 * dx * k1)[0] / v
+        k3 = -rates(m[i] + 0.5 * dx * k2)[0] / v
+        k4 = -rates(m[i] + dx * k3)[0] / v
+        m[i + 1] = m[i] + dx * (k1 + 2 * k2 + 2 * k3 + k4) / 6.0
+    thr = np.array([rates(mi)[1] for mi in m])
+    return dict(distance=x, time=x / v, mass=m, fuel=mass0 - m, throttle=thr)
+
+
+# ------------------------------------------------------------------------------------ solve
+
+
+def _cost_for(objective: str, w: float) -> _Cost:
+    if objective == "time":
+        return _Cost(0.0, 1.0)
+    if objective == "fuel":
+        return _Cost(1.0, 0.0)
+    return _Cost(1.0, float(w))
+
+
+def _solve_climb(prob, he_levels, start_mass, cost, dash_info, he_target, progress, label):
+    """Mass fixed-point passes: coarse grid first, then the full grid with the branch jumps
+    located on every pass. Returns (path, integration, number of passes, cost used)."""
+    dash = dash_info is not None
+    mass_fn = _mass_function([he_levels[0], he_levels[-1]], [start_mass, start_mass])
+    cost_now = cost
+    coarse = replace(prob, points=min(prob.points, _COARSE[1]))
+    coarse_levels = np.linspace(he_levels[0], he_levels[-1], min(he_levels.size, _COARSE[0]))
+    passes = 0
+    for grid_prob, levels, tol, jumps_on in ((coarse, coarse_levels, 10 * _MASS_TOL_REL, False),
+                                             (prob, he_levels, _MASS_TOL_REL, True)):
+        last_fuel = None
+        for _ in range(_MAX_PASSES):
+            passes += 1
+            v, fallback = _solve_levels(grid_prob, levels, mass_fn, cost_now, dash, he_target)
+            jumps = (_locate_jumps(grid_prob, levels, v, mass_fn, cost_now, dash)
+                     if jumps_on else [])
+            path = _build_path(levels, v, jumps, fallback)
+            integ = _integrate(grid_prob, path, mass_fn, start_mass)
+            mass_fn = _mass_function(path.he, integ["mass"])
+            fuel = integ["fuel"][-1]
+            if progress:
+                progress(f"energy-state {label}: pass {passes} ({levels.size} levels), fuel "
+                         f"{fuel:.3f} kg", min(0.9, 0.15 * passes))
+            if dash:
+                cost_now = replace(cost_now, dash_rate=dash_info(start_mass - fuel))
+            if last_fuel is not None and abs(fuel - last_fuel) < _MASS_TOL_KG + tol * fuel:
+                break
+            last_fuel = fuel
+    return path, integ, passes, cost_now
+
+
+def solve_energy_state(scenario, objective: str = "time", *, model=None, progress=None,
+                       refine: bool = True) -> Trajectory:
+    """Energy-state climb (and dash) path for ``objective`` in "time" | "fuel" | "weighted".
+
+    Parameters
+    ----------
+    scenario : climbopt.scenario.Scenario
+        Start and target points, limits, rating, optional dash distance; grid sizes from
+        ``scenario.solver`` (energy levels = ``grid_altitude_points``, samples per level =
+        ``grid_speed_points``).
+    objective : str
+        "time" (minimum time), "fuel" (minimum fuel) or "weighted" (minimum
+        fuel + ``solver.cost_weight_kg_per_s`` * time).
+    model : AircraftModel, optional
+        Prebuilt model (built from the scenario otherwise).
+    progress : callable, optional
+        ``progress(message, fraction)``.
+    refine : bool
+        Refine each level's optimum by golden-section search (True; False only to study the
+        grid dependence).
+
+    Returns
+    -------
+    Trajectory
+        ``method="energy-state"``; per-point table over energy levels (and the dash), zooms,
+        notes. See the module docstring for the method and its assumptions.
+
+    Raises
+    ------
+    InfeasibleMission
+        Target energy above the energy ceiling (names the highest reachable energy height and
+        where it lies), target outside the envelope, target below the start energy, or a dash
+        that cannot be held in level flight.
+    """
+    t_wall = _time.perf_counter()
+    if objective not in ("time", "fuel", "weighted"):
+        raise ValueError(f"objective must be 'time', 'fuel' or 'weighted', got {objective!r}")
+    if model is None:
+        from climbopt.aircraft import build_model
+
+        model = build_model(scenario)
+    lim = scenario.limits
+    rating = scenario.mission.rating or model.default_rating
+    d = model.domain
+    h_bottom = max(d.altitude_min_m, lim.min_altitude_m)
+    h_top = d.altitude_max_m if lim.max_altitude_m is None else min(d.altitude_max_m,
+                                                                      lim.max_altitude_m)
+    prob = _Problem(model, lim, rating, float(model.throttle_max), h_bottom, h_top,
+                    max(3, int(scenario.solver.grid_speed_points)), refine)
+    n_levels = max(2, int(scenario.solver.grid_altitude_points))
+    start, target = scenario.mission.start, scenario.mission.target
+    start_mass = float(model.mass_kg)
+    he0 = start.altitude_m + start.tas_m_s**2 / (2.0 * G0)
+    hef = target.altitude_m + target.tas_m_s**2 / (2.0 * G0)
+    notes: list[str] = []
+
+    # the target must be a feasible flight point (1 g, full rating)
+    ft = energy_fields(model, target.altitude_m, target.tas_m_s, start_mass, limits=lim,
+                       throttle=prob.throttle, rating=rating)
+    if not bool(ft.feasible):
+        broken = [n for n in LIMIT_NAMES if n in ft.limits and not bool(ft.limits[n])]
+        raise InfeasibleMission(
+            f"the target point (altitude {_m_ft(target.altitude_m)}, Mach {float(ft.mach):.2f}) "
+            f"lies outside the flight envelope: {', '.join(broken)} limit(s) not met",
+            math.nan, target.altitude_m, float(ft.mach))
+    if hef < he0 - 0.5:
+        raise InfeasibleMission(
+            f"the target energy height {_m_ft(hef)} is below the start's {_m_ft(he0)}: the "
+            f"energy-state climb solver only climbs (no descent model)", he0)
+
+    w = scenario.solver.cost_weight_kg_per_s
+    cost = _cost_for(objective, w)
+    he_levels = np.linspace(he0, max(hef, he0 + 1e-6), n_levels)
+    if progress:
+        progress(f"energy-state {objective}: {n_levels} energy levels x {prob.points} speeds", 0.0)
+
+    dash_m = scenario.mission.dash_distance_m
+    dash_info = None
+    if dash_m:
+        def dash_info(mass_kg):
+            thr, _, _, mach = _dash_throttle(prob, target.altitude_m, target.tas_m_s, mass_kg)
+            ff = float(model.fuel_flow_kg_s(target.altitude_m, mach,
+                                            min(max(thr, model.throttle_min), prob.throttle),
+                                            rating))
+            return cost.fuel_weight * ff + cost.time_weight
+
+        cost = replace(cost, dash_rate=dash_info(start_mass), dash_tas_m_s=target.tas_m_s)
+
+    plain = _solve_climb(prob, he_levels, start_mass, cost, None, hef, progress, objective)
+    chosen = plain
+    variant = "plain"
+    if dash_m:
+        aware = _solve_climb(prob, he_levels, start_mass, cost, dash_info, hef, progress,
+                             objective + " (range-aware)")
+        totals = {}
+        for name, (path, integ, _, _) in (("plain", plain), ("range-aware", aware)):
+            x_c = integ["distance"][-1]
+            dash = _dash(prob, target, start_mass - integ["fuel"][-1], dash_m - x_c)
+            totals[name] = (integ["time"][-1] + dash["time"][-1],
+                            integ["fuel"][-1] + dash["fuel"][-1], x_c)
+        j = {k: cost.fuel_weight * v[1] + cost.time_weight * v[0] for k, v in totals.items()}
+        variant = "range-aware" if j["range-aware"] <= j["plain"] else "plain"
+        chosen = aware if variant == "range-aware" else plain
+        label = {"time": "time", "fuel": "fuel", "weighted": f"fuel + {w:g} kg/s x time"}[objective]
+        for name in ("range-aware", "plain"):
+            tt, ff, xc = totals[name]
+            notes.append(
+                f"dash to {dash_m / 1000:.1f} km: {name} energy climb then dash: total time "
+                f"{tt:.1f} s, fuel {ff:.1f} kg (climb covers {xc / 1000:.1f} km)")
+        notes.append(
+            f"dash: the {variant} climb is returned (lower {label}); the range-aware climb "
+            "maximises Ps / (r - r_d V / V_d) on each energy level (see climbopt.rutowski)")
+        if aware[0].fallback_levels:
+            notes.append(
+                f"dash: on {aware[0].fallback_levels} energy levels every climbing point covers "
+                "distance more cheaply than the dash itself (degenerate range-aware objective); "
+                "the plain objective was used there")
+
+    path, integ, passes, cost_used = chosen
+    table, zooms = _table(prob, scenario, path, integ, start, target, start_mass)
+    if dash_m:
+        x_c = table["distance_m"][-1]
+        if x_c >= dash_m:
+            notes.append(
+                f"dash: the climb alone covers {x_c / 1000:.1f} km, more than the dash distance "
+                f"{dash_m / 1000:.1f} km; no dash leg is flown (the target is reached beyond it)")
+        else:
+            dash = _dash(prob, target, table["mass_kg"][-1], dash_m - x_c)
+            table = _append_dash(prob, table, dash, target)
+            notes.append(
+                f"dash: level flight at the target state for {(dash_m - x_c) / 1000:.1f} km, "
+                f"{dash['time'][-1]:.1f} s, {dash['fuel'][-1]:.1f} kg, throttle "
+                f"{dash['throttle'][0]:.3f} (thrust = drag)")
+
+    notes += _notes(prob, scenario, path, integ, passes, n_levels, objective, w)
+    fuel_cap = getattr(model, "fuel_capacity_kg", None)
+    if fuel_cap is not None and table["fuel_used_kg"][-1] > fuel_cap:
+        notes.append(f"fuel burnt {table['fuel_used_kg'][-1]:,.0f} kg exceeds the fuel capacity "
+                     f"{fuel_cap:,.0f} kg")
+    if progress:
+        progress(f"energy-state {objective}: done", 1.0)
+    status = (f"energy-state path: {n_levels} levels x {prob.points} speeds, {passes} mass "
+              f"passes, {len(zooms)} zooms")
+    return Trajectory("energy-state", objective, table, converged=True, status=status,
+                      iterations=0, wall_s=_time.perf_counter() - t_wall, zooms=zooms,
+                      notes=notes)
+
+
+def _gamma_along(path: _Path, ps, tas):
+    """Approximate flight-path angle: dh/dt = Ps dh/dhe on each zoom-free segment."""
+    h = path.altitude
+    dh_dhe = np.zeros_like(h)
+    breaks = np.flatnonzero(path.zoom_after) + 1
+    for seg in np.split(np.arange(h.size), breaks):
+        if seg.size >= 2:
+            dh_dhe[seg] = np.gradient(h[seg], path.he[seg])
+    return np.arcsin(np.clip(ps * dh_dhe / tas, -1.0, 1.0))
+
+
+def _table(prob, scenario, path, integ, start, target, start_mass):
+    """Per-point table: start point, locus nodes (with jump zooms), target point."""
+    model = prob.model
+    f = integ["fields"]
+    mass = integ["mass"]
+    ps = np.asarray(f.ps_m_s, dtype=float)
+    # Ps at the integrated mass (the optimum was chosen at the previous pass's mass)
+    f_m = energy_fields(model, path.altitude, path.tas, mass, limits=prob.limits, load_factor=1.0,
+                        throttle=prob.throttle, rating=prob.rating)
+    ps = np.asarray(f_m.ps_m_s, dtype=float)
+    cols = {
+        "time_s": integ["time"],
+        "altitude_m": path.altitude,
+        "tas_m_s": path.tas,
+        "energy_height_m": path.he,
+        "ps_m_s": ps,
+        "flight_path_angle_rad": _gamma_along(path, ps, path.tas),
+        "mass_kg": mass,
+        "fuel_used_kg": integ["fuel"],
+        "distance_m": integ["distance"],
+        "throttle": np.full(path.he.size, prob.throttle),
+    }
+    zooms = []
+    jump_idx = np.flatnonzero(path.zoom_after)
+    offset = 0
+    h = path.altitude
+
+    def row(h_, v_, he_, gamma, idx_from):
+        fr = energy_fields(model, h_, v_, cols["mass_kg"][idx_from], limits=prob.limits,
+                           throttle=prob.throttle, rating=prob.rating)
+        return {"time_s": cols["time_s"][idx_from], "altitude_m": h_, "tas_m_s": v_,
+                "energy_height_m": he_, "ps_m_s": float(fr.ps_m_s), "flight_path_angle_rad": gamma,
+                "mass_kg": cols["mass_kg"][idx_from], "fuel_used_kg": cols["fuel_used_kg"][idx_from],
+                "distance_m": cols["distance_m"][idx_from], "throttle": prob.throttle}
+
+    def insert(cols, i, r):
+        return {k: np.insert(np.asarray(v, dtype=float), i, r[k]) for k, v in cols.items()}
+
+    def append(cols, r):
+        return {k: np.append(np.asarray(v, dtype=float), r[k]) for k, v in cols.items()}
+
+    # start: off the locus -> initial zoom
+    if abs(start.altitude_m - h[0]) > _ZOOM_MIN_M:
+        cols = insert(cols, 0, row(start.altitude_m, start.tas_m_s, path.he[0],
+                                   start.flight_path_angle_rad, 0))
+        zooms.append(Zoom(float(path.he[0]), start.altitude_m, start.tas_m_s, float(h[0]),
+                          float(path.tas[0]), "dive" if h[0] < start.altitude_m else "climb",
+                          "initial", 1))
+        offset = 1
+    for i in jump_idx:
+        zooms.append(Zoom(float(path.he[i]), float(h[i]), float(path.tas[i]), float(h[i + 1]),
+                          float(path.tas[i + 1]), "dive" if h[i + 1] < h[i] else "climb",
+                          "branch jump", int(i + 1 + offset)))
+    # target: off the locus -> final zoom
+    if abs(target.altitude_m - h[-1]) > _ZOOM_MIN_M:
+        last = cols["time_s"].size - 1
+        r = row(target.altitude_m, target.tas_m_s, path.he[-1], target.flight_path_angle_rad, last)
+        zooms.append(Zoom(float(path.he[-1]), float(h[-1]), float(path.tas[-1]),
+                          target.altitude_m, target.tas_m_s,
+                          "dive" if target.altitude_m < h[-1] else "climb", "final", last + 1))
+        cols = append(cols, r)
+    zooms.sort(key=lambda z: z.index)
+    return _finish_columns(model, cols), zooms
+
+
+def _finish_columns(model, cols):
+    """Add Mach and CAS from altitude and TAS (model atmosphere; compressible pitot formulas)."""
+    atm = model.atmosphere(cols["altitude_m"])
+    mach = cols["tas_m_s"] / atm.speed_of_sound_m_s
+    cols["mach"] = mach
+    cols["cas_m_s"] = np.asarray(cas_from_mach(mach, atm.pressure_pa), dtype=float)
+    from climbopt.results import COLUMNS
+
+    return {k: np.asarray(cols[k], dtype=float) for k in COLUMNS}
+
+
+def _append_dash(prob, table, dash, target):
+    n = dash["distance"].size - 1  # skip the first point (same as the climb's end)
+    t0, x0, f0 = table["time_s"][-1], table["distance_m"][-1], table["fuel_used_kg"][-1]
+    he_t = target.altitude_m + target.tas_m_s**2 / (2.0 * G0)
+    ext = {
+        "time_s": t0 + dash["time"][1:],
+        "altitude_m": np.full(n, target.altitude_m),
+        "tas_m_s": np.full(n, target.tas_m_s),
+        "energy_height_m": np.full(n, he_t),
+        "ps_m_s": np.zeros(n),
+        "flight_path_angle_rad": np.zeros(n),
+        "mass_kg": dash["mass"][1:],
+        "fuel_used_kg": f0 + dash["fuel"][1:],
+        "distance_m": x0 + dash["distance"][1:],
+        "throttle": dash["throttle"][1:],
+    }
+    ext = _finish_columns(prob.model, ext)
+    return {k: np.concatenate([table[k], ext[k]]) for k in table}
+
+
+def _notes(prob, scenario, path, integ, passes, n_levels, objective, w):
+    """Assumptions and active limits, in words."""
+    notes = [
+        "energy-state model (Rutowski 1954; Bryson, Desai & Hoffman 1969): altitude and speed "
+        "are traded instantly at constant energy; zooms take no time, no fuel and no distance, "
+        "so the time is an optimistic estimate when zooms are long",
+        f"{n_levels} energy levels, {prob.points} speeds per level, optimum refined by "
+        f"golden-section search; mass updated along the path ({passes} passes)",
+        "distance = integral V / Ps dhe (cos(gamma) taken as 1); flight-path angle from "
+        "dh/dt = Ps dh/dhe along the path (approximate)",
+    ]
+    if objective == "weighted":
+        notes.append(f"weighted objective: fuel + {w:g} kg/s x time")
+    notes += _active_limits(prob, path, integ)
+    return notes
+
+
+def _active_limits(prob, path, integ):
+    """Say which limits the locus rides (the optimum sits on their boundary)."""
+    f = integ["fields"]
+    lim = prob.limits
+    d = prob.model.domain
+    h = path.altitude
+    tight = {}
+    rel = 2e-4
+    tight["stall (CLmax)"] = np.asarray(f.cl) >= (1 - rel) * np.asarray(f.cl_max)
+    if lim.max_dynamic_pressure_pa is not None:
+        tight["dynamic pressure"] = f.dynamic_pressure_pa >= (1 - rel) * lim.max_dynamic_pressure_pa
+    if lim.max_mach is not None:
+        tight["Mach"] = f.mach >= (1 - rel) * lim.max_mach
+    if lim.max_cas_m_s is not None:
+        tight["CAS"] = f.cas_m_s >= (1 - rel) * lim.max_cas_m_s
+    if lim.cas_restriction is not None:
+        c, below = lim.cas_restriction
+        tight["CAS restriction"] = (f.cas_m_s >= (1 - rel) * c) & (h < below)
+    tight["minimum altitude"] = h <= prob.h_bottom_m + 1.0
+    tight["maximum altitude"] = h >= prob.h_top_m - 1.0
+    tight["table Mach range"] = (f.mach >= d.mach_max * (1 - rel)) | (f.mach <= d.mach_min + 1e-6)
+    out = []
+    for name, m in tight.items():
+        m = np.asarray(m, dtype=bool)
+        if m.any():
+            he = path.he[m]
+            out.append(f"path rides the {name} limit on {int(m.sum())} of {m.size} points "
+                       f"(energy height {he.min():,.0f} to {he.max():,.0f} m)")
+    return out
