@@ -72,6 +72,10 @@ class Trajectory:
         Re-simulation check (collocation): ``final_state_miss``, ``max_path_violation``, ``ok``.
     notes : list[str]
         Anything the user must know (assumptions used, limits active, dash leg details).
+    controls : dict[str, np.ndarray] | None
+        Control histories at the table's points (collocation): ``lift_coefficient`` [-],
+        ``throttle`` [-], ``load_factor`` [-], ``dynamic_pressure_pa`` [Pa] and, with thrust
+        along the body axis, ``angle_of_attack_rad`` [rad]. Used by :mod:`climbopt.verify`.
     """
 
     method: str
@@ -84,6 +88,7 @@ class Trajectory:
     zooms: list[Zoom] = field(default_factory=list)
     verification: dict | None = None
     notes: list[str] = field(default_factory=list)
+    controls: dict | None = None
 
     def __post_init__(self):
         n = None
