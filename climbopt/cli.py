@@ -3,6 +3,10 @@
 
 from __future__ import annotations
 
+import sys
+import time
+from pathlib import Path
+
 import click
 
 from climbopt import CAUTION, __version__
@@ -47,3 +51,347 @@ def check(scenario_file: str):
     click.echo("")
     click.echo(f"OK: {scenario_file} is a valid scenario.")
     click.echo(f"Caution: {CAUTION}")
+
+
+# ---- climbopt run / climbopt map ------------------------------------------------------------
+# (run and map: solve, report, write the output folder atomically; only this module prints)
+
+EXIT_OK, EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_SOLVER_FAILURE = 0, 2, 3, 4
+
+
+def _fail(message: str, code: int) -> None:
+    """Print an error (no traceback) and leave with ``code``."""
+    click.echo(f"error: {message}", err=True)
+    raise SystemExit(code)
+
+
+def _load_for_command(scenario_file: str):
+    """Load a scenario, turning every input problem into exit code 2."""
+    from climbopt.scenario import ScenarioError, load_scenario
+
+    try:
+        return load_scenario(scenario_file)
+    except ScenarioError as exc:
+        n = len(exc.problems)
+        lines = [f"{exc.path}: {n} problem{'s' if n != 1 else ''} found:"]
+        lines += [f"  {fld}: {msg}" for fld, msg in exc.problems]
+        _fail("\n".join(lines), EXIT_BAD_INPUT)
+    except (OSError, ValueError) as exc:
+        _fail(f"{scenario_file}: {exc}", EXIT_BAD_INPUT)
+
+
+class _Progress:
+    """Progress bars on stderr (tqdm) for the slow steps; silent when disabled.
+
+    ``callback(label)`` returns a ``progress(message, fraction)`` callable as the solvers expect.
+    """
+
+    def __init__(self, enabled: bool):
+        self.enabled = enabled
+        self._bar = None
+
+    def callback(self, label: str):
+        if not self.enabled:
+            return None
+
+        def progress(message: str, fraction: float | None = None):
+            from tqdm import tqdm
+
+            if self._bar is None:
+                self._bar = tqdm(total=100, desc=label, leave=False, file=sys.stderr,
+                                 bar_format="{desc}: {percentage:3.0f}%|{bar}| {postfix}")
+            self._bar.set_postfix_str(str(message)[:60], refresh=False)
+            if fraction is not None:
+                self._bar.n = int(round(100 * min(max(float(fraction), 0.0), 1.0)))
+            self._bar.refresh()
+
+        return progress
+
+    def done(self):
+        if self._bar is not None:
+            self._bar.close()
+            self._bar = None
+
+    def step(self, label: str):
+        """Announce one step without a fraction (e.g. writing plots)."""
+        cb = self.callback(label)
+        if cb:
+            cb(label, None)
+        return cb
+
+
+def _progress_enabled(quiet: bool) -> bool:
+    return (not quiet) and sys.stderr.isatty()
+
+
+def _default_out(scenario_file: str, suffix: str = "") -> Path:
+    return Path("out") / (Path(scenario_file).stem + suffix)
+
+
+def _solve_all(scenario, model, method: str, objectives: list[str], bar: _Progress):
+    """Run the solvers. Returns (results, errors, exit_code). Raises InfeasibleMission."""
+    from climbopt.report import FailedRun
+    from climbopt.rutowski import solve_energy_state
+
+    results, errors = [], []
+    energy = {}
+    for obj in objectives:
+        energy[obj] = solve_energy_state(scenario, obj, model=model,
+                                         progress=bar.callback(f"energy-state, minimum {obj}"))
+        bar.done()
+        if method in ("energy", "both"):
+            results.append(energy[obj])
+    code = EXIT_OK
+    if method in ("collocation", "both"):
+        from climbopt.collocation import SolverFailure, solve_collocation
+        from climbopt.verify import resimulate
+
+        for obj in objectives:
+            t0 = time.perf_counter()
+            try:
+                traj = solve_collocation(scenario, obj, model=model, guess=energy[obj],
+                                         progress=bar.callback(f"collocation, minimum {obj}"))
+                bar.done()
+                if traj.verification is None:
+                    traj.verification = resimulate(traj, scenario, model=model)
+                results.append(traj)
+            except SolverFailure as exc:
+                bar.done()
+                code = EXIT_SOLVER_FAILURE
+                status = str(getattr(exc, "status", "") or "failed")
+                iterations = int(getattr(exc, "iterations", 0) or 0)
+                errors.append(f"collocation, minimum {obj}: not converged ({status}, "
+                              f"{iterations} iterations): {exc}")
+                iterate = getattr(exc, "trajectory", None)
+                if iterate is not None:
+                    iterate.converged = False
+                    iterate.notes = list(iterate.notes) + [
+                        "NOT CONVERGED: last iterate of a failed solve, not an optimum"]
+                    results.append(iterate)
+                else:
+                    results.append(FailedRun("collocation", obj, status=status, message=str(exc),
+                                             iterations=iterations,
+                                             wall_s=time.perf_counter() - t0))
+                if method == "collocation":
+                    fallback = energy[obj]
+                    fallback.notes = list(fallback.notes) + [
+                        "energy-state result reported because the collocation solve failed"]
+                    results.append(fallback)
+    return results, errors, code
+
+
+def _write_run_folder(folder: Path, scenario, scenario_file, results, records, errors, code,
+                      units, model, bar):
+    """Write every output of ``run`` into ``folder`` (a temporary folder); return the summary
+    document and the report text."""
+    from climbopt import plots, report
+    from climbopt.energy import build_energy_map
+    from climbopt.results import Trajectory
+    from climbopt.schedule import climb_schedule, default_step_m
+
+    trajs = [r for r in results if isinstance(r, Trajectory)]
+    schedules, files = {}, {}
+    dt = scenario.atmosphere.temperature_offset_k
+    restriction = scenario.limits.cas_restriction
+    for traj in trajs:
+        stem = report.result_stem(traj.method, traj.objective)
+        report.write_trajectory_csv(folder / f"{stem}.csv", traj, units, scenario.name)
+        files[stem] = [f"{stem}.csv"]
+        if traj.converged:
+            sched = climb_schedule(traj, default_step_m(units), temperature_offset_k=dt,
+                                   fit_above_m=restriction[1] if restriction else None)
+            schedules[stem] = sched
+            report.write_schedule_csv(folder / f"{stem}_schedule.csv", sched, units,
+                                      scenario.name)
+            files[stem].append(f"{stem}_schedule.csv")
+    report.write_comparison_csv(folder / "comparison.csv", records, units, scenario.name)
+
+    bar.step("plots")
+    figures = []
+    if trajs:
+        emap = build_energy_map(scenario, model=model, shape=(160, 160))
+        for name, fn, x in (("ps_mach", plots.plot_ps_map, "mach"),
+                            ("ps_tas", plots.plot_ps_map, "tas"),
+                            ("fs_mach", plots.plot_fs_map, "mach")):
+            ax = fn(emap, trajs, x=x, units=units)
+            figures += plots.save_figure(ax.figure, folder / name)
+        axes = plots.plot_time_histories(trajs, units=units)
+        axes[0].set_title(scenario.name, fontsize=10)
+        figures += plots.save_figure(axes[0].figure, folder / "time_histories")
+    bar.done()
+
+    text = [f"climbopt {__version__}: {scenario.name}", "", report.format_table(records, units)]
+    for stem, sched in schedules.items():
+        text += ["", report.format_schedule(sched, units)]
+    text += [""] + [f"error: {e}" for e in errors] + [f"Caution: {CAUTION}"]
+    report.write_text_atomic(folder / "report.txt", "\n".join(text) + "\n")
+    doc = report.summary_document(
+        records, scenario_name=scenario.name, scenario_path=scenario_file, units=units,
+        schedules=schedules, files=files, exit_code=code, errors=errors)
+    doc["figures"] = sorted(p.name for p in figures)
+    report.write_summary_json(folder / "summary.json", doc)
+    return doc, schedules
+
+
+@cli.command("run")
+@click.argument("scenario_file", metavar="SCENARIO")
+@click.option("--method", type=click.Choice(["energy", "collocation", "both"]), default="both",
+              show_default=True, help="energy-state, direct collocation (warm-started from the "
+                                      "energy-state path of the same objective), or both.")
+@click.option("--objective", type=click.Choice(["time", "fuel", "both"]), default="both",
+              show_default=True, help="Minimum time, minimum fuel, or both.")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
+              help="Output folder [default: out/<scenario file stem>]. Replaced as a whole.")
+@click.option("--units", type=click.Choice(["si", "us"]), default="si", show_default=True,
+              help="Units of printed and written tables and plots (us: ft, kt, lb, nmi).")
+@click.option("--quiet", is_flag=True, help="No progress bars and no list of files.")
+@click.option("--json", "as_json", is_flag=True,
+              help="Print the summary as JSON on stdout (and nothing else).")
+def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
+    """Solve SCENARIO, print the comparison table and write the results folder.
+
+    Writes summary.json, comparison.csv, report.txt, a per-point CSV and a climb schedule CSV for
+    each result, and the plots (PNG and SVG). Exit codes: 0 ok, 2 bad input, 3 infeasible
+    mission, 4 solver failure (the energy-state results are still written).
+    """
+    from climbopt import report
+    from climbopt.aircraft import build_model
+    from climbopt.rutowski import InfeasibleMission
+
+    scenario = _load_for_command(scenario_file)
+    out = Path(out_dir) if out_dir else _default_out(scenario_file)
+    objectives = ["time", "fuel"] if objective == "both" else [objective]
+    bar = _Progress(_progress_enabled(quiet or as_json))
+    try:
+        model = build_model(scenario)
+    except ValueError as exc:
+        _fail(f"{scenario_file}: the aircraft model cannot be built: {exc}", EXIT_BAD_INPUT)
+    try:
+        results, errors, code = _solve_all(scenario, model, method, objectives, bar)
+    except InfeasibleMission as exc:
+        bar.done()
+        _fail(f"{scenario_file}: infeasible mission: {exc}", EXIT_INFEASIBLE)
+    records = report.comparison(results)
+    with report.atomic_output_dir(out) as folder:
+        doc, schedules = _write_run_folder(folder, scenario, scenario_file, results, records,
+                                           errors, code, units, model, bar)
+    if as_json:
+        click.echo(report.dumps_summary(doc))
+    else:
+        click.echo(f"{scenario.name} ({units.upper()} units)")
+        click.echo("")
+        click.echo(report.format_table(records, units))
+        click.echo("")
+        for stem, sched in schedules.items():
+            click.echo(f"{sched.method}, minimum {sched.objective}: "
+                       f"{report.schedule_summary(sched, units)}")
+        if not quiet:
+            click.echo(f"\nWrote {out}/: summary.json, comparison.csv, report.txt, schedules "
+                       f"(*_schedule.csv), per-point tables, plots ({len(doc['figures'])} files)")
+    for e in errors:
+        click.echo(f"error: {e}", err=True)
+    if code == EXIT_SOLVER_FAILURE:
+        click.echo("error: the energy-state results were still written and are labelled as "
+                   "such; unconverged rows are marked and not ranked.", err=True)
+    if not as_json:
+        click.echo(f"Caution: {CAUTION}")
+    if code:
+        raise SystemExit(code)
+
+
+@cli.command("map")
+@click.argument("scenario_file", metavar="SCENARIO")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
+              help="Output folder [default: out/<scenario file stem>-map]. Replaced as a whole.")
+@click.option("--units", type=click.Choice(["si", "us"]), default="si", show_default=True,
+              help="Units of the plots and of the CSV (us: ft, kt, lb, ft/min).")
+@click.option("--quiet", is_flag=True, help="No progress and no list of files.")
+def map_command(scenario_file, out_dir, units, quiet):
+    """Write the energy-state fields of SCENARIO (Ps, fuel flow, Ps / fuel flow, envelope) at
+    the start mass over altitude x true airspeed, as energy_map.npz and .csv, and their plots."""
+    import numpy as np
+
+    from climbopt import plots, report
+    from climbopt.aircraft import build_model
+    from climbopt.energy import build_energy_map
+
+    scenario = _load_for_command(scenario_file)
+    out = Path(out_dir) if out_dir else _default_out(scenario_file, "-map")
+    bar = _Progress(_progress_enabled(quiet))
+    try:
+        model = build_model(scenario)
+        emap = build_energy_map(scenario, model=model)
+    except ValueError as exc:
+        _fail(f"{scenario_file}: the energy map cannot be built: {exc}", EXIT_BAD_INPUT)
+    f = emap.fields
+    with report.atomic_output_dir(out) as folder:
+        bar.step("energy map")
+        arrays = {
+            "altitude_m": emap.altitude_m, "tas_m_s": np.asarray(emap.tas_m_s),
+            "mach": np.asarray(emap.mach), "energy_height_m": np.asarray(emap.energy_height_m),
+            "ps_m_s": np.asarray(f.ps_m_s), "fuel_flow_kg_s": np.asarray(f.fuel_flow_kg_s),
+            "fuel_specific_energy_m_kg": np.asarray(f.fuel_specific_energy_m_kg),
+            "feasible": np.asarray(emap.feasible),
+        }
+        arrays.update({f"limit_{k}": np.asarray(v) for k, v in f.limits.items()})
+        np.savez_compressed(folder / "energy_map.npz", **arrays)
+        _write_map_csv(folder / "energy_map.csv", emap, units, scenario.name)
+        figures = []
+        for name, fn, x in (("ps_mach", plots.plot_ps_map, "mach"),
+                            ("ps_tas", plots.plot_ps_map, "tas"),
+                            ("fs_mach", plots.plot_fs_map, "mach")):
+            ax = fn(emap, [], x=x, units=units)
+            figures += plots.save_figure(ax.figure, folder / name)
+        feasible_ps = np.where(emap.feasible, f.ps_m_s, np.nan)
+        doc = {
+            "climbopt_version": __version__,
+            "scenario": {"name": scenario.name, "path": str(scenario_file)},
+            "units": units,
+            "mass_kg": emap.mass_kg, "load_factor": emap.load_factor,
+            "throttle": emap.throttle, "rating": emap.rating,
+            "temperature_offset_k": emap.temperature_offset_k,
+            "shape": list(emap.shape),
+            "max_ps_m_s": float(np.nanmax(feasible_ps)) if np.isfinite(feasible_ps).any() else None,
+            "feasible_fraction": float(np.mean(emap.feasible)),
+            "files": ["energy_map.npz", "energy_map.csv"] + sorted(p.name for p in figures),
+            "caution": CAUTION,
+        }
+        report.write_summary_json(folder / "map.json", doc)
+        bar.done()
+    click.echo(f"{scenario.name}: energy map {emap.shape[0]} altitudes x {emap.shape[1]} speeds "
+               f"at {emap.mass_kg:,.0f} kg, rating {emap.rating}")
+    if not quiet:
+        click.echo(f"Wrote {out}/: map.json, energy_map.npz, energy_map.csv, plots "
+                   f"({len(figures)} files)")
+    click.echo(f"Caution: {CAUTION}")
+
+
+def _write_map_csv(path, emap, units, scenario_name):
+    """One row per grid point: altitude, TAS, Mach, Ps, fuel flow, Ps / fuel flow, feasible."""
+    import numpy as np
+
+    from climbopt import report
+
+    alt, alt_u = report.to_display("altitude", emap.altitude_m, units)
+    tas, spd_u = report.to_display("speed", np.asarray(emap.tas_m_s), units)
+    ps, ps_u = report.to_display("rate", np.asarray(emap.fields.ps_m_s), units)
+    ff, m_u = report.to_display("mass", np.asarray(emap.fields.fuel_flow_kg_s), units)
+    fs = np.asarray(emap.fields.fuel_specific_energy_m_kg)
+    fs_u = "m/kg"
+    if units == "us":
+        from climbopt.units import lb_to_kg, m_to_ft
+
+        fs, fs_u = m_to_ft(fs) * lb_to_kg(1.0), "ft/lb"
+    header = [f"altitude [{alt_u}]", f"TAS [{spd_u}]", "Mach", f"Ps [{ps_u}]",
+              f"fuel flow [{m_u}/s]", f"Ps / fuel flow [{fs_u}]", "feasible"]
+    feas = np.asarray(emap.feasible)
+    mach = np.asarray(emap.mach)
+    lines = [f"# climbopt {__version__}: energy map; scenario: {scenario_name}; units: {units}; "
+             f"mass {emap.mass_kg:.1f} kg, load factor {emap.load_factor:g}, rating {emap.rating}",
+             f"# caution: {CAUTION}", ",".join(header)]
+    nh, nv = emap.shape
+    for i in range(nh):
+        for j in range(nv):
+            lines.append(f"{alt[i]:.1f},{tas[i, j]:.2f},{mach[i, j]:.4f},{ps[i, j]:.3f},"
+                         f"{ff[i, j]:.5f},{fs[i, j]:.4f},{'true' if feas[i, j] else 'false'}")
+    Path(path).write_text("\n".join(lines) + "\n", encoding="utf-8")
