@@ -313,6 +313,7 @@ class _Reader:
         self.path = path
         self.problems: list[tuple[str, str]] = []
         self.units: dict[str, str] = {}
+        self.rating_names: list[str] | None = None  # names under [propulsion.ratings], once read
 
     def problem(self, fld: str, message: str) -> None:
         self.problems.append((fld, message))
@@ -784,6 +785,7 @@ def _read_propulsion(r: _Reader, doc: dict) -> Propulsion | None:
                                         f"{_type_name(rnode)} {_show(rnode)}")
         rnode = None
     if rnode is not None:
+        r.rating_names = list(rnode)
         if not rnode:
             r.problem("propulsion.ratings", "no ratings; expected at least one [propulsion.ratings.NAME] table")
             ok = False
@@ -812,7 +814,7 @@ def _read_propulsion(r: _Reader, doc: dict) -> Propulsion | None:
                       thrust_alignment=alignment, thrust_scale=scale)
 
 
-def _unknown_rating(r: _Reader, fld: str, name: str, ratings: dict) -> None:
+def _unknown_rating(r: _Reader, fld: str, name: str, ratings) -> None:
     close = difflib.get_close_matches(name, list(ratings), n=1, cutoff=0.5)
     hint = f" (did you mean '{close[0]}'?)" if close else ""
     r.problem(fld, f"unknown rating {name!r}{hint}; expected one of "
@@ -967,6 +969,9 @@ def _read_mission(r: _Reader, doc: dict, dt_k: float | None) -> Mission | None:
                       strict_min=True, expect="a positive ground distance, e.g. \"150 nmi\"")
     bad_dash = "dash_distance" in node and dash is None
     rating = r.string(node, "rating", "mission", required=False)
+    if rating is not None and r.rating_names is not None and rating not in r.rating_names:
+        _unknown_rating(r, "mission.rating", rating, r.rating_names)
+        rating = None
     if None in (start, target) or bad_dash or ("rating" in node and rating is None):
         return None
     return Mission(start=start, target=target, dash_distance_m=dash, rating=rating)
@@ -1064,8 +1069,6 @@ def _cross_checks(r: _Reader, aircraft: AircraftData | None, propulsion: Propuls
                                               "slope to find the angle of attack")
     if mission is None:
         return
-    if mission.rating is not None and propulsion is not None and mission.rating not in propulsion.ratings:
-        _unknown_rating(r, "mission.rating", mission.rating, propulsion.ratings)
     he0 = energy_height_m(mission.start.altitude_m, mission.start.tas_m_s)
     he1 = energy_height_m(mission.target.altitude_m, mission.target.tas_m_s)
     if he1 < he0 * (1 - _REL_TOL) - 1e-6:
@@ -1228,8 +1231,6 @@ def load_scenario(path) -> Scenario:
     mission = _read_mission(r, doc, dt_k)
     limits = _read_limits(r, doc)
     solver = _read_solver(r, doc)
-    if mission is not None and mission.rating is not None and propulsion is None:
-        pass  # rating names cannot be checked without ratings; their problems are reported already
     _cross_checks(r, aircraft, propulsion, mission, limits, dt_k)
     if r.problems:
         raise ScenarioError(path, r.problems)

@@ -252,7 +252,8 @@ def parse_quantity_with_unit(text, expected_dimension: str, field: str = "") -> 
         _check_finite(value, field, text)
         return value, ""
     if not isinstance(text, str):
-        raise UnitError(field, f"expected {_describe(dim)} as a string, got {type(text).__name__} {text!r}")
+        kind = {list: "an array", dict: "a table"}.get(type(text), type(text).__name__)
+        raise UnitError(field, f"expected {_describe(dim)} as a string, got {kind} {text!r}")
     number, unit_text = split_quantity(text, field)
     _check_finite(number, field, text)
     unit = parse_unit(unit_text, expected_dimension, field, whole=text)
