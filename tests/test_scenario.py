@@ -657,3 +657,40 @@ def test_text_edits_only_raise_scenario_error(tmp_path, pos, length, insert):
         load_scenario(p)
     except ScenarioError as exc:
         assert exc.problems
+
+
+def test_drag_table_model_scalar(tmp_path):
+    """CD(CL, M) table form with a constant lift-curve slope given per degree."""
+    drag = {"model": "table", "mach": [0.0, 0.6, 1.2], "cl": [-0.2, 0.0, 0.5, 1.0],
+            "cd": [[0.03, 0.02, 0.04, 0.12], [0.031, 0.021, 0.041, 0.125], [0.05, 0.04, 0.07, 0.2]],
+            "lift_slope": "0.1 1/deg"}
+    s = load_scenario(write(tmp_path, edited(aircraft__drag=drag)))
+    d = s.aircraft.drag
+    assert d.kind == "table" and d.cd0 is None
+    assert d.cd_cl == (-0.2, 0.0, 0.5, 1.0) and d.cd_table[2][3] == 0.2
+    assert d.lift_slope_per_rad.values == pytest.approx((0.1 * 180 / math.pi,) * 3, rel=1e-12)
+    assert "table CD(CL, M), 3 Mach x 4 CL points" in describe_scenario(s)
+
+
+def test_drag_table_model_invalid(tmp_path):
+    drag = {"model": "table", "mach": [0.0, 0.6, 1.2], "cl": [0.0, 0.5, 1.0],
+            "cd": [[0.02, 0.04, 0.12], [0.021, 0.041, 0.125]], "k": 0.1}
+    problems = problems_of(tmp_path, edited(aircraft__drag=drag))
+    assert "has 2 rows but aircraft.drag.mach has 3" in find(problems, "aircraft.drag.cd")
+    assert 'only used with model = "parabolic"' in find(problems, "aircraft.drag.k")
+
+
+def test_propeller_rating_scalar(tmp_path):
+    """Shaft-power rating with a constant efficiency and PSFC (1 hp = 550 ft lbf/s)."""
+    rating = {"kind": "propeller", "mach": [0.1, 0.5, 1.2],
+              "altitude": {"unit": "ft", "values": [0, 20000, 40000]},
+              "shaft_power": {"unit": "hp", "values": [[3000, 2000, 1000]] * 3},
+              "propeller_efficiency": 0.8, "psfc": "0.5 lb/hp/h"}
+    s = load_scenario(write(tmp_path, edited(propulsion__ratings__max=rating)))
+    r = s.propulsion.ratings["max"]
+    assert r.shaft_power_w.values[0][0] == pytest.approx(3000 * 550 * FT * LBF, rel=1e-12)
+    assert r.propeller_efficiency.mach == (0.1, 0.5, 1.2) and r.propeller_efficiency.values == (0.8,) * 3
+    assert r.psfc_kg_per_w_s == pytest.approx(0.5 * LB / (550 * FT * LBF * 3600), rel=1e-12)
+    rating["propeller_efficiency"] = {"mach": [0.1, 1.2], "values": [0.5, 1.3]}
+    problems = problems_of(tmp_path, edited(propulsion__ratings__max=rating))
+    assert "<= 1" in find(problems, "propulsion.ratings.max.propeller_efficiency.values[1]")
