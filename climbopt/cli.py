@@ -27,7 +27,9 @@ def main():  # console-script entry point
 
 @cli.command("check")
 @click.argument("scenario_file", metavar="SCENARIO")
-def check(scenario_file: str):
+@click.option("--units", "check_units", type=click.Choice(["file", "si", "us"]), default="file",
+              show_default=True, help="Units of the summary: as written in the file, SI, or US (ft, kt, lb, nmi).")
+def check(scenario_file: str, check_units: str):
     """Read SCENARIO, print what was understood (in the file's units), or list every problem.
 
     Exit code 0 when the file is valid, 2 when it is not.
@@ -36,7 +38,7 @@ def check(scenario_file: str):
 
     try:
         scenario = load_scenario(scenario_file)
-        text = describe_scenario(scenario)
+        text = describe_scenario(scenario, units=check_units)
     except ScenarioError as exc:
         n = len(exc.problems)
         click.echo(f"error: {exc.path}: {n} problem{'s' if n != 1 else ''} found:", err=True)

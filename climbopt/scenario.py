@@ -12,6 +12,7 @@ Table conventions (shared by the model and both solvers):
 
 from __future__ import annotations
 
+import contextvars
 import difflib
 import math
 import os
@@ -1245,8 +1246,45 @@ def load_scenario(path) -> Scenario:
 # ============================================================================================
 
 
+#: Unit system of the summary being written: "file" (as written), "si" or "us".
+_UNIT_SYSTEM: contextvars.ContextVar[str] = contextvars.ContextVar("climbopt_unit_system", default="file")
+
+#: Display units per kind of quantity for ``units="si"`` and ``units="us"`` (ft, kt, lb, nmi, lbf, hp).
+_SYSTEM_UNITS = {
+    "si": {"length": "m", "distance": "km", "area": "m^2", "mass": "kg", "speed": "m/s", "force": "N",
+           "power": "W", "pressure": "Pa", "mass_flow": "kg/s", "tsfc": "kg/N/s", "psfc": "kg/W/s",
+           "time": "s", "temperature_difference": "K", "angle": "deg", "per_angle": "1/rad"},
+    "us": {"length": "ft", "distance": "nmi", "area": "ft^2", "mass": "lb", "speed": "kt", "force": "lbf",
+           "power": "hp", "pressure": "lbf/ft^2", "mass_flow": "lb/h", "tsfc": "lb/lbf/h",
+           "psfc": "lb/hp/h", "time": "s", "temperature_difference": "K", "angle": "deg",
+           "per_angle": "1/rad"},
+}
+
+
+def _kind_of_unit(unit: str) -> str | None:
+    """Name of the DIMENSIONS entry a unit belongs to (None when it cannot be told)."""
+    for name, dim in DIMENSIONS.items():
+        if name == "dimensionless":
+            continue
+        try:
+            unit_factor(unit, name)
+        except (UnitError, ValueError):
+            continue
+        return name
+    return None
+
+
 def _u(scenario: Scenario, fld: str, fallback: str) -> str:
-    return scenario.display_units.get(fld) or fallback
+    unit = scenario.display_units.get(fld) or fallback
+    system = _UNIT_SYSTEM.get()
+    if system == "file" or not unit:
+        return unit
+    kind = _kind_of_unit(unit)
+    if kind is None:
+        return unit
+    if kind == "length" and fld.endswith("dash_distance"):
+        kind = "distance"
+    return _SYSTEM_UNITS[system][kind]
 
 
 def _q(value_si: float, unit: str) -> str:
@@ -1314,8 +1352,22 @@ def _interp(x: float, xs, ys) -> float:
     return ys[-1]
 
 
-def describe_scenario(scenario: Scenario) -> str:
-    """What the program understood from a scenario, as text in the units the file used."""
+def describe_scenario(scenario: Scenario, units: str = "file") -> str:
+    """What the program understood from a scenario, as text.
+
+    ``units``: "file" (each value in the unit the file used), "si", or "us" (ft, kt, lb, nmi,
+    lbf, hp).
+    """
+    if units not in ("file", "si", "us"):
+        raise ValueError(f"units must be 'file', 'si' or 'us', got {units!r}")
+    token = _UNIT_SYSTEM.set(units)
+    try:
+        return _describe(scenario)
+    finally:
+        _UNIT_SYSTEM.reset(token)
+
+
+def _describe(scenario: Scenario) -> str:
     s = scenario
     ac, prop, mis, lim, sol = s.aircraft, s.propulsion, s.mission, s.limits, s.solver
     dt_k = s.atmosphere.temperature_offset_k
@@ -1368,7 +1420,7 @@ def describe_scenario(scenario: Scenario) -> str:
         elif base + ".specific_impulse" in s.display_units:
             isp = 1.0 / (_g0() * rt.tsfc_kg_per_n_s)
             out.append(f"    fuel: specific impulse {_q(isp, _u(s, base + '.specific_impulse', 's'))} "
-                       f"(TSFC {_q(rt.tsfc_kg_per_n_s, 'lb/lbf/h')})")
+                       f"(TSFC {_q(rt.tsfc_kg_per_n_s, _u(s, base + '.tsfc', 'lb/lbf/h'))})")
         elif rt.tsfc_kg_per_n_s is not None:
             out.append(f"    fuel: TSFC {_q(rt.tsfc_kg_per_n_s, _u(s, base + '.tsfc', 'lb/lbf/h'))}")
         else:

@@ -80,3 +80,17 @@ def test_check_empty_file_exit_2(tmp_path):
     assert code == 2
     for section in ("aircraft", "propulsion", "mission"):
         assert f"{section}: missing section [{section}]" in out
+
+
+def test_check_units_us_and_si():
+    """--units us: 70,000 kg / 0.45359237 kg/lb = 154,324 lb; --units si: 35,000 ft x 0.3048 = 10,668 m
+    (international definitions)."""
+    path = ROOT / "scenarios" / "transport_twinjet.toml"
+    result = CliRunner().invoke(cli, ["check", str(path), "--units", "us"])
+    assert result.exit_code == 0, result.output
+    assert "start mass 154324 lb" in result.output
+    result = CliRunner().invoke(cli, ["check", str(path), "--units", "si"])
+    assert result.exit_code == 0, result.output
+    assert "target: altitude 10668 m, Mach 0.78" in result.output
+    result = CliRunner().invoke(cli, ["check", str(path), "--units", "furlongs"])
+    assert result.exit_code == 2 and "Traceback" not in result.output
