@@ -397,3 +397,166 @@ def _write_map_csv(path, emap, units, scenario_name):
             lines.append(f"{alt[i]:.1f},{tas[i, j]:.2f},{mach[i, j]:.4f},{ps[i, j]:.3f},"
                          f"{ff[i, j]:.5f},{fs[i, j]:.4f},{'true' if feas[i, j] else 'false'}")
     Path(path).write_text("\n".join(lines) + "\n", encoding="utf-8")
+
+
+# ---- climbopt sweep (trade studies; the logic lives in climbopt/sweep.py) --------------------
+
+
+@cli.command("sweep")
+@click.argument("scenario_file", metavar="SCENARIO")
+@click.option("--vary", "vary", multiple=True, required=True, metavar="NAME=VALUES",
+              help="An input to vary, repeatable. NAME: mass, temperature_offset, thrust_scale, "
+                   "target_altitude, target_speed (in the target's kind of speed), cost_weight. "
+                   "VALUES: START:STOP:COUNT (ends included) or a comma list; units allowed "
+                   "('mass=60 t:80 t:5', 'temperature_offset=-10,0,10,20 K'); bare numbers are SI.")
+@click.option("--zip", "zip_values", is_flag=True,
+              help="Take the i-th values of all --vary together instead of the full grid.")
+@click.option("--method", type=click.Choice(["energy", "collocation"]), default="energy",
+              show_default=True, help="Solver for every case.")
+@click.option("--objective", type=click.Choice(["time", "fuel", "weighted"]), default=None,
+              help="Default: weighted when cost_weight is varied, else time.")
+@click.option("--workers", type=click.IntRange(min=1), default=None,
+              help="Local worker processes (default: all cores).")
+@click.option("--serial", is_flag=True, help="Run the cases one after another in this process.")
+@click.option("--cluster", metavar="ADDRESS", default=None,
+              help="Run the cases on the Dask scheduler at ADDRESS (needs climbopt[dask]).")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
+              help="Output folder (default: out/<scenario>-sweep); the table is sweep.csv there.")
+@click.option("--parquet", is_flag=True, help="Also write sweep.parquet at the end (needs pyarrow).")
+@click.option("--max-cases", type=click.IntRange(min=0), default=None,
+              help="Solve at most this many new cases now; re-run to continue.")
+@click.option("--retry-failed", is_flag=True, help="Solve again the cases recorded as failed.")
+@click.option("--no-plots", is_flag=True, help="Write the table only.")
+@click.option("--quiet", is_flag=True, help="No progress bar.")
+def sweep_command(scenario_file, vary, zip_values, method, objective, workers, serial, cluster,
+                  out_dir, parquet, max_cases, retry_failed, no_plots, quiet):
+    """Solve SCENARIO for every combination of the --vary values (a trade study).
+
+    Rows stream to the table as cases finish; a re-run of the same command skips the cases
+    already in the table. A failed case is recorded with its status and error and does not stop
+    the sweep (exit code 0); exit 2 for bad input, 1 when the workers or the cluster fail.
+    """
+    from climbopt import sweep as sw
+
+    if serial and (cluster or workers):
+        raise click.UsageError("--serial cannot be combined with --cluster or --workers")
+    if cluster and workers:
+        raise click.UsageError("--workers is for the local pool; the cluster has its own workers")
+    scenario = _load_for_command(scenario_file)
+    try:
+        variations = [sw.parse_variation(text, scenario) for text in vary]
+        plan = sw.plan_sweep(scenario, variations, zip_values=zip_values, method=method,
+                             objective=objective)
+        if parquet:
+            import importlib.util
+
+            if importlib.util.find_spec("pyarrow") is None:
+                raise sw.SweepError("--parquet needs the pyarrow package, which is not installed "
+                                    "(pip install pyarrow), or leave out --parquet")
+        if cluster:
+            try:
+                import distributed  # noqa: F401
+            except ImportError:
+                raise sw.SweepError("--cluster needs Dask distributed, which is not installed; "
+                                    "install the optional extra: pip install 'climbopt[dask]'") from None
+    except sw.SweepError as exc:
+        _fail(str(exc), EXIT_BAD_INPUT)
+
+    folder = Path(out_dir) if out_dir else _default_out(scenario_file, "-sweep")
+    table = folder / "sweep.csv"
+    executor = "serial" if serial else ("dask" if cluster else "pool")
+    shape = " x ".join(f"{v.name} ({len(v.values)})" for v in plan.variations)
+    n_anchor = sum(c.objective != plan.objective for c in plan.cases)
+    click.echo(f"sweep: {len(plan.cases)} cases ({'given combinations of' if zip_values else 'grid'} "
+               f"{shape}" + (f", plus {n_anchor} minimum-time/minimum-fuel end cases" if n_anchor else "")
+               + f"); {sw.METHODS[method]}, objective {plan.objective}; table {table}")
+
+    show = _progress_enabled(quiet)
+    state = {"bar": None, "failed": 0}
+
+    def on_start(to_run, skipped):
+        if skipped:
+            click.echo(f"  {skipped} case{'s' if skipped != 1 else ''} already in the table: skipped")
+        if show and to_run:
+            from tqdm import tqdm
+
+            state["bar"] = tqdm(total=to_run, unit="case", desc="sweep", file=sys.stderr,
+                                dynamic_ncols=True)
+
+    def on_case(row):
+        if row["status"] != "ok":
+            state["failed"] += 1
+        if state["bar"] is not None:
+            state["bar"].set_postfix_str(f"failed {state['failed']}", refresh=False)
+            state["bar"].update(1)
+
+    def close_bar():
+        if state["bar"] is not None:
+            state["bar"].close()
+            state["bar"] = None
+
+    try:
+        result = sw.run_sweep(plan, table, executor=executor, workers=workers, cluster=cluster,
+                              max_cases=max_cases, retry_failed=retry_failed, on_start=on_start,
+                              on_case=on_case)
+    except KeyboardInterrupt:
+        close_bar()
+        click.echo(f"interrupted: the finished cases are in {table}; run the same command again "
+                   f"to continue", err=True)
+        raise SystemExit(130) from None
+    except sw.SweepError as exc:
+        close_bar()
+        _fail(str(exc), EXIT_BAD_INPUT)
+    except sw.SweepAborted as exc:
+        close_bar()
+        _fail(str(exc), 1)
+    close_bar()
+
+    written = []
+    try:
+        if parquet:
+            written.append(sw.write_parquet(table, folder / "sweep.parquet"))
+        if not no_plots:
+            written += [p for p in sw.plot_sweep(plan, result.rows, folder)
+                        if str(p).endswith(".png")]
+    except sw.SweepError as exc:
+        _fail(str(exc), EXIT_BAD_INPUT)
+    except Exception as exc:  # outputs after the table: report, keep the table
+        click.echo(f"warning: could not write the plots: {type(exc).__name__}: {exc}", err=True)
+
+    where = {"serial": "in this process", "pool": f"on a pool of {result.workers} processes",
+             "dask": f"on the Dask cluster ({result.workers} worker threads)"}[executor]
+    rate = (f"{result.cases_per_s:.2f} cases/s {where}" if result.computed
+            else "no cases solved")
+    click.echo(f"done {result.computed - result.failed}, failed {result.failed}, skipped "
+               f"{result.skipped}" + (f", left for a re-run {result.remaining}" if result.remaining
+                                     else "")
+               + f"; wall time {result.wall_s:.1f} s, {rate}")
+    ours = {c.key for c in plan.cases}
+    bad = [r for r in result.rows if r["key"] in ours and r["status"] != "ok"]
+    if bad:
+        counts = {}
+        for r in bad:
+            counts[r["status"]] = counts.get(r["status"], 0) + 1
+        click.echo("failed cases in the table: "
+                   + ", ".join(f"{n} {s}" for s, n in sorted(counts.items())))
+        for r in bad[:5]:
+            click.echo(f"  case {r['case']} ({r['status']}): {r['error'][:160]}")
+        if len(bad) > 5:
+            click.echo(f"  ... {len(bad) - 5} more (see the table)")
+    if result.foreign_rows:
+        click.echo(f"note: {result.foreign_rows} rows of the table belong to other cases (kept at "
+                   f"the end)")
+    if "cost_weight" in [v.name for v in plan.variations]:
+        rows = [r for r in result.rows if r["key"] in ours]
+        curve = sw.tradeoff_curve([r for r in rows if r["objective"] == "weighted"]
+                                  if len(plan.variations) == 1 else [])
+        if len(plan.variations) == 1 and len(curve["time_s"]) > 1:
+            click.echo(f"trade-off: {len(curve['time_s'])} weights, time {min(curve['time_s']):.1f} "
+                       f"to {max(curve['time_s']):.1f} s, fuel {min(curve['fuel_kg']):.1f} to "
+                       f"{max(curve['fuel_kg']):.1f} kg"
+                       + ("" if curve["monotone"] else " (not monotone: check the grid)"))
+    click.echo(f"table: {table}")
+    if written and not quiet:
+        click.echo("files: " + ", ".join(str(p) for p in written))
+    click.echo(f"Caution: {CAUTION}")

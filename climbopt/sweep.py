@@ -1,0 +1,1018 @@
+"""Trade studies: solve one scenario over a grid (or a list) of changed numeric inputs.
+
+What a sweep does
+-----------------
+1. :func:`parse_variation` reads ``name=spec`` texts (``mass=60 t:80 t:5`` is a range of five
+   evenly spaced values, ends included; ``temperature_offset=-10,0,10,20 K`` is a list; a bare
+   number takes the unit written elsewhere in the same spec, or the SI unit when none is written).
+2. :func:`plan_sweep` expands the variations into cases, as the full grid (the last variation
+   varies fastest) or, with ``zip_values=True``, as the given combinations. When the cost weight
+   is varied (objective "weighted"), two single-objective cases per combination of the other
+   inputs are added at the end ("anchors": minimum time and minimum fuel), which mark the ends of
+   the time-fuel trade-off curve.
+3. :func:`run_sweep` runs the cases not yet in the table, serially, on a local process pool
+   (default, all cores) or on a Dask distributed cluster, and appends one CSV row per finished
+   case (flushed at once), so an interrupted sweep loses at most the cases in flight. Each case
+   has a key, a hash of everything that determines its result (the whole scenario in SI, the
+   changed values, the method and the objective); a re-run skips keys already in the table. A
+   failing case is recorded with its status and error text and the sweep goes on. At the end the
+   table is rewritten sorted by case order.
+4. :func:`plot_sweep` draws time and fuel against each varied input and, for the cost weight, the
+   time-fuel trade-off curve with its minimum-time and minimum-fuel ends marked.
+
+Statuses: ``ok``; ``infeasible`` (:class:`climbopt.rutowski.InfeasibleMission`);
+``solver-failure`` (:class:`climbopt.collocation.SolverFailure`); ``bad-input`` (a changed value
+out of range, :class:`climbopt.scenario.ScenarioError`, or a point outside the model's data,
+:class:`climbopt.fits.ModelDomainError`); ``error`` (anything else, with the exception type).
+
+All values in the table are SI (column names carry the unit). Nothing here prints; the command
+line (``climbopt sweep``) shows progress through the ``on_case`` callback.
+"""
+
+from __future__ import annotations
+
+import csv
+import difflib
+import hashlib
+import io
+import itertools
+import json
+import math
+import os
+import time
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor
+from concurrent.futures import wait as _futures_wait
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Callable
+
+from climbopt import CAUTION, __version__
+from climbopt.scenario import Scenario, ScenarioError
+from climbopt.units import UnitError, from_si, parse_quantity, split_quantity
+
+__all__ = [
+    "PARAMETER_NAMES", "STATUSES", "SweepError", "SweepAborted", "Parameter", "Variation", "Case",
+    "SweepPlan", "SweepResult", "parameters", "parse_variation", "plan_sweep", "apply_case", "run_case",
+    "run_sweep", "read_table", "write_parquet", "tradeoff_curve", "pareto_front", "plot_sweep",
+]
+
+#: Names accepted by ``--vary``.
+PARAMETER_NAMES = ("mass", "temperature_offset", "thrust_scale", "target_altitude",
+                   "target_speed", "cost_weight")
+
+#: Case statuses written to the table.
+STATUSES = ("ok", "infeasible", "solver-failure", "bad-input", "error")
+
+#: Solver method names on the command line -> the ``Trajectory.method`` written to the table.
+METHODS = {"energy": "energy-state", "collocation": "collocation"}
+
+#: Result columns (after the case, key, method, objective and input columns), SI.
+RESULT_COLUMNS = ("status", "time_s", "fuel_kg", "distance_m", "final_mass_kg", "wall_s", "error")
+
+#: Columns holding numbers (besides the input columns); "case" is an integer.
+_NUMERIC_RESULTS = ("time_s", "fuel_kg", "distance_m", "final_mass_kg", "wall_s")
+
+#: Version of the case-key recipe; bump when the recipe changes (old tables are then recomputed).
+_KEY_VERSION = 1
+
+
+class SweepError(ValueError):
+    """A sweep cannot be set up: bad ``--vary`` text, a table written by another sweep, a missing
+    optional package (Dask, pyarrow), an unreachable cluster."""
+
+
+class SweepAborted(RuntimeError):
+    """A running sweep had to stop: a pool worker process died or the Dask cluster failed. The
+    cases finished before are in the table; a re-run continues."""
+
+
+# ============================================================================================
+# Parameters and variations
+# ============================================================================================
+
+
+@dataclass(frozen=True)
+class Parameter:
+    """A numeric scenario input that a sweep can change.
+
+    ``dimension`` is a :data:`climbopt.units.DIMENSIONS` key (how values are parsed),
+    ``si_unit`` the unit of the table column ``column``, ``label`` words for plot axes.
+    """
+
+    name: str
+    dimension: str
+    si_unit: str
+    column: str
+    label: str
+
+
+def parameters(scenario: Scenario) -> dict[str, Parameter]:
+    """The sweepable inputs of ``scenario`` by name. ``target_speed`` is in the kind of speed the
+    target was given in (Mach number, or TAS/CAS/EAS in m/s)."""
+    kind = scenario.mission.target.speed_kind
+    if kind == "mach":
+        speed = Parameter("target_speed", "dimensionless", "", "target_mach", "target Mach number")
+    else:
+        speed = Parameter("target_speed", "speed", "m/s", f"target_{kind}_m_s",
+                          f"target {kind.upper()}")
+    return {p.name: p for p in (
+        Parameter("mass", "mass", "kg", "mass_kg", "start mass"),
+        Parameter("temperature_offset", "temperature_difference", "K", "temperature_offset_k",
+                  "temperature offset from ISA"),
+        Parameter("thrust_scale", "dimensionless", "", "thrust_scale", "thrust scale"),
+        Parameter("target_altitude", "length", "m", "target_altitude_m", "target altitude"),
+        speed,
+        Parameter("cost_weight", "mass_flow", "kg/s", "cost_weight_kg_per_s",
+                  "cost weight (fuel per second of time)"),
+    )}
+
+
+@dataclass(frozen=True)
+class Variation:
+    """Values [SI] one parameter takes in a sweep; ``unit`` is the unit the user wrote (for
+    plots), empty when none was written."""
+
+    name: str
+    values: tuple[float, ...]
+    unit: str = ""
+
+
+def _split_items(text: str, what: str) -> list[tuple[float, str]]:
+    items = []
+    for part in text.split(","):
+        part = part.strip()
+        if not part:
+            raise SweepError(f"{what}: empty value in {text!r}")
+        try:
+            items.append(split_quantity(part, what))
+        except UnitError as exc:
+            raise SweepError(f"{what}: {exc.message}") from None
+    return items
+
+
+def parse_variation(text: str, scenario: Scenario) -> Variation:
+    """Read one ``NAME=VALUES`` text.
+
+    ``VALUES`` is either ``START:STOP:COUNT`` (COUNT evenly spaced values, both ends included)
+    or a comma-separated list. Values may carry units (``60 t``, ``15 K``, ``35000 ft``,
+    ``280 kt``); a bare number takes the unit written with the other values of the same text,
+    or the SI unit (kg, K, m, m/s, kg/s) when no unit is written. No thousands separators
+    (commas separate values).
+
+    Raises
+    ------
+    SweepError
+        Unknown name (with a suggestion), malformed text, wrong unit, bad count, repeated value.
+    """
+    params = parameters(scenario)
+    if "=" not in text:
+        raise SweepError(f"--vary {text!r}: expected NAME=VALUES, e.g. 'mass=60 t:80 t:5' or "
+                         f"'temperature_offset=-10,0,10 K'")
+    name, spec = (s.strip() for s in text.split("=", 1))
+    if name not in params:
+        close = difflib.get_close_matches(name, PARAMETER_NAMES, n=1, cutoff=0.5)
+        hint = f" (did you mean '{close[0]}'?)" if close else ""
+        raise SweepError(f"--vary: unknown name {name!r}{hint}; known names: "
+                         f"{', '.join(PARAMETER_NAMES)}")
+    p = params[name]
+    what = f"--vary {name}"
+    if not spec:
+        raise SweepError(f"{what}: no values given")
+    if ":" in spec:
+        parts = spec.split(":")
+        if len(parts) != 3:
+            raise SweepError(f"{what}: a range is START:STOP:COUNT, got {spec!r}")
+        count_text = parts[2].strip()
+        try:
+            count = int(count_text)
+        except ValueError:
+            raise SweepError(f"{what}: COUNT must be a whole number, got {count_text!r}") from None
+        if count < 1:
+            raise SweepError(f"{what}: COUNT must be at least 1, got {count}")
+        items = _split_items(parts[0], what) + _split_items(parts[1], what)
+        if len(items) != 2:
+            raise SweepError(f"{what}: a range is START:STOP:COUNT, got {spec!r}")
+    else:
+        items, count = _split_items(spec, what), None
+    written = sorted({u for _, u in items if u})
+    default_unit = written[0] if len(written) == 1 else p.si_unit
+    values = []
+    for number, unit in items:
+        unit = unit or default_unit
+        shown = f"{number!r} {unit}".strip()
+        try:
+            values.append(parse_quantity(shown if unit else number, p.dimension, what))
+        except UnitError as exc:
+            raise SweepError(f"{what}: {exc.message}") from None
+    if count is not None:
+        start, stop = values
+        values = [start] if count == 1 else [start + (stop - start) * i / (count - 1)
+                                             for i in range(count)]
+        if count > 1 and start == stop:
+            raise SweepError(f"{what}: START and STOP are equal; give COUNT 1 or different ends")
+    seen = set()
+    for v in values:
+        if v in seen:
+            raise SweepError(f"{what}: value {v:g} {p.si_unit} appears twice")
+        seen.add(v)
+    return Variation(name, tuple(float(v) for v in values), written[0] if written else "")
+
+
+# ============================================================================================
+# Cases
+# ============================================================================================
+
+
+@dataclass(frozen=True)
+class Case:
+    """One solve of a sweep: ``values`` are ``(parameter name, SI value)`` pairs."""
+
+    index: int
+    key: str
+    method: str  # "energy" | "collocation"
+    objective: str  # "time" | "fuel" | "weighted"
+    values: tuple[tuple[str, float], ...]
+
+
+@dataclass(frozen=True)
+class SweepPlan:
+    """Everything that defines a sweep: the base scenario, the variations and the cases."""
+
+    scenario: Scenario
+    variations: tuple[Variation, ...]
+    method: str
+    objective: str
+    zipped: bool
+    cases: tuple[Case, ...]
+
+    @property
+    def parameters(self) -> list[Parameter]:
+        params = parameters(self.scenario)
+        return [params[v.name] for v in self.variations]
+
+    @property
+    def header(self) -> list[str]:
+        """Table columns, in order."""
+        return (["case", "key", "method", "objective"] + [p.column for p in self.parameters]
+                + list(RESULT_COLUMNS))
+
+
+def scenario_fingerprint(scenario: Scenario) -> str:
+    """SHA-256 of everything in ``scenario`` that can change a result (not its name,
+    description, file path or display units)."""
+    core = replace(scenario, name="", description="", source_path="", display_units={})
+    return hashlib.sha256(repr(core).encode("utf-8")).hexdigest()
+
+
+def case_key(fingerprint: str, method: str, objective: str,
+             values: tuple[tuple[str, float], ...]) -> str:
+    """16-hex-digit key of one case: hash of the scenario fingerprint, method, objective and the
+    changed values (exact float representations)."""
+    doc = {"v": _KEY_VERSION, "scenario": fingerprint, "method": method, "objective": objective,
+           "values": sorted((n, repr(float(v))) for n, v in values)}
+    return hashlib.sha256(json.dumps(doc, sort_keys=True).encode("utf-8")).hexdigest()[:16]
+
+
+def plan_sweep(scenario: Scenario, variations, *, zip_values: bool = False,
+               method: str = "energy", objective: str | None = None) -> SweepPlan:
+    """Expand variations into cases.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        The base scenario; each case changes only the varied inputs.
+    variations : list[Variation]
+        At least one; names must not repeat.
+    zip_values : bool
+        False: the full grid (``itertools.product``, last variation fastest). True: the i-th
+        values of all variations together (all must have the same number of values).
+    method : str
+        "energy" (energy-state, default) or "collocation".
+    objective : str or None
+        "time", "fuel" or "weighted"; default "weighted" when the cost weight is varied, else
+        "time". Varying the cost weight with another objective is an error (it would change
+        nothing).
+    """
+    variations = tuple(variations)
+    if not variations:
+        raise SweepError("nothing to vary: give at least one --vary NAME=VALUES")
+    names = [v.name for v in variations]
+    for n in names:
+        if names.count(n) > 1:
+            raise SweepError(f"--vary {n} given more than once")
+    if method not in METHODS:
+        raise SweepError(f"method must be one of {', '.join(METHODS)}, got {method!r}")
+    varies_w = "cost_weight" in names
+    if objective is None:
+        objective = "weighted" if varies_w else "time"
+    if objective not in ("time", "fuel", "weighted"):
+        raise SweepError(f"objective must be time, fuel or weighted, got {objective!r}")
+    if varies_w and objective != "weighted":
+        raise SweepError(f"--vary cost_weight changes only the weighted objective; with "
+                         f"--objective {objective} every case would be the same (use "
+                         f"--objective weighted)")
+    if zip_values:
+        counts = {v.name: len(v.values) for v in variations}
+        if len(set(counts.values())) != 1:
+            raise SweepError("--zip needs the same number of values for every --vary; got "
+                             + ", ".join(f"{n} {c}" for n, c in counts.items()))
+        combos = list(zip(*(v.values for v in variations)))
+    else:
+        combos = list(itertools.product(*(v.values for v in variations)))
+
+    fp = scenario_fingerprint(scenario)
+    cases: list[Case] = []
+    keys: dict[str, int] = {}
+
+    def add(objective_: str, values: tuple[tuple[str, float], ...]) -> None:
+        key = case_key(fp, method, objective_, values)
+        if key in keys:
+            shown = ", ".join(f"{n}={v:g}" for n, v in values)
+            raise SweepError(f"the combination {shown} appears twice (cases {keys[key]} and "
+                             f"{len(cases)})")
+        keys[key] = len(cases)
+        cases.append(Case(len(cases), key, method, objective_, values))
+
+    for combo in combos:
+        add(objective, tuple(zip(names, (float(x) for x in combo))))
+    if varies_w:  # anchors: one min-time and one min-fuel case per combination of the others
+        seen = []
+        for combo in combos:
+            rest = tuple((n, float(x)) for n, x in zip(names, combo) if n != "cost_weight")
+            if rest not in seen:
+                seen.append(rest)
+        for rest in seen:
+            add("time", rest)
+            add("fuel", rest)
+    return SweepPlan(scenario, variations, method, objective, bool(zip_values), tuple(cases))
+
+
+def _bad(scenario: Scenario, fld: str, message: str) -> ScenarioError:
+    return ScenarioError(scenario.source_path or "<scenario>", [(fld, message)])
+
+
+def apply_case(scenario: Scenario, values) -> Scenario:
+    """The scenario with the changed inputs ``values`` (mapping or pairs of name -> SI value).
+
+    Start and target true airspeeds are recomputed from the speeds as given (Mach, CAS, EAS or
+    TAS) in the changed atmosphere and at the changed target altitude and speed.
+
+    Raises
+    ------
+    ScenarioError
+        A value out of range (mass, thrust scale and target speed must be positive, cost weight
+        not negative, target altitude within -500 m to 70 km as in scenario files).
+    """
+    from climbopt.airspeed import tas_from_speed
+
+    values = dict(values)
+    unknown = set(values) - set(PARAMETER_NAMES)
+    if unknown:
+        raise ValueError(f"unknown sweep parameter(s): {', '.join(sorted(unknown))}")
+    for name, v in values.items():
+        if not math.isfinite(v):
+            raise _bad(scenario, name, f"got {v}; expected a finite number")
+    ac, prop, atm, mis, sol = (scenario.aircraft, scenario.propulsion, scenario.atmosphere,
+                               scenario.mission, scenario.solver)
+    if "mass" in values:
+        if values["mass"] <= 0:
+            raise _bad(scenario, "aircraft.mass", f"got {values['mass']:g} kg; expected more than 0")
+        ac = replace(ac, mass_kg=values["mass"])
+    if "thrust_scale" in values:
+        if values["thrust_scale"] <= 0:
+            raise _bad(scenario, "propulsion.thrust_scale",
+                       f"got {values['thrust_scale']:g}; expected more than 0")
+        prop = replace(prop, thrust_scale=values["thrust_scale"])
+    if "cost_weight" in values:
+        if values["cost_weight"] < 0:
+            raise _bad(scenario, "solver.cost_weight",
+                       f"got {values['cost_weight']:g} kg/s; expected 0 or more")
+        sol = replace(sol, cost_weight_kg_per_s=values["cost_weight"])
+    if "temperature_offset" in values:
+        atm = replace(atm, temperature_offset_k=values["temperature_offset"])
+    start, target = mis.start, mis.target
+    if "target_altitude" in values:
+        h = values["target_altitude"]
+        if not -500.0 <= h <= 70_000.0:
+            raise _bad(scenario, "mission.target.altitude",
+                       f"got {h:g} m; expected -500 m to 70 km")
+        target = replace(target, altitude_m=h)
+    if "target_speed" in values:
+        if values["target_speed"] <= 0:
+            raise _bad(scenario, f"mission.target.{target.speed_kind}",
+                       f"got {values['target_speed']:g}; expected more than 0")
+        target = replace(target, speed_value=values["target_speed"])
+    dt_k = atm.temperature_offset_k
+    try:
+        if "temperature_offset" in values:
+            start = replace(start, tas_m_s=float(tas_from_speed(
+                start.speed_kind, start.speed_value, start.altitude_m, dt_k)))
+        if {"temperature_offset", "target_altitude", "target_speed"} & set(values):
+            target = replace(target, tas_m_s=float(tas_from_speed(
+                target.speed_kind, target.speed_value, target.altitude_m, dt_k)))
+    except ValueError as exc:
+        raise _bad(scenario, "mission", f"cannot convert the speeds: {exc}") from None
+    mis = replace(mis, start=start, target=target)
+    return replace(scenario, aircraft=ac, propulsion=prop, atmosphere=atm, mission=mis, solver=sol)
+
+
+def _classify(exc: BaseException) -> str:
+    """Status of a failed case (see the module docstring)."""
+    from climbopt.fits import ModelDomainError
+    from climbopt.rutowski import InfeasibleMission
+
+    if isinstance(exc, InfeasibleMission):
+        return "infeasible"
+    if isinstance(exc, (ScenarioError, ModelDomainError, UnitError)):
+        return "bad-input"
+    try:
+        from climbopt.collocation import SolverFailure
+    except ImportError:  # pragma: no cover - collocation not installed
+        SolverFailure = ()
+    if SolverFailure and isinstance(exc, SolverFailure):
+        return "solver-failure"
+    return "error"
+
+
+def _error_text(exc: BaseException, status: str) -> str:
+    text = " ".join(str(exc).split()) or "(no message)"
+    return f"{type(exc).__name__}: {text}" if status == "error" else text
+
+
+def _solve(scenario: Scenario, method: str, objective: str):
+    # Looked up at call time, so that tests can count solver calls by patching the module.
+    if method == "energy":
+        from climbopt import rutowski
+
+        return rutowski.solve_energy_state(scenario, objective)
+    from climbopt import collocation
+
+    return collocation.solve_collocation(scenario, objective)
+
+
+def run_case(scenario: Scenario, case: Case) -> dict:
+    """Solve one case; never raises for a failing case (the status and error text say why).
+
+    Returns the result columns (:data:`RESULT_COLUMNS`) as a dict of SI floats and strings.
+    """
+    t0 = time.perf_counter()
+    out = {"status": "ok", "time_s": math.nan, "fuel_kg": math.nan, "distance_m": math.nan,
+           "final_mass_kg": math.nan, "error": ""}
+    try:
+        traj = _solve(apply_case(scenario, case.values), case.method, case.objective)
+        out.update(time_s=traj.time_s, fuel_kg=traj.fuel_kg, distance_m=traj.distance_m,
+                   final_mass_kg=traj.final_mass_kg)
+        if not traj.converged:
+            out.update(status="solver-failure", error=f"not converged: {traj.status}")
+    except Exception as exc:  # a failing case is a result, not a crash
+        status = _classify(exc)
+        out.update(status=status, error=_error_text(exc, status))
+    out["wall_s"] = time.perf_counter() - t0
+    return out
+
+
+# ============================================================================================
+# The table (CSV, appended as cases finish)
+# ============================================================================================
+
+
+def _cell(value) -> str:
+    """CSV text of a value: floats exactly (repr), NaN and None empty."""
+    if value is None:
+        return ""
+    if isinstance(value, float):
+        return "" if math.isnan(value) else repr(value)
+    return str(value)
+
+
+def _comment_lines(plan: SweepPlan) -> list[str]:
+    return [f"# climbopt {__version__} sweep; scenario: {plan.scenario.name}; units: SI "
+            f"(column names carry the unit); one row per case",
+            f"# caution: {CAUTION}"]
+
+
+def _read_rows(path: Path) -> tuple[list[str] | None, list[list[str]]]:
+    """Header and rows of an existing table (comment lines and torn rows skipped)."""
+    with open(path, newline="", encoding="utf-8") as fh:
+        lines = [ln for ln in fh if not ln.startswith("#")]
+    if not lines:
+        return None, []
+    rows = list(csv.reader(lines))
+    header, body = rows[0], rows[1:]
+    return header, [r for r in body if len(r) == len(header)]
+
+
+def _repair_tail(path: Path) -> None:
+    """Cut a torn last line (a crash in the middle of a write) so appends start cleanly."""
+    with open(path, "rb+") as fh:
+        data = fh.read()
+        if data and not data.endswith(b"\n"):
+            fh.truncate(data.rfind(b"\n") + 1)
+
+
+def read_table(path) -> list[dict]:
+    """Rows of a sweep table as dicts: "case" int, numbers float (NaN for blank), text as is."""
+    header, rows = _read_rows(Path(path))
+    if header is None:
+        return []
+    text = {"key", "method", "objective", "status", "error"}
+    out = []
+    for r in rows:
+        d = {}
+        for k, v in zip(header, r):
+            if k == "case":
+                d[k] = int(v)
+            elif k in text:
+                d[k] = v
+            else:
+                d[k] = float(v) if v != "" else math.nan
+        out.append(d)
+    return out
+
+
+def write_parquet(table_path, parquet_path) -> Path:
+    """Write the CSV table ``table_path`` as Parquet (needs pyarrow; SweepError if missing)."""
+    try:
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+    except ImportError:
+        raise SweepError("--parquet needs the pyarrow package, which is not installed "
+                         "(pip install pyarrow), or leave out --parquet") from None
+    rows = read_table(table_path)
+    header, _ = _read_rows(Path(table_path))
+    cols = {}
+    for k in header:
+        vals = [r[k] for r in rows]
+        if k == "case":
+            cols[k] = pa.array(vals, pa.int64())
+        elif k in ("key", "method", "objective", "status", "error"):
+            cols[k] = pa.array(vals, pa.string())
+        else:
+            cols[k] = pa.array(vals, pa.float64())
+    table = pa.table(cols).replace_schema_metadata({"caution": CAUTION,
+                                                    "units": "SI (column names carry the unit)"})
+    parquet_path = Path(parquet_path)
+    tmp = parquet_path.with_name(f".{parquet_path.name}.tmp")
+    pq.write_table(table, tmp)
+    os.replace(tmp, parquet_path)
+    return parquet_path
+
+
+# ============================================================================================
+# Running
+# ============================================================================================
+
+
+@dataclass
+class SweepResult:
+    """What a sweep did.
+
+    ``computed`` cases were solved in this run, ``failed`` of them did not give a result,
+    ``skipped`` were already in the table, ``remaining`` were left for a later run (max_cases);
+    ``foreign_rows`` rows of the table belong to cases not in this sweep (kept at the end).
+    """
+
+    table_path: Path
+    total: int
+    computed: int = 0
+    failed: int = 0
+    skipped: int = 0
+    remaining: int = 0
+    foreign_rows: int = 0
+    wall_s: float = 0.0
+    executor: str = ""
+    workers: int = 1
+    rows: list[dict] = field(default_factory=list)
+
+    @property
+    def cases_per_s(self) -> float:
+        return self.computed / self.wall_s if self.wall_s > 0 else math.nan
+
+
+# -- workers ---------------------------------------------------------------------------------
+
+_WORKER_SCENARIO: Scenario | None = None
+
+
+def _init_pool_worker(scenario: Scenario) -> None:
+    """Pool worker start-up: keep the base scenario; leave Ctrl-C to the parent process."""
+    import signal
+
+    global _WORKER_SCENARIO
+    _WORKER_SCENARIO = scenario
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+def _run_pooled(case: Case) -> dict:
+    return run_case(_WORKER_SCENARIO, case)
+
+
+def _pool_context():
+    """Start method of the pool's processes.
+
+    "fork" while this process runs a single thread: fast (workers inherit the imported modules)
+    and no re-import of the main script. Once other threads run (a Dask client, a progress-bar
+    monitor), forking could copy a lock held by one of them, so "forkserver" is used instead:
+    a clean server process that imports climbopt once and forks the workers (then a calling
+    script needs the usual ``if __name__ == "__main__":`` guard). Elsewhere: the platform default.
+    """
+    import multiprocessing as mp
+    import threading
+
+    methods = mp.get_all_start_methods()
+    if "fork" in methods and threading.active_count() == 1:
+        return mp.get_context("fork")
+    if "forkserver" in methods:
+        ctx = mp.get_context("forkserver")
+        ctx.set_forkserver_preload(["climbopt.sweep", "climbopt.rutowski", "climbopt.aircraft"])
+        return ctx
+    return mp.get_context()
+
+
+def default_workers() -> int:
+    """Cores this process may use."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - not Linux
+        return os.cpu_count() or 1
+
+
+class _PoolBackend:
+    def __init__(self, scenario: Scenario, workers: int):
+        self.workers = workers
+        self.pool = ProcessPoolExecutor(max_workers=workers, mp_context=_pool_context(),
+                                        initializer=_init_pool_worker, initargs=(scenario,))
+        self.window = 2 * workers
+
+    def submit(self, case: Case):
+        return self.pool.submit(_run_pooled, case)
+
+    def wait_first(self, futures):
+        done, _ = _futures_wait(futures, return_when=FIRST_COMPLETED)
+        return done
+
+    def result(self, fut, case: Case) -> dict:
+        from concurrent.futures.process import BrokenProcessPool
+
+        try:
+            return fut.result()
+        except BrokenProcessPool as exc:
+            raise SweepAborted(f"a worker process died (case {case.index}): {exc}; the finished "
+                             f"cases are in the table, re-run to continue") from None
+
+    def close(self, cancel: bool) -> None:
+        self.pool.shutdown(wait=True, cancel_futures=cancel)
+
+
+class _DaskBackend:
+    def __init__(self, scenario: Scenario, cluster):
+        try:
+            import distributed
+        except ImportError:
+            raise SweepError("--cluster needs Dask distributed, which is not installed; install "
+                             "the optional extra: pip install 'climbopt[dask]'") from None
+        self._distributed = distributed
+        if isinstance(cluster, str):
+            try:
+                self.client = distributed.Client(cluster, timeout="10s")
+            except (OSError, TimeoutError, ValueError) as exc:
+                raise SweepError(f"cannot connect to the Dask scheduler at {cluster!r}: "
+                                 f"{' '.join(str(exc).split())}") from None
+            self.own_client = True
+        else:
+            self.client, self.own_client = cluster, False
+        self.workers = max(1, sum(self.client.nthreads().values()))
+        self.window = max(4, 2 * self.workers)
+        self.scenario = self.client.scatter(scenario, broadcast=True)
+
+    def submit(self, case: Case):
+        return self.client.submit(run_case, self.scenario, case, pure=False, retries=0)
+
+    def wait_first(self, futures):
+        done, _ = self._distributed.wait(futures, return_when="FIRST_COMPLETED")
+        return done
+
+    def result(self, fut, case: Case) -> dict:
+        try:
+            return fut.result()
+        except self._distributed.KilledWorker as exc:  # the case kept killing workers
+            return {"status": "error", "time_s": math.nan, "fuel_kg": math.nan,
+                    "distance_m": math.nan, "final_mass_kg": math.nan, "wall_s": math.nan,
+                    "error": f"KilledWorker: {' '.join(str(exc).split())}"}
+        except Exception as exc:
+            raise SweepAborted(f"the Dask cluster failed on case {case.index}: "
+                             f"{type(exc).__name__}: {exc}") from None
+
+    def close(self, cancel: bool) -> None:
+        try:
+            if self.own_client:
+                self.client.close()
+        except Exception:  # pragma: no cover - closing a broken connection
+            pass
+
+    def cancel(self, futures) -> None:
+        if futures:
+            self.client.cancel(list(futures))
+
+
+def run_sweep(plan: SweepPlan, table_path, *, executor: str = "pool", workers: int | None = None,
+              cluster=None, max_cases: int | None = None, retry_failed: bool = False,
+              on_start: Callable[[int, int], None] | None = None,
+              on_case: Callable[[dict], None] | None = None) -> SweepResult:
+    """Run the cases of ``plan`` not yet in the table at ``table_path``.
+
+    Parameters
+    ----------
+    plan : SweepPlan
+        From :func:`plan_sweep`.
+    table_path : path
+        CSV table; created (with its folder) if missing, appended to otherwise. A table with
+        other columns (another sweep) is refused.
+    executor : str
+        "serial", "pool" (local processes, default) or "dask" (needs ``cluster``).
+    workers : int, optional
+        Pool size (default: all cores this process may use).
+    cluster : str or distributed.Client
+        Dask scheduler address (e.g. "tcp://10.0.0.5:8786") or a connected client.
+    max_cases : int, optional
+        Compute at most this many cases in this run (the rest on a re-run).
+    retry_failed : bool
+        Solve again the cases recorded with a status other than "ok".
+    on_start : callable(to_run, skipped), optional
+        Called once before the first case.
+    on_case : callable(row), optional
+        Called after each finished case's row is written (row: dict of the table's columns,
+        typed). An exception raised here stops the sweep (cases in flight are cancelled; rows
+        already written stay) and propagates.
+
+    Returns
+    -------
+    SweepResult
+        Counts, wall time and the final table rows (current cases in case order, then rows of
+        cases not in this sweep).
+    """
+    if executor not in ("serial", "pool", "dask"):
+        raise SweepError(f"executor must be serial, pool or dask, got {executor!r}")
+    if executor == "dask" and cluster is None:
+        raise SweepError("the dask executor needs a cluster address")
+    if max_cases is not None and max_cases < 0:
+        raise SweepError(f"max_cases must be 0 or more, got {max_cases}")
+    header = plan.header
+    table_path = Path(table_path)
+    table_path.parent.mkdir(parents=True, exist_ok=True)
+
+    existing: dict[str, list[str]] = {}  # key -> last row
+    if table_path.exists() and table_path.stat().st_size > 0:
+        old_header, old_rows = _read_rows(table_path)
+        if old_header is not None and old_header != header:
+            raise SweepError(
+                f"{table_path} holds another sweep (columns {', '.join(old_header)}); this "
+                f"sweep writes columns {', '.join(header)}: choose another output or remove it")
+        _repair_tail(table_path)
+        for r in old_rows:
+            existing[r[1]] = r
+    else:
+        with open(table_path, "w", newline="", encoding="utf-8") as fh:
+            fh.write("\n".join(_comment_lines(plan)) + "\n")
+            csv.writer(fh, lineterminator="\n").writerow(header)
+
+    status_col = header.index("status")
+    todo, skipped = [], 0
+    for case in plan.cases:
+        row = existing.get(case.key)
+        if row is not None and not (retry_failed and row[status_col] != "ok"):
+            skipped += 1
+        else:
+            todo.append(case)
+    remaining = 0
+    if max_cases is not None and len(todo) > max_cases:
+        remaining = len(todo) - max_cases
+        todo = todo[:max_cases]
+
+    result = SweepResult(table_path, total=len(plan.cases), skipped=skipped, remaining=remaining,
+                         executor=executor)
+    params = plan.parameters
+    method_name = METHODS[plan.method]
+    fresh: dict[str, list[str]] = {}
+    t0 = time.perf_counter()
+
+    with open(table_path, "a", newline="", encoding="utf-8") as fh:
+        writer = csv.writer(fh, lineterminator="\n")
+
+        def record(case: Case, out: dict) -> None:
+            values = dict(case.values)
+            typed = {"case": case.index, "key": case.key, "method": method_name,
+                     "objective": case.objective}
+            for p in params:
+                typed[p.column] = values.get(p.name, math.nan)
+            typed.update({k: out.get(k, math.nan if k in _NUMERIC_RESULTS else "")
+                          for k in RESULT_COLUMNS})
+            cells = [_cell(typed[k]) for k in header]
+            writer.writerow(cells)
+            fh.flush()
+            fresh[case.key] = cells
+            result.computed += 1
+            if typed["status"] != "ok":
+                result.failed += 1
+            if on_case is not None:
+                on_case(typed)
+
+        if executor == "serial" or not todo:
+            result.workers = 1
+            if on_start is not None:
+                on_start(len(todo), skipped)
+            for case in todo:
+                record(case, run_case(plan.scenario, case))
+        else:
+            if executor == "pool":
+                n = workers or default_workers()
+                backend = _PoolBackend(plan.scenario, max(1, min(n, len(todo))))
+            else:
+                backend = _DaskBackend(plan.scenario, cluster)
+            result.workers = backend.workers
+            pending: dict = {}
+            queue = iter(todo)
+            ok = False
+            try:
+                for case in itertools.islice(queue, backend.window):
+                    pending[backend.submit(case)] = case
+                if on_start is not None:  # after the pool processes started (see _pool_context)
+                    on_start(len(todo), skipped)
+                while pending:
+                    done = sorted(backend.wait_first(list(pending)), key=lambda f: pending[f].index)
+                    for fut in done:
+                        case = pending.pop(fut)
+                        record(case, backend.result(fut, case))
+                    for case in itertools.islice(queue, len(done)):
+                        pending[backend.submit(case)] = case
+                ok = True
+            finally:
+                if not ok and hasattr(backend, "cancel"):
+                    backend.cancel(pending)
+                backend.close(cancel=not ok)
+    result.wall_s = time.perf_counter() - t0
+
+    # final table: this sweep's cases in case order, then rows of other cases, latest row wins
+    merged = dict(existing)
+    merged.update(fresh)
+    ordered = [merged[c.key] for c in plan.cases if c.key in merged]
+    ours = {c.key for c in plan.cases}
+    foreign = [r for k, r in merged.items() if k not in ours]
+    result.foreign_rows = len(foreign)
+    buf = io.StringIO()
+    buf.write("\n".join(_comment_lines(plan)) + "\n")
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(header)
+    w.writerows(ordered + foreign)
+    tmp = table_path.with_name(f".{table_path.name}.tmp")
+    tmp.write_text(buf.getvalue(), encoding="utf-8")
+    os.replace(tmp, table_path)
+    result.rows = read_table(table_path)
+    return result
+
+
+# ============================================================================================
+# Trade-off curve
+# ============================================================================================
+
+
+def pareto_front(times, fuels) -> list[int]:
+    """Indices of the points not dominated in (time, fuel), ordered by time.
+
+    A point is dominated when another has time and fuel both no larger and one smaller.
+    NaN points are left out.
+    """
+    pts = [(t, f, i) for i, (t, f) in enumerate(zip(times, fuels))
+           if not (math.isnan(t) or math.isnan(f))]
+    pts.sort()
+    front, best_fuel = [], math.inf
+    for t, f, i in pts:
+        if f < best_fuel:
+            front.append(i)
+            best_fuel = f
+    return front
+
+
+def tradeoff_curve(rows: list[dict]) -> dict:
+    """The time-fuel trade-off of one group of weighted cases (same other inputs).
+
+    ``rows`` are table rows with objective "weighted" (and optionally the "time" and "fuel"
+    anchors). Returns ``cost_weight``, ``time_s``, ``fuel_kg`` (ok cases, by increasing cost
+    weight), ``front`` (indices into those arrays of the non-dominated points), ``monotone``
+    (time never rises and fuel never falls as the weight grows, to 1e-9 relative), and
+    ``min_time`` / ``min_fuel`` anchor rows (or None).
+    """
+    w = [r for r in rows if r["objective"] == "weighted" and r["status"] == "ok"]
+    w.sort(key=lambda r: r["cost_weight_kg_per_s"])
+    t = [r["time_s"] for r in w]
+    f = [r["fuel_kg"] for r in w]
+    tol = 1e-9
+    mono = all(t[i + 1] <= t[i] * (1 + tol) and f[i + 1] >= f[i] * (1 - tol)
+               for i in range(len(w) - 1))
+    anchor = {o: next((r for r in rows if r["objective"] == o and r["status"] == "ok"), None)
+              for o in ("time", "fuel")}
+    return {"cost_weight": [r["cost_weight_kg_per_s"] for r in w], "time_s": t, "fuel_kg": f,
+            "front": pareto_front(t, f), "monotone": mono, "min_time": anchor["time"],
+            "min_fuel": anchor["fuel"]}
+
+
+def _groups(rows: list[dict], columns: list[str]) -> list[tuple[tuple, list[dict]]]:
+    """Rows grouped by the values of ``columns`` (order of first appearance)."""
+    out: dict[tuple, list[dict]] = {}
+    for r in rows:
+        out.setdefault(tuple(r[c] for c in columns), []).append(r)
+    return list(out.items())
+
+
+# ============================================================================================
+# Plots
+# ============================================================================================
+
+
+def _shown(value_si: float, unit: str) -> str:
+    return f"{from_si(value_si, unit):g} {unit}".strip() if unit else f"{value_si:g}"
+
+
+def plot_sweep(plan: SweepPlan, rows: list[dict], out_dir) -> list[Path]:
+    """Figures of a sweep in ``out_dir``: ``sweep_<name>.png/.svg`` (time and fuel against each
+    varied input, one line per combination of the other inputs) and, when the cost weight is
+    varied, ``tradeoff.png/.svg`` (fuel against time along the weight, non-dominated points
+    filled, minimum-time and minimum-fuel solutions marked). Returns the paths written."""
+    from climbopt.plots import OBJECTIVE_COLOURS, OBJECTIVE_MARKERS, plt, save_figure
+
+    out_dir = Path(out_dir)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    params = plan.parameters
+    units = {v.name: (v.unit or p.si_unit) for v, p in zip(plan.variations, params)}
+    keys = {c.key for c in plan.cases}
+    main = [r for r in rows if r["key"] in keys and r["objective"] == plan.objective]
+    written: list[Path] = []
+    palette = plt.get_cmap("viridis")
+
+    for p in params:
+        others = [q for q in params if q is not p]
+        groups = _groups(main, [q.column for q in others])
+        fig, (ax_t, ax_f) = plt.subplots(2, 1, figsize=(6.4, 6.0), sharex=True)
+        failed_x: list[float] = []
+        for gi, (gvals, grows) in enumerate(groups):
+            grows = sorted(grows, key=lambda r: r[p.column])
+            x = [from_si(r[p.column], units[p.name]) if units[p.name] else r[p.column]
+                 for r in grows]
+            ok = [r["status"] == "ok" for r in grows]
+            colour = palette(gi / max(1, len(groups) - 1)) if len(groups) > 1 else "#233d4d"
+            label = ", ".join(f"{q.name} {_shown(v, units[q.name])}"
+                              for q, v in zip(others, gvals)) or None
+            for ax, col in ((ax_t, "time_s"), (ax_f, "fuel_kg")):
+                y = [r[col] if good else math.nan for r, good in zip(grows, ok)]
+                ax.plot(x, y, "-o", color=colour, markersize=3.5, linewidth=1.2,
+                        label=label if ax is ax_t else None)
+            failed_x += [xi for xi, good in zip(x, ok) if not good]
+        for ax in (ax_t, ax_f):  # failed cases: crosses along the bottom edge
+            if failed_x:
+                ax.plot(failed_x, [0.03] * len(failed_x), "x", color="#b03a2e", markersize=6,
+                        transform=ax.get_xaxis_transform(), clip_on=False, gid="failed",
+                        label="failed case" if ax is ax_t else None)
+        ax_t.set_ylabel("time [s]")
+        ax_f.set_ylabel("fuel [kg]")
+        ax_f.set_xlabel(f"{p.label} [{units[p.name]}]" if units[p.name] else p.label)
+        for ax in (ax_t, ax_f):
+            ax.grid(True, color="#dddddd", linewidth=0.5)
+        if len(groups) <= 8 and (others or any(r["status"] != "ok" for r in main)):
+            ax_t.legend(fontsize=7, loc="best")
+        n_bad = sum(r["status"] != "ok" for r in main)
+        fig.suptitle(f"{plan.scenario.name}\n{METHODS[plan.method]}, objective {plan.objective}"
+                     + (f" ({n_bad} failed case{'s' if n_bad != 1 else ''})" if n_bad else ""),
+                     fontsize=9)
+        written += save_figure(fig, out_dir / f"sweep_{p.name}")
+
+    if "cost_weight" in [p.name for p in params]:
+        others = [q for q in params if q.name != "cost_weight"]
+        ours = [r for r in rows if r["key"] in keys]
+        groups = _groups(ours, [q.column for q in others])
+        fig, ax = plt.subplots(figsize=(6.4, 5.0))
+        for gi, (gvals, grows) in enumerate(groups):
+            curve = tradeoff_curve(grows)
+            colour = palette(gi / max(1, len(groups) - 1)) if len(groups) > 1 else \
+                OBJECTIVE_COLOURS["weighted"]
+            label = ", ".join(f"{q.name} {_shown(v, units[q.name])}"
+                              for q, v in zip(others, gvals)) or "weighted fuel + w x time"
+            ax.plot(curve["time_s"], curve["fuel_kg"], "-", color=colour, linewidth=1.2,
+                    label=label, gid="tradeoff")
+            front = set(curve["front"])
+            for i, (t, f) in enumerate(zip(curve["time_s"], curve["fuel_kg"])):
+                ax.plot(t, f, OBJECTIVE_MARKERS["weighted"], markersize=4, color=colour,
+                        markerfacecolor=colour if i in front else "white")
+            for obj, words in (("time", "minimum time"), ("fuel", "minimum fuel")):
+                a = curve[f"min_{obj}"]
+                if a is not None:
+                    ax.plot(a["time_s"], a["fuel_kg"], OBJECTIVE_MARKERS[obj], markersize=9,
+                            color=OBJECTIVE_COLOURS[obj], markeredgecolor="black",
+                            label=words if gi == 0 else None, gid=f"min_{obj}")
+        ax.set_xlabel("time [s]")
+        ax.set_ylabel("fuel [kg]")
+        ax.grid(True, color="#dddddd", linewidth=0.5)
+        ax.legend(fontsize=7, loc="best")
+        ax.set_title(f"{plan.scenario.name}\ntime-fuel trade-off over the cost weight "
+                     f"({METHODS[plan.method]}); hollow: dominated", fontsize=9)
+        written += save_figure(fig, out_dir / "tradeoff")
+    return written
