@@ -155,7 +155,9 @@ def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str
         raise ValueError(f"x must be 'mach' or 'tas', got {x!r}")
     u = _axis_units(units)
     if ax is None:
-        _, ax = plt.subplots(figsize=(10.0, 6.0))
+        fig, ax = plt.subplots(figsize=(10.0, 6.0))
+        # fixed margins (room for the legend on the right): saving needs no tight-bbox pass
+        fig.subplots_adjust(left=0.07, right=0.74, bottom=0.1, top=0.93)
     alt_fn, alt_label = u["alt"]
     Y = alt_fn(np.broadcast_to(energy_map.altitude_m[:, None], energy_map.shape))
     X = energy_map.mach if x == "mach" else u["tas"][0](energy_map.tas_m_s)
@@ -304,6 +306,7 @@ def plot_time_histories(trajectories, *, units: str = "si", axes=None):
     u = _axis_units(units)
     if axes is None:
         fig, axes = plt.subplots(len(TIME_PANELS), 1, sharex=True, figsize=(8.0, 9.0))
+        fig.subplots_adjust(left=0.11, right=0.97, bottom=0.07, top=0.95, hspace=0.12)
     axes = np.asarray(axes).ravel()
     if axes.size != len(TIME_PANELS):
         raise ValueError(f"plot_time_histories needs {len(TIME_PANELS)} axes, got {axes.size}")
@@ -344,16 +347,18 @@ def add_caution(fig) -> None:
              wrap=True)
 
 
-def save_figure(fig, path_stem, formats=("png", "svg"), dpi: int = 120) -> list:
+def save_figure(fig, path_stem, formats=("png", "svg"), dpi: int = 110,
+                tight: bool = False) -> list:
     """Save ``fig`` as ``<path_stem>.png`` and ``.svg`` (with the caution at its foot) and close
-    it. Returns the paths written."""
+    it. ``tight=True`` trims the margins (one more drawing pass; figures made by this module
+    have fixed margins and do not need it). Returns the paths written."""
     from pathlib import Path
 
     add_caution(fig)
     written = []
     for fmt in formats:
         path = Path(f"{path_stem}.{fmt}")
-        fig.savefig(path, dpi=dpi, bbox_inches="tight")
+        fig.savefig(path, dpi=dpi, bbox_inches="tight" if tight else None)
         written.append(path)
     plt.close(fig)
     return written

@@ -128,12 +128,12 @@ def column_header(key: str, units: str) -> str:
 # comparison
 
 def verification_miss(verification: dict | None) -> float | None:
-    """The headline re-simulation miss of a verification record (relative, as a fraction), or
-    ``None``. Uses the first of ``final_state_miss_rel``, ``final_energy_height_miss_rel``,
-    ``final_state_miss`` found."""
+    """The headline re-simulation miss of a verification record (:func:`climbopt.verify.resimulate`):
+    ``final_miss_relative``, the final-state miss expressed as energy height over the final
+    energy height (a fraction), or ``None``."""
     if not verification:
         return None
-    for key in ("final_state_miss_rel", "final_energy_height_miss_rel", "final_state_miss"):
+    for key in ("final_miss_relative",):
         value = verification.get(key)
         if isinstance(value, (int, float)) and math.isfinite(value):
             return float(value)
@@ -247,7 +247,8 @@ def format_table(records: list[dict], units: str = "si") -> str:
                     best = rec["best_time"] if key == "time_diff_pct" else rec["best_fuel"]
                     row.append("best" if best else f"+{_fmt(v, 1)}")
             elif key == "verification_miss":
-                row.append(_fmt(v, 3))
+                flag = "" if (rec.get("verification") or {}).get("ok", True) else " (FAILED)"
+                row.append(_fmt(v, 3) + flag)
             elif key == "wall_s":
                 row.append(_fmt(v, 2))
             else:
@@ -262,6 +263,9 @@ def format_table(records: list[dict], units: str = "si") -> str:
             text.append("  ".join("-" * w for w in widths))
     if any(not rec["converged"] for rec in records):
         text.append("NO = not converged: shown for information, never ranked as optimal.")
+    if any(not (rec.get("verification") or {}).get("ok", True) for rec in records):
+        text.append("FAILED = the re-simulation of the controls misses the path by more than "
+                    "the stated tolerance (see summary.json, verification).")
     return "\n".join(text)
 
 

@@ -100,7 +100,7 @@ def test_comparison_csv_and_summary_json(tmp_path):
     """comparison.csv in US units holds the fuel in lb (hand conversion); summary.json keeps SI
     keys, has the caution, and writes NaN as null."""
     traj = _traj("energy-state", "time", 300.0, 500.0)
-    traj.verification = {"final_state_miss_rel": float("nan")}
+    traj.verification = {"final_miss_relative": float("nan"), "ok": False}
     rows = report.comparison([traj])
     report.write_comparison_csv(tmp_path / "c.csv", rows, "us", "demo")
     header, body = report.read_csv(tmp_path / "c.csv")
@@ -118,7 +118,8 @@ def test_comparison_csv_and_summary_json(tmp_path):
         assert key in res
     assert res["fuel_kg"] == pytest.approx(500.0)
     assert res["display"]["fuel [lb]"] == pytest.approx(500.0 / LB)
-    assert res["verification"]["final_state_miss_rel"] is None
+    assert res["verification"]["final_miss_relative"] is None
+    assert res["verification_miss"] is None
 
 
 def test_atomic_output_dir_replaces_whole_folder(tmp_path):
@@ -192,3 +193,19 @@ def test_column_headers_us():
     assert got["mach"] == "mach" and got["throttle"] == "throttle"
     assert got["fuel_used_kg"] == "fuel_used_lb"
     assert len(set(got.values())) == len(COLUMNS)
+
+
+def test_verification_miss_in_table():
+    """The re-simulation miss (fraction) is shown in percent; a failed check is flagged."""
+    good = _traj("collocation", "time", 300.0, 500.0)
+    good.verification = {"final_miss_relative": 2.5e-4, "ok": True}
+    bad = _traj("collocation", "fuel", 320.0, 450.0)
+    bad.verification = {"final_miss_relative": 3.0e-2, "ok": False}
+    rows = report.comparison([good, bad])
+    assert rows[0]["verification_miss"] == pytest.approx(2.5e-4)
+    text = report.format_table(rows, "si")
+    lines = text.splitlines()
+    assert lines[2].endswith("0.025")
+    assert lines[3].endswith("3.000 (FAILED)")
+    assert "re-simulation" in text
+    assert report.display_record(rows[1], "si")["verification miss [%]"] == pytest.approx(3.0)
