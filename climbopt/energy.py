@@ -429,7 +429,7 @@ def best_climb_speed(model, altitude_m, mass_kg=None, *, objective: str = "time"
     """Speed of maximum Ps (``objective="time"``) or of maximum Ps / fuel flow (``"fuel"``) at
     each given altitude: the steady (constant-speed) best-rate and most-economical climb speeds.
 
-    For steady climb Ps is the rate of climb (Anderson 1999, sec. 5.3, R/C = V (T - D) / W).
+    For steady climb Ps is the rate of climb (Anderson 1999, ch. 5: R/C = V (T - D) / W).
 
     Returns
     -------

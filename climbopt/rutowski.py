@@ -46,7 +46,7 @@ Numerics
 Energy levels are spaced evenly from the start to the target energy
 (``solver.grid_altitude_points`` levels). Each constant-energy line is parametrised by true
 airspeed between the altitude bounds and sampled at ``solver.grid_speed_points`` points; the two
-best sampled peaks are refined by a bounded golden-section search (:func:`climbopt.energy.
+best sampled peaks are refined by a bounded iterated grid search (:func:`climbopt.energy.
 maximise_on_lines`), so a maximum on a limit boundary (stall, q, Mach, CAS, altitude, table data)
 is found to within a fraction of a millimetre per second: the path then rides that limit. Where
 the optimal point jumps between branches (e.g. subsonic to supersonic), the jump energy is found
@@ -55,9 +55,9 @@ there. Costs are integrated with the trapezoidal rule in he over levels and jump
 
 Mass: the optimum on each level is chosen at the mass the aircraft has there. The path is
 solved with the start mass on every level, the mass is integrated along it, and the path is
-solved again with that mass profile, until the fuel burnt changes by less than 2e-5 of itself (a
-fixed-point iteration of the march in he; the first passes on a coarse grid, then two or three
-on the full grid).
+solved again with that mass profile (relaxed), until the fuel burnt it gives agrees with the
+profile used to within 2e-5 of itself (a fixed-point iteration of the march in he; the first
+passes with a coarse speed sampling, then usually one or two with the full one).
 
 Zooms take no time, no fuel and no distance in this model (its main idealisation): the real
 aircraft needs time to trade altitude for speed, so the energy-state time is an optimistic
@@ -92,8 +92,9 @@ _CEILING_BISECTIONS = 30
 _MAX_PASSES = 8
 _MASS_TOL_KG = 1e-3
 _MASS_TOL_REL = 2e-5
-#: Coarse grid (levels, speeds) of the first mass passes.
-_COARSE = (60, 80)
+#: Speeds per level and refinement rounds of the first (coarse) mass passes.
+_COARSE_POINTS = 80
+_COARSE_ROUNDS = 4
 #: A start or target point closer than this to the locus point (altitude) needs no zoom [m].
 _ZOOM_MIN_M = 1.0
 
@@ -141,6 +142,7 @@ class _Problem:
     h_top_m: float
     points: int
     refine: bool
+    rounds: int = 6
 
 
 def _m_ft(x_m: float) -> str:
@@ -196,14 +198,14 @@ def _optimise_levels(prob: _Problem, he, mass, cost: _Cost | None, dash: bool,
 
     all_rows = np.arange(he.size)
     v, val = maximise_on_lines(objective_for(dash, all_rows), v_lo, v_hi, n,
-                               refine=prob.refine)
+                               refine=prob.refine, rounds=prob.rounds)
     fallback = np.zeros(he.shape, dtype=bool)
     if dash:
         bad = ~np.isfinite(val)
         if bad.any():
             rows = np.flatnonzero(bad)
             v2, val2 = maximise_on_lines(objective_for(False, rows), v_lo[rows], v_hi[rows], n,
-                                         refine=prob.refine)
+                                         refine=prob.refine, rounds=prob.rounds)
             v[rows] = v2
             val[rows] = val2
             fallback[rows] = np.isfinite(val2)
@@ -318,15 +320,6 @@ class _Path:
         return self.he - self.tas**2 / (2.0 * G0)
 
 
-def _solve_levels(prob, he_levels, mass_fn, cost, dash, he_target):
-    """Optimal speed on every level (raises InfeasibleMission above the energy ceiling)."""
-    mass_levels = mass_fn(he_levels)
-    v, val, fallback = _optimise_levels(prob, he_levels, mass_levels, cost, dash)
-    if not np.all(np.isfinite(val)):
-        _raise_ceiling(prob, he_levels, val, mass_levels, he_target)
-    return v, fallback
-
-
 def _build_path(he_levels, v, jumps, fallback) -> _Path:
     """Locus nodes with each jump inserted as a pair of points at the jump energy."""
     he_nodes, v_nodes, zoom = [], [], []
@@ -434,34 +427,59 @@ def _cost_for(objective: str, w: float) -> _Cost:
 
 
 def _solve_climb(prob, he_levels, start_mass, cost, dash_info, he_target, progress, label):
-    """Mass fixed-point passes: coarse grid first, then the full grid with the branch jumps
-    located on every pass. Returns (path, integration, number of passes, cost used)."""
+    """Mass fixed-point passes, then the path. Returns (path, integration, passes, cost used).
+
+    The first passes sample each level coarsely in speed; the last ones use the full sampling
+    and locate the branch jumps. Each pass solves every level at the mass profile of the
+    previous one; the new profile is relaxed, ``m <- m + omega (m_new - m)``, with ``omega``
+    from the secant of the fuel burnt over the last two passes (this removes most of the
+    oscillation of the plain iteration). A level without any climbing point stops the pass
+    there (a lighter aircraft may climb on); if it stays out of reach once the mass has
+    converged, InfeasibleMission names the energy ceiling."""
     dash = dash_info is not None
-    mass_fn = _mass_function([he_levels[0], he_levels[-1]], [start_mass, start_mass])
+    used = np.full(he_levels.size, start_mass)  # mass profile used by the current pass
     cost_now = cost
-    coarse = replace(prob, points=min(prob.points, _COARSE[1]))
-    coarse_levels = np.linspace(he_levels[0], he_levels[-1], min(he_levels.size, _COARSE[0]))
+    coarse = replace(prob, points=min(prob.points, _COARSE_POINTS), rounds=_COARSE_ROUNDS)
     passes = 0
-    for grid_prob, levels, tol, jumps_on in ((coarse, coarse_levels, 10 * _MASS_TOL_REL, False),
-                                             (prob, he_levels, _MASS_TOL_REL, True)):
-        last_fuel = None
-        for _ in range(_MAX_PASSES):
+    hist = []  # (end fuel used by the pass's profile, end fuel computed)
+    for grid_prob, final in ((coarse, False), (prob, True)):
+        last_bad = None
+        for i_pass in range(_MAX_PASSES):
             passes += 1
-            v, fallback = _solve_levels(grid_prob, levels, mass_fn, cost_now, dash, he_target)
-            jumps = (_locate_jumps(grid_prob, levels, v, mass_fn, cost_now, dash)
-                     if jumps_on else [])
-            path = _build_path(levels, v, jumps, fallback)
+            mass_fn = _mass_function(he_levels, used)
+            v, val, fallback = _optimise_levels(grid_prob, he_levels, used, cost_now, dash)
+            bad = np.flatnonzero(~np.isfinite(val))
+            if bad.size and bad[0] == 0:
+                _raise_ceiling(grid_prob, he_levels, val, used, he_target)
+            n_ok = int(bad[0]) if bad.size else he_levels.size
+            jumps = (_locate_jumps(grid_prob, he_levels[:n_ok], v[:n_ok], mass_fn, cost_now, dash)
+                     if final else [])
+            path = _build_path(he_levels[:n_ok], v[:n_ok], jumps, fallback[:n_ok])
             integ = _integrate(grid_prob, path, mass_fn, start_mass)
-            mass_fn = _mass_function(path.he, integ["mass"])
             fuel = integ["fuel"][-1]
             if progress:
-                progress(f"energy-state {label}: pass {passes} ({levels.size} levels), fuel "
-                         f"{fuel:.3f} kg", min(0.9, 0.15 * passes))
-            if dash:
-                cost_now = replace(cost_now, dash_rate=dash_info(start_mass - fuel))
-            if last_fuel is not None and abs(fuel - last_fuel) < _MASS_TOL_KG + tol * fuel:
+                progress(f"energy-state {label}: pass {passes}, fuel {fuel:.3f} kg",
+                         min(0.9, 0.12 * passes))
+            fuel_used = start_mass - used[n_ok - 1]  # what this pass assumed at its end
+            tol = (1.0 if final else 10.0) * (_MASS_TOL_KG + _MASS_TOL_REL * fuel)
+            converged = abs(fuel - fuel_used) < tol and (not bad.size or last_bad == n_ok)
+            if bad.size and final and (converged or i_pass == _MAX_PASSES - 1):
+                _raise_ceiling(grid_prob, he_levels, val, used, he_target)
+            if converged:
                 break
-            last_fuel = fuel
+            # next mass profile (relaxed); beyond an unreachable level keep the last mass
+            new = np.interp(he_levels, path.he, integ["mass"])
+            hist.append((fuel_used, fuel))
+            omega = 1.0
+            if len(hist) >= 2:
+                (x0, g0), (x1, g1) = hist[-2], hist[-1]
+                if abs(x1 - x0) > 1e-9:
+                    lam = (g1 - g0) / (x1 - x0)
+                    omega = float(np.clip(1.0 / (1.0 - lam), 0.3, 1.5)) if lam < 1 else 1.0
+            used = used + omega * (new - used)
+            if dash:
+                cost_now = replace(cost_now, dash_rate=dash_info(used[-1]))
+            last_bad = n_ok
     return path, integ, passes, cost_now
 
 
@@ -483,7 +501,7 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
     progress : callable, optional
         ``progress(message, fraction)``.
     refine : bool
-        Refine each level's optimum by golden-section search (True; False only to study the
+        Refine each level's optimum by a bracketing search (True; False only to study the
         grid dependence).
 
     Returns
@@ -727,7 +745,7 @@ def _notes(prob, scenario, path, integ, passes, n_levels, objective, w):
         "are traded instantly at constant energy; zooms take no time, no fuel and no distance, "
         "so the time is an optimistic estimate when zooms are long",
         f"{n_levels} energy levels, {prob.points} speeds per level, optimum refined by "
-        f"golden-section search; mass updated along the path ({passes} passes)",
+        f"a bracketing search; mass updated along the path ({passes} passes)",
         "distance = integral V / Ps dhe (cos(gamma) taken as 1); flight-path angle from "
         "dh/dt = Ps dh/dhe along the path (approximate)",
     ]
