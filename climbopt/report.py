@@ -202,8 +202,8 @@ def comparison_columns(units: str) -> list[tuple[str, str]]:
         ("fuel_kg", f"fuel [{m}]"), ("distance_m", f"distance [{d}]"),
         ("final_mass_kg", f"final mass [{m}]"), ("time_diff_pct", "time vs best [%]"),
         ("fuel_diff_pct", "fuel vs best [%]"), ("converged", "converged"),
-        ("iterations", "iterations"), ("wall_s", "wall [s]"),
-        ("verification_miss", "verification miss [%]"),
+        ("iterations", "iter."), ("wall_s", "wall [s]"),
+        ("verification_miss", "re-sim miss [%]"),
     ]
 
 

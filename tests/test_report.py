@@ -208,4 +208,17 @@ def test_verification_miss_in_table():
     assert lines[2].endswith("0.025")
     assert lines[3].endswith("3.000 (FAILED)")
     assert "re-simulation" in text
-    assert report.display_record(rows[1], "si")["verification miss [%]"] == pytest.approx(3.0)
+    assert report.display_record(rows[1], "si")["re-sim miss [%]"] == pytest.approx(3.0)
+
+
+def test_public_api_exports():
+    """The package exposes each step of the data flow lazily (no CasADi import on
+    ``import climbopt``)."""
+    import climbopt
+    from climbopt.schedule import crossover_altitude_m
+
+    assert climbopt.crossover_altitude_m is crossover_altitude_m
+    for name in climbopt.__all__:
+        assert getattr(climbopt, name) is not None
+    with pytest.raises(AttributeError, match="no attribute 'nothing'"):
+        climbopt.nothing  # noqa: B018
