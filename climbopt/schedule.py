@@ -191,8 +191,8 @@ def climb_schedule(trajectory: Trajectory, step_m: float = STEP_SI_M, *,
     h_start, h_top = float(h[0]), float(h[top])
     notes: list[str] = []
     if np.any(np.diff(h[: top + 1]) < -1.0):
-        notes.append("the path descends somewhere before the top of climb (zoom dive); rows give "
-                     "the first time each altitude is reached")
+        notes.append("the path descends somewhere before the top of climb (a dive to gain speed); "
+                     "rows give the first time each altitude is reached")
 
     first = np.floor(h_start / step_m) * step_m + step_m
     levels = np.arange(first, h_top - 1e-6, step_m) if h_top > first else np.empty(0)
@@ -201,7 +201,7 @@ def climb_schedule(trajectory: Trajectory, step_m: float = STEP_SI_M, *,
         kept = fine_levels[fine_levels >= fit_above_m]
         if kept.size >= 2:
             fine_levels = kept
-            notes.append(f"crossover fitted above {fit_above_m:.0f} m only (speed restriction below)")
+            notes.append("crossover fitted above the speed-restriction altitude only")
 
     idx_fine = _first_passage(h, fine_levels)
     cas_x, mach_x, h_x = fit_cas_mach(
