@@ -492,9 +492,15 @@ def _comment_lines(plan: SweepPlan) -> list[str]:
 
 
 def _read_rows(path: Path) -> tuple[list[str] | None, list[list[str]]]:
-    """Header and rows of an existing table (comment lines and torn rows skipped)."""
+    """Header and rows of an existing table (comment lines and torn rows skipped).
+
+    Every complete row ends with a newline (no field holds one: error texts are single lines),
+    so text after the last newline is a row torn by a crash and is ignored.
+    """
     with open(path, newline="", encoding="utf-8") as fh:
-        lines = [ln for ln in fh if not ln.startswith("#")]
+        text = fh.read()
+    text = text[: text.rfind("\n") + 1]
+    lines = [ln for ln in text.splitlines(keepends=True) if not ln.startswith("#")]
     if not lines:
         return None, []
     rows = list(csv.reader(lines))
