@@ -382,7 +382,7 @@ def _dash_throttle(prob, altitude_m, tas_m_s, mass_kg):
     return throttle, drag, thrust_full, float(f.mach)
 
 
-def _dash(prob, target, mass0, distance_m, steps=40):
+def _dash(prob, target, mass0, distance_m, steps=16):
     """Level flight at the target state over ``distance_m``; mass updated (RK4 in distance).
 
     Returns dict with arrays distance, time, mass, fuel, throttle (relative to the dash start)."""
@@ -403,15 +403,17 @@ def _dash(prob, target, mass0, distance_m, steps=40):
 
     x = np.linspace(0.0, max(distance_m, 0.0), steps + 1)
     m = np.empty_like(x)
+    thr = np.empty_like(x)
     m[0] = mass0
     for i in range(steps):
         dx = x[i + 1] - x[i]
-        k1 = -rates(m[i])[0] / v
+        ff1, thr[i] = rates(m[i])
+        k1 = -ff1 / v
         k2 = -rates(m[i] + 0.5 * dx * k1)[0] / v
         k3 = -rates(m[i] + 0.5 * dx * k2)[0] / v
         k4 = -rates(m[i] + dx * k3)[0] / v
         m[i + 1] = m[i] + dx * (k1 + 2 * k2 + 2 * k3 + k4) / 6.0
-    thr = np.array([rates(mi)[1] for mi in m])
+    thr[-1] = rates(m[-1])[1]
     return dict(distance=x, time=x / v, mass=m, fuel=mass0 - m, throttle=thr)
 
 
@@ -484,7 +486,7 @@ def _solve_climb(prob, he_levels, start_mass, cost, dash_info, he_target, progre
 
 
 def solve_energy_state(scenario, objective: str = "time", *, model=None, progress=None,
-                       refine: bool = True) -> Trajectory:
+                       refine: bool = True, dash_climb: str = "best") -> Trajectory:
     """Energy-state climb (and dash) path for ``objective`` in "time" | "fuel" | "weighted".
 
     Parameters
@@ -503,6 +505,9 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
     refine : bool
         Refine each level's optimum by a bracketing search (True; False only to study the
         grid dependence).
+    dash_climb : str
+        With a dash distance: "best" (solve the range-aware and the plain climb, return the
+        cheaper, compare both in the notes), "range-aware" or "plain" (that one only).
 
     Returns
     -------
@@ -520,6 +525,8 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
     t_wall = _time.perf_counter()
     if objective not in ("time", "fuel", "weighted"):
         raise ValueError(f"objective must be 'time', 'fuel' or 'weighted', got {objective!r}")
+    if dash_climb not in ("best", "range-aware", "plain"):
+        raise ValueError(f"dash_climb must be 'best', 'range-aware' or 'plain', got {dash_climb!r}")
     if model is None:
         from climbopt.aircraft import build_model
 
@@ -571,35 +578,43 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
 
         cost = replace(cost, dash_rate=dash_info(start_mass), dash_tas_m_s=target.tas_m_s)
 
-    plain = _solve_climb(prob, he_levels, start_mass, cost, None, hef, progress, objective)
-    chosen = plain
-    variant = "plain"
+    variants = {}
+    if not dash_m or dash_climb in ("best", "plain"):
+        variants["plain"] = _solve_climb(prob, he_levels, start_mass, cost, None, hef, progress,
+                                         objective)
+    if dash_m and dash_climb in ("best", "range-aware"):
+        variants["range-aware"] = _solve_climb(prob, he_levels, start_mass, cost, dash_info, hef,
+                                               progress, objective + " (range-aware)")
+    variant = next(iter(variants))
     if dash_m:
-        aware = _solve_climb(prob, he_levels, start_mass, cost, dash_info, hef, progress,
-                             objective + " (range-aware)")
         totals = {}
-        for name, (path, integ, _, _) in (("plain", plain), ("range-aware", aware)):
+        dashes = {}
+        for name, (path, integ, _, _) in variants.items():
             x_c = integ["distance"][-1]
-            dash = _dash(prob, target, start_mass - integ["fuel"][-1], dash_m - x_c)
+            dash = dashes[name] = _dash(prob, target, start_mass - integ["fuel"][-1],
+                                        dash_m - x_c)
             totals[name] = (integ["time"][-1] + dash["time"][-1],
                             integ["fuel"][-1] + dash["fuel"][-1], x_c)
         j = {k: cost.fuel_weight * v[1] + cost.time_weight * v[0] for k, v in totals.items()}
-        variant = "range-aware" if j["range-aware"] <= j["plain"] else "plain"
-        chosen = aware if variant == "range-aware" else plain
+        variant = min(j, key=j.get)
         label = {"time": "time", "fuel": "fuel", "weighted": f"fuel + {w:g} kg/s x time"}[objective]
-        for name in ("range-aware", "plain"):
-            tt, ff, xc = totals[name]
+        for name, (tt, ff, xc) in totals.items():
+            over = (" - more than the dash distance, so the range-aware premise (a dash after "
+                    "the climb) fails" if name == "range-aware" and xc > dash_m else "")
             notes.append(
                 f"dash to {dash_m / 1000:.1f} km: {name} energy climb then dash: total time "
-                f"{tt:.1f} s, fuel {ff:.1f} kg (climb covers {xc / 1000:.1f} km)")
-        notes.append(
-            f"dash: the {variant} climb is returned (lower {label}); the range-aware climb "
-            "maximises Ps / (r - r_d V / V_d) on each energy level (see climbopt.rutowski)")
-        if aware[0].fallback_levels:
+                f"{tt:.1f} s, fuel {ff:.1f} kg (climb covers {xc / 1000:.1f} km{over})")
+        if len(variants) > 1:
+            notes.append(
+                f"dash: the {variant} climb is returned (lower {label}); the range-aware climb "
+                "maximises Ps / (r - r_d V / V_d) on each energy level (see climbopt.rutowski)")
+        aware = variants.get("range-aware")
+        if aware is not None and aware[0].fallback_levels:
             notes.append(
                 f"dash: on {aware[0].fallback_levels} energy levels every climbing point covers "
                 "distance more cheaply than the dash itself (degenerate range-aware objective); "
                 "the plain objective was used there")
+    chosen = variants[variant]
 
     path, integ, passes, cost_used = chosen
     table, zooms = _table(prob, scenario, path, integ, start, target, start_mass)
@@ -610,7 +625,7 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
                 f"dash: the climb alone covers {x_c / 1000:.1f} km, more than the dash distance "
                 f"{dash_m / 1000:.1f} km; no dash leg is flown (the target is reached beyond it)")
         else:
-            dash = _dash(prob, target, table["mass_kg"][-1], dash_m - x_c)
+            dash = dashes[variant]  # flown from the same end-of-climb mass and distance
             table = _append_dash(prob, table, dash, target)
             notes.append(
                 f"dash: level flight at the target state for {(dash_m - x_c) / 1000:.1f} km, "
