@@ -1,0 +1,259 @@
+"""Re-simulation check of an optimised trajectory: fly its controls, see where the aircraft ends up.
+
+The control histories stored on a trajectory (``trajectory.controls``: lift coefficient and
+throttle) are interpolated in time and the point-mass equations of motion (flat Earth; Bryson,
+Desai & Hoffman, J. Aircraft 6(6), 1969; see :mod:`climbopt.collocation`) are integrated from
+the trajectory's first point with scipy's ``solve_ivp`` (DOP853, rtol 1e-10, absolute tolerances
+scaled per state). The equations are written here a second time, in numpy, on the aircraft
+model's numpy path, independently of the CasADi transcription, so the check also catches
+transcription errors.
+
+Controls are interpolated the way the collocation solver represents them: for a collocation
+trajectory (points = mesh nodes and interval midpoints) a quadratic through node, midpoint and
+node on each interval (Hermite-Simpson; Betts, *Practical Methods for Optimal Control*, 2nd ed.,
+SIAM 2010, sec. 4.5), otherwise linearly. Each interval is integrated separately (the controls
+have kinks at the nodes).
+
+Reported:
+
+* ``final_state_miss``: simulated minus trajectory final state, per state (m, m/s, rad, kg, m);
+* ``final_miss_energy_m``: sqrt(dh^2 + (V dV / g0)^2), the miss in altitude and speed expressed
+  as energy height [m], and ``final_miss_relative`` = that / final energy height;
+* ``path_violations``: the largest excess over each limit along the simulated path (all
+  integrator steps), relative to the limit (altitude: metres over the final energy height);
+  ``max_path_violation`` the largest of them;
+* ``ok``: ``final_miss_relative <= FINAL_MISS_TOLERANCE`` and ``max_path_violation <=
+  PATH_VIOLATION_TOLERANCE`` and the integration stayed inside the model's tables.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy.integrate import solve_ivp
+
+from climbopt.airspeed import impact_pressure_from_cas, impact_pressure_pa
+from climbopt.atmosphere import G0
+
+__all__ = ["resimulate", "FINAL_MISS_TOLERANCE", "PATH_VIOLATION_TOLERANCE", "RTOL"]
+
+#: Largest accepted final miss, as a fraction of the final energy height (0.1%).
+FINAL_MISS_TOLERANCE = 1.0e-3
+#: Largest accepted path-constraint excess along the re-simulated path, as a fraction of the
+#: limit (0.5%): between collocation points an open-loop re-simulation may drift slightly over a
+#: limit the optimum rides.
+PATH_VIOLATION_TOLERANCE = 5.0e-3
+#: Relative tolerance of the integration.
+RTOL = 1.0e-10
+#: State scales for the absolute tolerances (h, V, gamma, m as fraction of start mass, x).
+_SCALES = np.array([1.0e4, 300.0, 1.0, 1.0, 1.0e5])
+
+
+def _control_interpolant(t: np.ndarray, values: np.ndarray, quadratic: bool):
+    """u(t) on [t0, tN]: piecewise quadratic through (node, midpoint, node) or linear."""
+    if not quadratic:
+        return lambda tt: float(np.interp(tt, t, values))
+    nodes = t[0::2]
+
+    def u(tt):
+        k = int(np.clip(np.searchsorted(nodes, tt, side="right") - 1, 0, len(nodes) - 2))
+        t0, t1 = nodes[k], nodes[k + 1]
+        s = (tt - t0) / (t1 - t0)
+        u0, um, u1 = values[2 * k], values[2 * k + 1], values[2 * k + 2]
+        return float(u0 * (1 - s) * (1 - 2 * s) + um * 4 * s * (1 - s) + u1 * s * (2 * s - 1))
+
+    return u
+
+
+def _force_function(model, rating, body):
+    """CasADi Function (h, V, CL, throttle) -> [Mach, q, p, L, D, T, fuel flow, alpha_T].
+
+    The tables are the model's own spline fits (the same coefficients as its numpy path, see
+    :mod:`climbopt.fits`); CasADi is used only because calling it per integrator stage is ten
+    times faster than the numpy spline wrappers on scalars.
+    """
+    import casadi as ca
+
+    h, v, cl, thr = (ca.MX.sym(n) for n in ("h", "v", "cl", "thr"))
+    atm = model.atmosphere(h)
+    mach = v / atm.speed_of_sound_m_s
+    q = 0.5 * atm.density_kg_m3 * v * v
+    S = model.reference_area_m2
+    lift = q * S * cl
+    drag = q * S * model.drag_coefficient(cl, mach)
+    thrust = model.thrust_n(h, mach, thr, rating)
+    ff = model.fuel_flow_kg_s(h, mach, thr, rating)
+    alpha = cl / model.lift_slope_per_rad(mach) if body else ca.MX(0.0)
+    return ca.Function("forces", [h, v, cl, thr],
+                       [ca.vertcat(mach, q, atm.pressure_pa, lift, drag, thrust, ff, alpha)])
+
+
+def resimulate(trajectory, scenario, model=None) -> dict:
+    """Integrate the trajectory's controls and compare (see the module docstring).
+
+    Parameters
+    ----------
+    trajectory : Trajectory
+        Must carry ``controls`` with ``lift_coefficient`` and ``throttle`` at its points.
+    scenario : Scenario
+        Supplies the limits and mission (rating).
+    model : AircraftModel, optional
+        Built from the scenario when omitted.
+
+    Returns
+    -------
+    dict
+        ``ok`` (bool), ``message`` (str), ``final_state_miss`` (dict of per-state differences,
+        SI), ``final_miss_energy_m``, ``final_miss_relative``, ``final_energy_height_m``,
+        ``path_violations`` (dict, relative), ``max_path_violation``, ``tolerances`` (dict),
+        ``simulated_final_state`` (dict), ``steps`` (integrator steps).
+
+    Raises
+    ------
+    ValueError
+        The trajectory has no stored controls (e.g. an energy-state path, whose zooms take no
+        time and cannot be flown as such).
+    """
+    from climbopt.fits import ModelDomainError
+
+    if getattr(trajectory, "controls", None) is None:
+        raise ValueError(f"the {trajectory.method} trajectory has no control histories to "
+                         "re-simulate (only collocation results carry them)")
+    if model is None:
+        from climbopt.aircraft import build_model
+
+        model = build_model(scenario)
+    tb = trajectory.table
+    t = np.asarray(tb["time_s"], float)
+    n = t.size
+    quadratic = trajectory.method == "collocation" and n % 2 == 1 and n >= 3
+    cl_u = _control_interpolant(t, np.asarray(trajectory.controls["lift_coefficient"], float),
+                                quadratic)
+    th_u = _control_interpolant(t, np.asarray(trajectory.controls["throttle"], float), quadratic)
+    rating = scenario.mission.rating or model.default_rating
+    body = model.thrust_alignment == "body"
+    m0 = float(tb["mass_kg"][0])
+    scales = _SCALES * np.array([1, 1, 1, m0, 1])
+
+    forces = _force_function(model, rating, body)
+    dom = model.fit_domain
+
+    def rhs(tt, y):
+        h, v, gam, m, _x = y
+        if not (dom.altitude_min_m <= h <= dom.altitude_max_m) or v <= 0.0:
+            raise ModelDomainError(f"altitude {h:.6g} m, speed {v:.6g} m/s outside the tables")
+        cl, thr = cl_u(tt), th_u(tt)
+        mach, _, _, lift, drag, thrust, ff, alpha = np.asarray(forces(h, v, cl, thr)).ravel()
+        if not (dom.mach_min <= mach <= dom.mach_max):
+            raise ModelDomainError(f"Mach {mach:.6g} outside the tables")
+        return [
+            v * math.sin(gam),
+            (thrust * math.cos(alpha) - drag) / m - G0 * math.sin(gam),
+            (thrust * math.sin(alpha) + lift) / (m * v) - G0 * math.cos(gam) / v,
+            -ff,
+            v * math.cos(gam),
+        ]
+
+    y = np.array([tb["altitude_m"][0], tb["tas_m_s"][0], tb["flight_path_angle_rad"][0],
+                  tb["mass_kg"][0], tb["distance_m"][0]], float)
+    breaks = t[0::2] if quadratic else t
+    ts, ys = [t[0]], [y.copy()]
+    failure = ""
+    steps = 0
+    for k in range(len(breaks) - 1):
+        try:
+            sol = solve_ivp(rhs, (breaks[k], breaks[k + 1]), y, method="DOP853", rtol=RTOL,
+                            atol=RTOL * scales)
+        except (ModelDomainError, ValueError) as exc:
+            failure = f"the simulated path left the model's tables near t = {breaks[k]:.1f} s: {exc}"
+            break
+        if not sol.success:
+            failure = f"integration failed near t = {breaks[k]:.1f} s: {sol.message}"
+            break
+        steps += sol.t.size - 1
+        ts.extend(sol.t[1:])
+        ys.extend(sol.y[:, 1:].T)
+        y = sol.y[:, -1].copy()
+    ts = np.asarray(ts)
+    ys = np.asarray(ys)
+
+    final = np.array([tb["altitude_m"][-1], tb["tas_m_s"][-1], tb["flight_path_angle_rad"][-1],
+                      tb["mass_kg"][-1], tb["distance_m"][-1]], float)
+    he_f = float(final[0] + final[1] ** 2 / (2 * G0))
+    names = ("altitude_m", "tas_m_s", "flight_path_angle_rad", "mass_kg", "distance_m")
+    if failure:
+        miss = {k: float("nan") for k in names}
+        miss_e = float("inf")
+    else:
+        d = ys[-1] - final
+        miss = {k: float(v) for k, v in zip(names, d)}
+        miss_e = float(math.hypot(d[0], final[1] * d[1] / G0))
+    miss_rel = miss_e / abs(he_f) if he_f else float("inf")
+
+    violations = _path_violations(model, scenario, rating, body, ts, ys, cl_u, th_u, he_f)
+    max_viol = max(violations.values()) if violations else 0.0
+    ok = (not failure and miss_rel <= FINAL_MISS_TOLERANCE
+          and max_viol <= PATH_VIOLATION_TOLERANCE)
+    if failure:
+        message = failure
+    else:
+        worst = max(violations, key=violations.get) if violations else "none"
+        message = (f"final miss {miss_e:.3g} m of energy height ({miss_rel:.2e} of "
+                   f"{he_f:.0f} m; tolerance {FINAL_MISS_TOLERANCE:.0e}); largest path-limit "
+                   f"excess {max_viol:.2e} ({worst}; tolerance {PATH_VIOLATION_TOLERANCE:.0e})")
+    return {
+        "ok": bool(ok),
+        "message": message,
+        "final_state_miss": miss,
+        "final_miss_energy_m": miss_e,
+        "final_miss_relative": miss_rel,
+        "final_energy_height_m": he_f,
+        "path_violations": violations,
+        "max_path_violation": float(max_viol),
+        "tolerances": {"final_miss_relative": FINAL_MISS_TOLERANCE,
+                       "path_violation": PATH_VIOLATION_TOLERANCE, "rtol": RTOL},
+        "simulated_final_state": {k: float(v) for k, v in zip(names, ys[-1])},
+        "steps": int(steps),
+    }
+
+
+def _path_violations(model, scenario, rating, body, ts, ys, cl_u, th_u, he_f) -> dict:
+    """Largest relative excess over each scenario limit along the simulated points (>= 0)."""
+    lim = scenario.limits
+    h, v, m = ys[:, 0], ys[:, 1], ys[:, 3]
+    cl = np.array([cl_u(tt) for tt in ts])
+    atm = model.atmosphere(np.clip(h, model.atmosphere.altitude_min_m, model.atmosphere.altitude_max_m))
+    a = np.asarray(atm.speed_of_sound_m_s, float)
+    p = np.asarray(atm.pressure_pa, float)
+    mach = v / a
+    q = 0.5 * np.asarray(atm.density_kg_m3, float) * v * v
+    out = {}
+
+    def excess(value, limit):
+        return float(max(0.0, np.max(value / limit - 1.0)))
+
+    h_lo = max(lim.min_altitude_m, model.domain.altitude_min_m)
+    h_hi = model.domain.altitude_max_m
+    if lim.max_altitude_m is not None:
+        h_hi = min(h_hi, lim.max_altitude_m)
+    out["altitude"] = float(max(0.0, np.max(h_lo - h), np.max(h - h_hi)) / abs(he_f))
+    mach_cap = model.domain.mach_max if lim.max_mach is None else min(lim.max_mach,
+                                                                       model.domain.mach_max)
+    out["mach"] = excess(mach, mach_cap)
+    if lim.max_dynamic_pressure_pa is not None:
+        out["dynamic_pressure"] = excess(q, lim.max_dynamic_pressure_pa)
+    qc = np.asarray(impact_pressure_pa(np.maximum(mach, 0.0), p), float)
+    if lim.max_cas_m_s is not None:
+        out["cas"] = excess(qc, float(impact_pressure_from_cas(lim.max_cas_m_s)))
+    if lim.cas_restriction is not None:
+        cas_r, h_r = lim.cas_restriction
+        below = h <= h_r
+        out["cas_restriction"] = (excess(qc[below], float(impact_pressure_from_cas(cas_r)))
+                                  if below.any() else 0.0)
+    mc = np.clip(mach, model.fit_domain.mach_min, model.fit_domain.mach_max)
+    clmax = np.asarray(model.cl_max(mc, check=False), float)
+    out["cl_max"] = excess(np.abs(cl), clmax)
+    n_load = q * model.reference_area_m2 * cl / (m * G0)
+    out["load_factor"] = excess(np.abs(n_load), lim.max_load_factor)
+    return out
