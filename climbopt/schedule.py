@@ -40,8 +40,8 @@ def crossover_altitude_m(cas_m_s: float, mach: float) -> float:
     ``mach`` are the same airspeed.
 
     Solves q_c(CAS) = q_c(M, p(h)) for h, with q_c the impact pressure from the compressible
-    pitot formulas of :mod:`climbopt.airspeed` (subsonic isentropic relation; e.g. Anderson,
-    *Introduction to Flight*, ch. 4). Below the returned altitude, flying the CAS gives a Mach
+    pitot formulas of :mod:`climbopt.airspeed` (NACA Report 1135, 1953: isentropic subsonic and
+    Rayleigh supersonic pitot relations). Below the returned altitude, flying the CAS gives a Mach
     number below ``mach``; above it, more. A temperature offset does not move it (pressure at a
     given altitude is unchanged by the offset convention used throughout climbopt).
 
