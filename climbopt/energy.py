@@ -24,6 +24,7 @@ altitude (:func:`best_climb_speed`) and by the Rutowski solver on lines of const
 
 from __future__ import annotations
 
+import weakref
 from dataclasses import dataclass, field
 from functools import cached_property
 
@@ -65,7 +66,9 @@ class EnergyFields:
     """Energy-state quantities at a set of flight points (all arrays share one broadcast shape).
 
     Built by :func:`energy_fields`. Attributes (SI): ``altitude_m``, ``tas_m_s``, ``mach``,
-    ``energy_height_m``, ``dynamic_pressure_pa``, ``cl`` (at load factor n), ``cl_max``,
+    ``energy_height_m``, ``dynamic_pressure_pa``, ``cl`` (at load factor n), ``cl_max``
+    (CLmax(M) where CL comes within 10% of the model's lowest CLmax; elsewhere that lowest
+    value, which is all the stall test needs),
     ``thrust_n``, ``drag_n``, ``ps_m_s``, ``fuel_flow_kg_s``, ``feasible`` (bool) and
     ``limits`` (dict: limit name -> bool array, True where that limit is met). Outside the data
     domain the aerodynamic and engine values are those of the nearest fit point and meaningless:
@@ -137,7 +140,7 @@ def energy_fields(model, altitude_m, tas_m_s, mass_kg, *, limits: Limits | None 
     atm = model.atmosphere(h)
     mach = v / atm.speed_of_sound_m_s
     perf = model.evaluate(h, v, mass_kg, load_factor, throttle, rating, check=False)
-    cl_max = model.cl_max(mach, check=False)
+    cl_max = _cl_max_where_needed(model, mach, perf.cl)
     lim = {"data": model.in_domain(h, mach) & (v > 0.0)}
     if limits is None:
         limits = Limits(min_altitude_m=-np.inf)
@@ -163,6 +166,30 @@ def energy_fields(model, altitude_m, tas_m_s, mass_kg, *, limits: Limits | None 
     if cas is not None:
         fields.cas_m_s = np.broadcast_to(cas, shape)  # reuse (cached_property slot)
     return fields
+
+
+_CL_MAX_FLOOR: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
+
+
+def _cl_max_where_needed(model, mach, cl):
+    """CLmax(M), evaluated only where the lift coefficient comes near it.
+
+    Elsewhere the lowest CLmax of the model over its Mach range (sampled once per model at
+    2001 points; a stall test cannot fail there) is returned instead: on typical maps most
+    points fly far from stall, and this saves most of the CLmax fit evaluations."""
+    floor = _CL_MAX_FLOOR.get(model)
+    if floor is None:
+        d = model.domain
+        floor = float(np.min(model.cl_max(np.linspace(d.mach_min, d.mach_max, 2001),
+                                          check=False)))
+        _CL_MAX_FLOOR[model] = floor
+    mach_b, cl_b = np.broadcast_arrays(mach, cl)
+    with np.errstate(invalid="ignore"):
+        near = ~(cl_b < 0.9 * floor)  # includes NaN/inf lift coefficients
+    out = np.full(mach_b.shape, floor)
+    if near.any():
+        out[near] = model.cl_max(mach_b[near], check=False)
+    return out
 
 
 @dataclass

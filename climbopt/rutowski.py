@@ -78,7 +78,7 @@ import numpy as np
 from climbopt.airspeed import cas_from_mach
 from climbopt.atmosphere import G0
 from climbopt.energy import LIMIT_NAMES, energy_fields, maximise_on_lines
-from climbopt.results import Trajectory, Zoom
+from climbopt.results import COLUMNS, Trajectory, Zoom
 
 __all__ = ["InfeasibleMission", "solve_energy_state"]
 
@@ -276,7 +276,9 @@ def _locate_jumps(prob, he_levels, v, mass_fn, cost, dash):
     """
     h = he_levels - v**2 / (2.0 * G0)
     dhe = he_levels[1] - he_levels[0] if he_levels.size > 1 else 1.0
-    cand = np.flatnonzero(np.abs(np.diff(h)) > 4.0 * dhe + 100.0)
+    # on a continuous branch |dh/dhe| stays below about 2 (e.g. 1.1 at constant Mach 0.9 in the
+    # troposphere); larger steps are checked by bisection, which keeps only true jumps
+    cand = np.flatnonzero(np.abs(np.diff(h)) > 2.0 * dhe + 50.0)
     if cand.size == 0:
         return []
     lo = he_levels[cand].copy()
@@ -394,8 +396,8 @@ def _dash(prob, target, mass0, distance_m, steps=16):
         if thr > prob.throttle + 1e-12:
             raise InfeasibleMission(
                 f"the dash at the target state (altitude {_m_ft(h)}, Mach {mach:.2f}) needs "
-                f"{drag:,.0f} N of thrust to hold level flight, more than the {thrust * prob.throttle:,.0f} N "
-                f"available with rating {prob.rating!r}",
+                f"{drag:,.0f} N of thrust to hold level flight, more than the "
+                f"{thrust * prob.throttle:,.0f} N available with rating {prob.rating!r}",
                 math.nan, h, mach)
         thr_used = max(thr, model.throttle_min)
         ff = float(model.fuel_flow_kg_s(h, mach, thr_used, prob.rating))
@@ -617,7 +619,7 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
     chosen = variants[variant]
 
     path, integ, passes, cost_used = chosen
-    table, zooms = _table(prob, scenario, path, integ, start, target, start_mass)
+    table, zooms = _table(prob, path, integ, start, target)
     if dash_m:
         x_c = table["distance_m"][-1]
         if x_c >= dash_m:
@@ -657,12 +659,10 @@ def _gamma_along(path: _Path, ps, tas):
     return np.arcsin(np.clip(ps * dh_dhe / tas, -1.0, 1.0))
 
 
-def _table(prob, scenario, path, integ, start, target, start_mass):
+def _table(prob, path, integ, start, target):
     """Per-point table: start point, locus nodes (with jump zooms), target point."""
     model = prob.model
-    f = integ["fields"]
     mass = integ["mass"]
-    ps = np.asarray(f.ps_m_s, dtype=float)
     # Ps at the integrated mass (the optimum was chosen at the previous pass's mass)
     f_m = energy_fields(model, path.altitude, path.tas, mass, limits=prob.limits, load_factor=1.0,
                         throttle=prob.throttle, rating=prob.rating)
@@ -688,8 +688,9 @@ def _table(prob, scenario, path, integ, start, target, start_mass):
         fr = energy_fields(model, h_, v_, cols["mass_kg"][idx_from], limits=prob.limits,
                            throttle=prob.throttle, rating=prob.rating)
         return {"time_s": cols["time_s"][idx_from], "altitude_m": h_, "tas_m_s": v_,
-                "energy_height_m": he_, "ps_m_s": float(fr.ps_m_s), "flight_path_angle_rad": gamma,
-                "mass_kg": cols["mass_kg"][idx_from], "fuel_used_kg": cols["fuel_used_kg"][idx_from],
+                "energy_height_m": he_, "ps_m_s": float(fr.ps_m_s),
+                "flight_path_angle_rad": gamma, "mass_kg": cols["mass_kg"][idx_from],
+                "fuel_used_kg": cols["fuel_used_kg"][idx_from],
                 "distance_m": cols["distance_m"][idx_from], "throttle": prob.throttle}
 
     def insert(cols, i, r):
@@ -728,8 +729,6 @@ def _finish_columns(model, cols):
     mach = cols["tas_m_s"] / atm.speed_of_sound_m_s
     cols["mach"] = mach
     cols["cas_m_s"] = np.asarray(cas_from_mach(mach, atm.pressure_pa), dtype=float)
-    from climbopt.results import COLUMNS
-
     return {k: np.asarray(cols[k], dtype=float) for k in COLUMNS}
 
 

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from climbopt.aircraft import build_model
-from climbopt.energy import energy_fields, maximise_on_lines
+from climbopt.energy import energy_fields
 from climbopt.results import COLUMNS
 from climbopt.rutowski import InfeasibleMission, solve_energy_state
 from climbopt.scenario import load_scenario
