@@ -51,7 +51,8 @@ maximise_on_lines`), so a maximum on a limit boundary (stall, q, Mach, CAS, alti
 is found to within a fraction of a millimetre per second: the path then rides that limit. Where
 the optimal point jumps between branches (e.g. subsonic to supersonic), the jump energy is found
 by bisection on the energy to 1/1024 of a level spacing and a constant-energy zoom is inserted
-there. Costs are integrated with the trapezoidal rule in he over levels and jump points.
+there (a short intermediate branch narrower than about one level spacing may show as a single
+zoom over it). Costs are integrated with the trapezoidal rule in he over levels and jump points.
 
 Mass: the optimum on each level is chosen at the mass the aircraft has there. The path is
 solved with the start mass on every level, the mass is integrated along it, and the path is
@@ -403,7 +404,11 @@ def _dash(prob, target, mass0, distance_m, steps=16):
         ff = float(model.fuel_flow_kg_s(h, mach, thr_used, prob.rating))
         return ff, thr_used
 
-    x = np.linspace(0.0, max(distance_m, 0.0), steps + 1)
+    if distance_m <= 0.0:  # the climb already covers the distance: no dash
+        zero = np.zeros(1)
+        return dict(distance=zero, time=zero, mass=np.full(1, mass0), fuel=zero,
+                    throttle=np.full(1, np.nan))
+    x = np.linspace(0.0, distance_m, steps + 1)
     m = np.empty_like(x)
     thr = np.empty_like(x)
     m[0] = mass0
@@ -548,6 +553,12 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
     hef = target.altitude_m + target.tas_m_s**2 / (2.0 * G0)
     notes: list[str] = []
 
+    fs = energy_fields(model, start.altitude_m, start.tas_m_s, start_mass, limits=lim,
+                       throttle=prob.throttle, rating=rating)
+    if not bool(fs.feasible):
+        broken = [n for n in LIMIT_NAMES if n in fs.limits and not bool(fs.limits[n])]
+        notes.append(f"the start point lies outside the flight envelope ({', '.join(broken)} "
+                     "limit(s) not met); the energy-state path leaves it by a zoom")
     # the target must be a feasible flight point (1 g, full rating)
     ft = energy_fields(model, target.altitude_m, target.tas_m_s, start_mass, limits=lim,
                        throttle=prob.throttle, rating=rating)
