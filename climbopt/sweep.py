@@ -643,34 +643,53 @@ def default_workers() -> int:
         return os.cpu_count() or 1
 
 
+def _failure_row(message: str) -> dict:
+    return {"status": "error", "time_s": math.nan, "fuel_kg": math.nan, "distance_m": math.nan,
+            "final_mass_kg": math.nan, "wall_s": math.nan, "error": " ".join(message.split())}
+
+
 class _PoolBackend:
+    """Local process pool; at most ``2 * workers`` cases in flight (so that stopping early,
+    max_cases and Ctrl-C act at once)."""
+
     def __init__(self, scenario: Scenario, workers: int):
         self.workers = workers
         self.pool = ProcessPoolExecutor(max_workers=workers, mp_context=_pool_context(),
                                         initializer=_init_pool_worker, initargs=(scenario,))
-        self.window = 2 * workers
 
-    def submit(self, case: Case):
-        return self.pool.submit(_run_pooled, case)
-
-    def wait_first(self, futures):
-        done, _ = _futures_wait(futures, return_when=FIRST_COMPLETED)
-        return done
-
-    def result(self, fut, case: Case) -> dict:
+    def run(self, todo, record, ready) -> None:
         from concurrent.futures.process import BrokenProcessPool
 
+        queue = iter(todo)
+        pending = {}
+        ok = False
         try:
-            return fut.result()
-        except BrokenProcessPool as exc:
-            raise SweepAborted(f"a worker process died (case {case.index}): {exc}; the finished "
-                             f"cases are in the table, re-run to continue") from None
-
-    def close(self, cancel: bool) -> None:
-        self.pool.shutdown(wait=True, cancel_futures=cancel)
+            for case in itertools.islice(queue, 2 * self.workers):
+                pending[self.pool.submit(_run_pooled, case)] = case
+            ready()  # the pool processes are started by now (see _pool_context)
+            while pending:
+                done, _ = _futures_wait(list(pending), return_when=FIRST_COMPLETED)
+                for fut in sorted(done, key=lambda f: pending[f].index):
+                    case = pending.pop(fut)
+                    try:
+                        out = fut.result()
+                    except BrokenProcessPool as exc:
+                        raise SweepAborted(
+                            f"a worker process died (case {case.index}): {exc}; the finished "
+                            f"cases are in the table, re-run to continue") from None
+                    record(case, out)
+                for case in itertools.islice(queue, len(done)):
+                    pending[self.pool.submit(_run_pooled, case)] = case
+            ok = True
+        finally:
+            self.pool.shutdown(wait=True, cancel_futures=not ok)
 
 
 class _DaskBackend:
+    """Dask distributed: the base scenario is sent to every worker once; cases are handed out
+    with a window of ``max(32, 8 * threads)`` in flight (the scheduler round trip, about 10 ms,
+    is then hidden) and collected with their results as they complete."""
+
     def __init__(self, scenario: Scenario, cluster):
         try:
             import distributed
@@ -688,37 +707,51 @@ class _DaskBackend:
         else:
             self.client, self.own_client = cluster, False
         self.workers = max(1, sum(self.client.nthreads().values()))
-        self.window = max(4, 2 * self.workers)
         self.scenario = self.client.scatter(scenario, broadcast=True)
 
-    def submit(self, case: Case):
+    def _submit(self, case: Case):
         return self.client.submit(run_case, self.scenario, case, pure=False, retries=0)
 
-    def wait_first(self, futures):
-        done, _ = self._distributed.wait(futures, return_when="FIRST_COMPLETED")
-        return done
-
-    def result(self, fut, case: Case) -> dict:
+    def run(self, todo, record, ready) -> None:
+        dd = self._distributed
+        queue = iter(todo)
+        pending = {}
+        ok = False
         try:
-            return fut.result()
-        except self._distributed.KilledWorker as exc:  # the case kept killing workers
-            return {"status": "error", "time_s": math.nan, "fuel_kg": math.nan,
-                    "distance_m": math.nan, "final_mass_kg": math.nan, "wall_s": math.nan,
-                    "error": f"KilledWorker: {' '.join(str(exc).split())}"}
-        except Exception as exc:
-            raise SweepAborted(f"the Dask cluster failed on case {case.index}: "
-                             f"{type(exc).__name__}: {exc}") from None
-
-    def close(self, cancel: bool) -> None:
-        try:
+            completed = dd.as_completed(with_results=True, raise_errors=False)
+            for case in itertools.islice(queue, max(32, 8 * self.workers)):
+                fut = self._submit(case)
+                pending[fut.key] = (case, fut)
+                completed.add(fut)
+            ready()
+            for fut, out in completed:
+                case, _ = pending.pop(fut.key)
+                if fut.status == "error":
+                    exc = out[1]
+                    if not isinstance(exc, dd.KilledWorker):
+                        raise SweepAborted(f"the Dask cluster failed on case {case.index}: "
+                                           f"{type(exc).__name__}: {exc}")
+                    out = _failure_row(f"KilledWorker: {exc}")  # the case kept killing workers
+                elif fut.status != "finished":
+                    raise SweepAborted(f"the Dask cluster lost case {case.index} ({fut.status})")
+                record(case, out)
+                nxt = next(queue, None)
+                if nxt is not None:
+                    fut = self._submit(nxt)
+                    pending[fut.key] = (nxt, fut)
+                    completed.add(fut)
+            ok = True
+        finally:
+            if not ok and pending:
+                try:
+                    self.client.cancel([f for _, f in pending.values()])
+                except Exception:  # pragma: no cover - broken connection
+                    pass
             if self.own_client:
-                self.client.close()
-        except Exception:  # pragma: no cover - closing a broken connection
-            pass
-
-    def cancel(self, futures) -> None:
-        if futures:
-            self.client.cancel(list(futures))
+                try:
+                    self.client.close()
+                except Exception:  # pragma: no cover - closing a broken connection
+                    pass
 
 
 def run_sweep(plan: SweepPlan, table_path, *, executor: str = "pool", workers: int | None = None,
@@ -836,26 +869,12 @@ def run_sweep(plan: SweepPlan, table_path, *, executor: str = "pool", workers: i
             else:
                 backend = _DaskBackend(plan.scenario, cluster)
             result.workers = backend.workers
-            pending: dict = {}
-            queue = iter(todo)
-            ok = False
-            try:
-                for case in itertools.islice(queue, backend.window):
-                    pending[backend.submit(case)] = case
-                if on_start is not None:  # after the pool processes started (see _pool_context)
+
+            def ready():
+                if on_start is not None:
                     on_start(len(todo), skipped)
-                while pending:
-                    done = sorted(backend.wait_first(list(pending)), key=lambda f: pending[f].index)
-                    for fut in done:
-                        case = pending.pop(fut)
-                        record(case, backend.result(fut, case))
-                    for case in itertools.islice(queue, len(done)):
-                        pending[backend.submit(case)] = case
-                ok = True
-            finally:
-                if not ok and hasattr(backend, "cancel"):
-                    backend.cancel(pending)
-                backend.close(cancel=not ok)
+
+            backend.run(todo, record, ready)
     result.wall_s = time.perf_counter() - t0
 
     # final table: this sweep's cases in case order, then rows of other cases, latest row wins
