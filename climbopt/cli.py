@@ -100,8 +100,15 @@ class _Progress:
             from tqdm import tqdm
 
             if self._bar is None:
+                import shutil
+
+                # a terminal reporting 0 rows/columns would hide the bar: fall back to 100 x 40
+                size = shutil.get_terminal_size((100, 40))
+                encoding = (getattr(sys.stderr, "encoding", "") or "").lower()
                 self._bar = tqdm(total=100, desc=label, leave=False, file=sys.stderr,
-                                 bar_format="{desc}: {percentage:3.0f}%|{bar}| {postfix}")
+                                 ncols=min(size.columns, 120), nrows=max(size.lines, 2),
+                                 ascii="utf" not in encoding,
+                                 bar_format="{desc}: {percentage:3.0f}%|{bar}|{postfix}")
             self._bar.set_postfix_str(str(message)[:60], refresh=False)
             if fraction is not None:
                 self._bar.n = int(round(100 * min(max(float(fraction), 0.0), 1.0)))

@@ -88,6 +88,7 @@ def test_run_table_and_units_us(tmp_path):
                    "--units", "us", "--out", out])
     assert result.exit_code == 0, result.output
     assert "fuel [lb]" in result.output and "distance [nmi]" in result.output
+    assert "%|" not in result.output          # no progress bar when not on a terminal
     assert result.output.rstrip().endswith(f"Caution: {CAUTION}")
     doc = json.loads((out / "summary.json").read_text())
     fuel_kg = doc["results"][0]["fuel_kg"]
