@@ -39,10 +39,13 @@ at every node and interval midpoint, each divided by its limit:
 
 Objectives: ``"time"`` (minimum t_f), ``"fuel"`` (maximum final mass, free t_f), ``"weighted"``
 (fuel + ``solver.cost_weight_kg_per_s`` * t_f). Missions: climb to the target altitude, speed and
-flight-path angle; with ``mission.dash_distance_m`` the same single phase must also end at that
-ground distance (the end state is the target state at the dash distance: the optimiser is free
-to shape climb and dash together, which is the true optimum of "be at the target state at the
-dash distance"; the energy-state solver instead flies the dash at the target state).
+flight-path angle. With ``mission.dash_distance_m`` a second phase follows, as the mission
+defines it: steady level flight at the target altitude and speed until the ground distance from
+the start equals the dash distance. It is transcribed like the climb (``DASH_INTERVALS``
+intervals, its duration a decision variable) with altitude, speed and flight-path angle held at
+the target by simple bounds and level unaccelerated flight (V' = 0, gamma' = 0) imposed at every
+point, so CL and throttle follow the mass; the climb phase ends at the target state with zero
+flight-path angle and at most the dash distance from the start.
 
 Initial guess: the energy-state path (:func:`climbopt.rutowski.solve_energy_state`) converted to
 time, its instantaneous zooms given a duration and smoothed (see :func:`guess_from_trajectory`),
@@ -89,6 +92,13 @@ FUEL_SCALE_FRACTION = 0.01
 #: Local error (scaled state units per interval, see :func:`_interval_errors`) above which an
 #: interval is split: 1e-3 is 10 m of altitude, 0.3 m/s, 1 mrad, 0.1% of the start mass.
 ERROR_TOLERANCE = 1.0e-3
+
+#: Intervals of the dash phase (its solution is smooth: mass falls almost linearly).
+DASH_INTERVALS = 10
+#: Upper bound of each phase's duration [s].
+MAX_TIME_S = 1.0e5
+#: The mesh never grows beyond this many times the first mesh's intervals.
+MAX_INTERVALS_FACTOR = 8
 
 #: Width of the band above a CAS-restriction altitude over which the restriction is released [m].
 CAS_RESTRICTION_BAND_M = 300.0
@@ -157,7 +167,8 @@ class _Setup:
     state_ub: np.ndarray
     cl_bound: float
     x0: np.ndarray  # start state, physical (5,)
-    xf: np.ndarray  # end state, physical, NaN where free (5,)
+    xf: np.ndarray  # climb end state, physical, NaN where free (5,)
+    dash_m: float | None  # dash distance from the start [m]
     path_names: list
     path_lb: np.ndarray
     path_ub: np.ndarray
@@ -206,27 +217,31 @@ def _setup(scenario, model, objective: str) -> _Setup:
     mach_cap = float(dom.mach_max)
     if lim.max_mach is not None:
         mach_cap = min(mach_cap, float(lim.max_mach))
-    a_min, a_max = _sample_speed_of_sound(model, h_lo, h_hi)
+    _, a_max = _sample_speed_of_sound(model, h_lo, h_hi)
     v0, vf = mis.start.tas_m_s, mis.target.tas_m_s
     v_lo = max(1.0, 0.2 * min(v0, vf), float(dom.mach_min) * a_max)
     v_hi = mach_cap * a_max
     fuel = model.fuel_capacity_kg if getattr(model, "fuel_capacity_kg", None) else 0.7 * m0
     m_lo = max(m0 - float(fuel), 1e-3 * m0)
-    big_x = 1.0e3 * DISTANCE_SCALE_M
+    dash = None if mis.dash_distance_m is None else float(mis.dash_distance_m)
+    x_hi = dash if dash is not None else 1.0e3 * DISTANCE_SCALE_M
     state_lb = np.array([h_lo, v_lo, -GAMMA_BOUND_RAD, m_lo, 0.0])
-    state_ub = np.array([h_hi, v_hi, GAMMA_BOUND_RAD, m0, big_x])
+    state_ub = np.array([h_hi, v_hi, GAMMA_BOUND_RAD, m0, x_hi])
 
     mach_grid = np.linspace(dom.mach_min, dom.mach_max, 181)
     cl_bound = float(np.max(model.cl_max(mach_grid)))
 
     x0 = np.array([mis.start.altitude_m, v0, mis.start.flight_path_angle_rad, m0, 0.0])
     xf = np.array([mis.target.altitude_m, vf, mis.target.flight_path_angle_rad, np.nan, np.nan])
-    if mis.dash_distance_m is not None:
-        xf[4] = float(mis.dash_distance_m)
-        notes.append("dash: one phase that must end at the target state at the dash distance "
-                     f"({mis.dash_distance_m / 1000:.1f} km); climb and dash are shaped together")
+    if dash is not None:
+        notes.append(f"dash: level flight at the target state to {dash / 1000:.1f} km from the "
+                     "start after the climb (second phase)")
+        if xf[2] != 0.0:
+            notes.append("dash: the climb ends level (flight-path angle 0) so that the dash can "
+                         "follow; the target flight-path angle is not used")
+            xf[2] = 0.0
     x_scale = np.array([ALTITUDE_SCALE_M, SPEED_SCALE_M_S, 1.0, m0,
-                        max(DISTANCE_SCALE_M, float(mis.dash_distance_m or 0.0) / 5.0)])
+                        max(DISTANCE_SCALE_M, (dash or 0.0) / 5.0)])
 
     names, lbs, ubs = ["mach"], [float(dom.mach_min) / mach_cap], [1.0]
     if lim.max_dynamic_pressure_pa is not None:
@@ -240,12 +255,9 @@ def _setup(scenario, model, objective: str) -> _Setup:
     names.append("cl_max"); lbs.append(-1.0); ubs.append(1.0)
     names.append("load_factor"); lbs.append(-1.0); ubs.append(1.0)
 
-    if objective == "weighted":
-        w = float(scenario.solver.cost_weight_kg_per_s)
-    else:
-        w = 0.0
+    w = float(scenario.solver.cost_weight_kg_per_s) if objective == "weighted" else 0.0
     return _Setup(scenario, model, objective, rating, throttle_free, body, m0, x_scale, state_lb,
-                  state_ub, cl_bound, x0, xf, names, np.array(lbs), np.array(ubs), mach_cap,
+                  state_ub, cl_bound, x0, xf, dash, names, np.array(lbs), np.array(ubs), mach_cap,
                   notes, w)
 
 
@@ -346,7 +358,8 @@ def _point_function(st: _Setup):
 
 @dataclass
 class _Guess:
-    """A guess as functions of normalised time: arrays over ``tau`` in [0, 1] and t_f [s]."""
+    """A climb guess over normalised time ``tau`` in [0, 1] (arrays), its duration and the
+    duration of the dash that follows (0 without a dash)."""
 
     tau: np.ndarray
     states: np.ndarray  # (5, n) physical
@@ -354,6 +367,7 @@ class _Guess:
     throttle: np.ndarray
     tf_s: float
     source: str
+    dash_s: float = 0.0
 
 
 def _cl_for_path(st: _Setup, h, v, gam, m, tf_s, tau):
@@ -371,10 +385,10 @@ def straight_line_guess(scenario, model, objective: str = "time", points: int = 
 
     The final time is estimated from the energy-height gain divided by the mean specific excess
     power along the line (at full throttle, positive values only). Flight-path angle from the
-    line's climb rate, CL for that path, mass from the mean fuel flow, distance integrated.
+    line's climb rate, CL for that path, mass from the mean fuel flow, distance integrated; a
+    dash (if any) takes the remaining distance at the target speed.
     """
-    st = _setup(scenario, model, objective)
-    return _straight_line(st, points)
+    return _straight_line(_setup(scenario, model, objective), points)
 
 
 def _straight_line(st: _Setup, points: int = 201) -> _Guess:
@@ -385,27 +399,32 @@ def _straight_line(st: _Setup, points: int = 201) -> _Guess:
     h_c = np.clip(h, st.state_lb[0], st.state_ub[0])
     a = np.asarray(model.atmosphere(h_c).speed_of_sound_m_s)
     mach = np.clip(v / a, model.domain.mach_min, model.domain.mach_max)
-    perf = model.evaluate(h_c, mach * a, st.m0, 1.0, st.model.throttle_max, st.rating, check=False)
+    perf = model.evaluate(h_c, mach * a, st.m0, 1.0, model.throttle_max, st.rating, check=False)
     ps = np.asarray(perf.ps_m_s)
     pos = ps[ps > 0.0]
     ps_mean = float(np.mean(pos)) if pos.size else 1.0
     dhe = abs((st.xf[0] + st.xf[1] ** 2 / (2 * G0)) - (st.x0[0] + st.x0[1] ** 2 / (2 * G0)))
     tf = max(dhe / max(ps_mean, 1.0), 10.0)
-    if not np.isnan(st.xf[4]):
-        tf = max(tf, st.xf[4] / (0.5 * (st.x0[1] + st.xf[1])))
     ff = float(np.mean(np.asarray(perf.fuel_flow_kg_s)))
-    m = st.m0 - ff * tf * tau
-    m = np.maximum(m, st.state_lb[3] + 0.01 * st.m0)
+    m = np.maximum(st.m0 - ff * tf * tau, st.state_lb[3] + 0.01 * st.m0)
     sin_g = np.clip((st.xf[0] - st.x0[0]) / tf / v, -0.5, 0.5)
-    gam = np.arcsin(sin_g) * np.ones_like(tau)
+    gam = np.arcsin(sin_g)
     gam[0], gam[-1] = st.x0[2], st.xf[2]
-    x = np.concatenate([[0.0], np.cumsum(0.5 * (v[1:] * np.cos(gam[1:]) + v[:-1] * np.cos(gam[:-1]))
-                                         * np.diff(tau) * tf)])
-    if not np.isnan(st.xf[4]):
-        x = x * st.xf[4] / x[-1]
+    x = _integrate_distance(v, gam, tau * tf)
+    dash_s = 0.0
+    if st.dash_m is not None:
+        if x[-1] > 0.9 * st.dash_m:
+            x *= 0.9 * st.dash_m / x[-1]
+        dash_s = (st.dash_m - x[-1]) / st.xf[1]
     cl = _cl_for_path(st, h, v, np.zeros_like(gam), m, tf, tau)
-    thr = np.full_like(tau, st.model.throttle_max)
-    return _Guess(tau, np.vstack([h, v, gam, m, x]), cl, thr, tf, "straight line")
+    thr = np.full_like(tau, model.throttle_max)
+    return _Guess(tau, np.vstack([h, v, gam, m, x]), cl, thr, tf, "straight line", dash_s)
+
+
+def _integrate_distance(v, gam, t):
+    """Ground distance by the trapezoidal rule [m]."""
+    vx = v * np.cos(gam)
+    return np.concatenate([[0.0], np.cumsum(0.5 * (vx[1:] + vx[:-1]) * np.diff(t))])
 
 
 def _moving_average(y: np.ndarray, width: int) -> np.ndarray:
@@ -421,15 +440,28 @@ def guess_from_trajectory(trajectory: Trajectory, scenario, model, objective: st
                           points: int = 401, zoom_sin_gamma: float = 0.3) -> _Guess:
     """Warm start from any trajectory (e.g. the energy-state path), converted to time.
 
-    Instantaneous zooms (steps with no elapsed time) get a duration as if flown at a flight-path
-    angle with sine ``zoom_sin_gamma`` (|dh| / (V sin gamma)); the path is then resampled evenly in
-    time and altitude and speed smoothed with a moving average over 4% of the time (so zooms
-    become finite exchanges); flight-path angle from the smoothed climb rate; CL for that path;
-    the ends are set to the mission's start and target states. A trajectory with stored controls
-    and strictly increasing time (a collocation result) is used as it is.
+    A trailing dash at the target state (when the mission has one) is cut off and only its
+    duration kept. Instantaneous zooms (steps with no elapsed time) get a duration as if flown
+    at a flight-path angle with sine ``zoom_sin_gamma`` (|dh| / (V sin gamma)); the path is then
+    resampled evenly in time and altitude and speed are smoothed with a moving average over 4%
+    of the time (so zooms become finite exchanges); flight-path angle from the smoothed climb
+    rate; CL for that path; the ends are blended onto the mission's start and target states. A
+    trajectory with stored controls and strictly increasing time (a collocation result) is used
+    as it is.
     """
-    st = _setup(scenario, model, objective)
-    return _from_trajectory(st, trajectory, points, zoom_sin_gamma)
+    return _from_trajectory(_setup(scenario, model, objective), trajectory, points,
+                            zoom_sin_gamma)
+
+
+def _dash_start_index(st: _Setup, h: np.ndarray, v: np.ndarray) -> int:
+    """Index where a trailing run of points at the target altitude and speed begins."""
+    i = len(h) - 1
+    if st.dash_m is None:
+        return i
+    at = (np.abs(h - st.xf[0]) <= 1.0 + 1e-4 * abs(st.xf[0])) & (np.abs(v - st.xf[1]) <= 0.5)
+    while i > 0 and at[i - 1]:
+        i -= 1
+    return i
 
 
 def _from_trajectory(st: _Setup, tr: Trajectory, points: int = 401,
@@ -438,55 +470,74 @@ def _from_trajectory(st: _Setup, tr: Trajectory, points: int = 401,
     t = np.asarray(tb["time_s"], float) - float(tb["time_s"][0])
     h = np.asarray(tb["altitude_m"], float)
     v = np.asarray(tb["tas_m_s"], float)
-    gam = np.asarray(tb["flight_path_angle_rad"], float)
-    m = np.asarray(tb["mass_kg"], float)
-    x = np.asarray(tb["distance_m"], float) - float(tb["distance_m"][0])
-    thr = np.asarray(tb["throttle"], float)
-    controls = getattr(tr, "controls", None)
+    ic = _dash_start_index(st, h, v)
+    if ic < 2:
+        return _straight_line(st, points)
+    dash_s = float(t[-1] - t[ic])
+    cut = slice(0, ic + 1)
+    t, h, v = t[cut], h[cut], v[cut]
+    gam = np.asarray(tb["flight_path_angle_rad"], float)[cut]
+    m = np.asarray(tb["mass_kg"], float)[cut]
+    x = (np.asarray(tb["distance_m"], float) - float(tb["distance_m"][0]))[cut]
+    thr = np.asarray(tb["throttle"], float)[cut]
+    controls = tr.controls
     if controls is not None and np.all(np.diff(t) > 0):
-        tau = t / t[-1]
-        cl = np.asarray(controls["lift_coefficient"], float)
-        thr = np.asarray(controls.get("throttle", thr), float)
-        return _Guess(tau, np.vstack([h, v, gam, m, x]), cl, thr, float(t[-1]), tr.method)
+        cl = np.asarray(controls["lift_coefficient"], float)[cut]
+        thr = np.asarray(controls.get("throttle", thr), float)[cut]
+        return _Guess(t / t[-1], np.vstack([h, v, gam, m, x]), cl, thr, float(t[-1]), tr.method,
+                      dash_s)
     # Give zero-duration steps (zooms) a duration.
     dt = np.diff(t)
-    dh = np.abs(np.diff(h))
-    vm = 0.5 * (v[1:] + v[:-1])
-    zoom_dt = dh / (np.maximum(vm, 1.0) * zoom_sin_gamma)
+    zoom_dt = np.abs(np.diff(h)) / (np.maximum(0.5 * (v[1:] + v[:-1]), 1.0) * zoom_sin_gamma)
     tiny = dt <= 1e-9 * max(t[-1], 1.0)
     dt = np.where(tiny, np.maximum(zoom_dt, 1e-3), dt)
     t2 = np.concatenate([[0.0], np.cumsum(dt)])
     tf = float(t2[-1])
-    if tf <= 0.0 or not np.isfinite(tf):
+    if not (tf > 0.0 and np.isfinite(tf)):
         return _straight_line(st, points)
     tg = np.linspace(0.0, tf, points)
-    hg = np.interp(tg, t2, h)
-    vg = np.interp(tg, t2, v)
+    width = max(int(0.04 * points), 1)
+    hg = _moving_average(np.interp(tg, t2, h), width)
+    vg = _moving_average(np.interp(tg, t2, v), width)
     mg = np.interp(tg, t2, m)
     thg = np.interp(tg, t2, thr)
-    width = max(int(0.04 * points), 1)
-    hg = _moving_average(hg, width)
-    vg = _moving_average(vg, width)
     # Ends exactly at start and target; blend the correction in over the first / last 5%.
-    ramp = np.clip(tg / (0.05 * tf), 0.0, 1.0)
-    hg = hg + (st.x0[0] - hg[0]) * (1 - ramp)
-    vg = vg + (st.x0[1] - vg[0]) * (1 - ramp)
-    ramp2 = np.clip((tf - tg) / (0.05 * tf), 0.0, 1.0)
-    hg = hg + (st.xf[0] - hg[-1]) * (1 - ramp2)
-    vg = vg + (st.xf[1] - vg[-1]) * (1 - ramp2)
+    ramp0 = 1.0 - np.clip(tg / (0.05 * tf), 0.0, 1.0)
+    ramp1 = 1.0 - np.clip((tf - tg) / (0.05 * tf), 0.0, 1.0)
+    hg = hg + (st.x0[0] - hg[0]) * ramp0 + (st.xf[0] - hg[-1]) * ramp1
+    vg = vg + (st.x0[1] - vg[0]) * ramp0 + (st.xf[1] - vg[-1]) * ramp1
     hg = np.clip(hg, st.state_lb[0], st.state_ub[0])
     vg = np.clip(vg, st.state_lb[1], st.state_ub[1])
-    sin_g = np.clip(np.gradient(hg, tg) / vg, -0.9, 0.9)
-    gg = _moving_average(np.arcsin(sin_g), width)
+    gg = _moving_average(np.arcsin(np.clip(np.gradient(hg, tg) / vg, -0.9, 0.9)), width)
     gg[0], gg[-1] = st.x0[2], st.xf[2]
-    xg = np.concatenate([[0.0], np.cumsum(0.5 * (vg[1:] * np.cos(gg[1:]) + vg[:-1] * np.cos(gg[:-1]))
-                                          * np.diff(tg))])
-    if not np.isnan(st.xf[4]) and xg[-1] > 0:
-        xg = xg * st.xf[4] / xg[-1]
+    xg = _integrate_distance(vg, gg, tg)
+    if st.dash_m is not None:
+        if xg[-1] > 0.95 * st.dash_m:
+            xg *= 0.95 * st.dash_m / xg[-1]
+        dash_s = max(dash_s, (st.dash_m - xg[-1]) / st.xf[1])
     tau = tg / tf
     cl = _cl_for_path(st, hg, vg, gg, mg, tf, tau)
     thg = np.clip(thg, st.model.throttle_min, st.model.throttle_max)
-    return _Guess(tau, np.vstack([hg, vg, gg, mg, xg]), cl, thg, tf, tr.method)
+    return _Guess(tau, np.vstack([hg, vg, gg, mg, xg]), cl, thg, tf, tr.method, dash_s)
+
+
+def _dash_init(st: _Setup, m_c: float, x_c: float, dash_s: float, points: int):
+    """Dash-phase start values: level flight at the target state, throttle for thrust = drag."""
+    model = st.model
+    tau = np.linspace(0.0, 1.0, points)
+    h, v = st.xf[0], st.xf[1]
+    dur = max(dash_s, 1.0)
+    perf = model.evaluate(np.array([h]), np.array([v]), np.array([m_c]), 1.0, 1.0, st.rating,
+                          check=False)
+    thr = float(np.clip(perf.drag_n[0] / perf.thrust_n[0], model.throttle_min,
+                        model.throttle_max))
+    ff = float(perf.fuel_flow_kg_s[0]) * thr
+    m = m_c - ff * dur * tau
+    x = x_c + (st.dash_m - x_c) * tau
+    states = np.vstack([np.full_like(tau, h), np.full_like(tau, v), np.zeros_like(tau), m, x])
+    q = 0.5 * float(model.atmosphere(np.array(h)).density_kg_m3) * v * v
+    cl = m * G0 / (q * model.reference_area_m2)
+    return _Phase(tau, states, cl, np.full_like(tau, thr), dur)
 
 
 # --------------------------------------------------------------------------------------------
@@ -535,13 +586,21 @@ def _iteration_callback(nx: int, ng: int, report):
 
 
 @dataclass
+class _Phase:
+    """Values of one phase at its nodes and midpoints (physical units)."""
+
+    tau: np.ndarray  # (P,) normalised time in the phase, 0..1
+    states: np.ndarray  # (5, P)
+    cl: np.ndarray  # (P,)
+    throttle: np.ndarray  # (P,)
+    duration_s: float
+
+
+@dataclass
 class _Solution:
-    tau: np.ndarray  # (2N+1,) normalised times of nodes and midpoints
-    states: np.ndarray  # (5, 2N+1) physical
-    cl: np.ndarray
-    throttle: np.ndarray
-    tf_s: float
-    objective_value: float  # in user units: s (time) or kg (fuel, weighted)
+    climb: _Phase
+    dash: _Phase | None
+    objective_value: float  # s (time) or kg (fuel, weighted)
     status: str
     success: bool
     iterations: int
@@ -549,91 +608,156 @@ class _Solution:
     nlp_s: float
     intervals: int
 
+    @property
+    def total_time_s(self) -> float:
+        return self.climb.duration_s + (self.dash.duration_s if self.dash else 0.0)
 
-def _objective_value(st: _Setup, states: np.ndarray, tf_s: float) -> float:
-    fuel = st.m0 - float(states[3, -1])
+    @property
+    def final_mass_kg(self) -> float:
+        last = self.dash if self.dash is not None else self.climb
+        return float(last.states[3, -1])
+
+
+def _objective_value(st: _Setup, total_time_s: float, final_mass_kg: float) -> float:
+    fuel = st.m0 - final_mass_kg
     if st.objective == "time":
-        return tf_s
-    if st.objective == "fuel":
-        return fuel
-    return fuel + st.weight_kg_per_s * tf_s
+        return total_time_s
+    return fuel + st.weight_kg_per_s * total_time_s
 
 
-def _interp_guess(g: _Guess, tau_pts: np.ndarray):
-    states = np.vstack([np.interp(tau_pts, g.tau, g.states[i]) for i in range(5)])
-    return states, np.interp(tau_pts, g.tau, g.cl), np.interp(tau_pts, g.tau, g.throttle), g.tf_s
+def _points(mesh: np.ndarray) -> np.ndarray:
+    """Normalised times of the nodes and interval midpoints of a mesh."""
+    tau = np.empty(2 * len(mesh) - 1)
+    tau[0::2] = mesh
+    tau[1::2] = 0.5 * (mesh[:-1] + mesh[1:])
+    return tau
 
 
-def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init, ipopt_opts: dict, report=None) -> _Solution:
-    """Transcribe on ``mesh`` (node taus, increasing from 0 to 1), solve, return the solution.
+def _phase_from_guess(g: _Guess, mesh: np.ndarray) -> _Phase:
+    tau = _points(mesh)
+    states = np.vstack([np.interp(tau, g.tau, g.states[i]) for i in range(5)])
+    return _Phase(tau, states, np.interp(tau, g.tau, g.cl), np.interp(tau, g.tau, g.throttle),
+                  g.tf_s)
 
-    ``init`` = (states (5,P) physical, cl (P,), throttle (P,), tf_s) at the mesh's nodes and
-    midpoints.
-    """
+
+def _hs_defects(X, Fv, dtau, duration):
+    """Hermite-Simpson separated-form defects (Betts 2010, eqs. 4.104-4.105) of one phase:
+    midpoint interpolation and Simpson quadrature, for scaled states ``X`` (n x P) and scaled
+    rates ``Fv`` (per second) over intervals ``dtau`` (normalised) of a phase lasting
+    ``duration`` [s]."""
     import casadi as ca
 
-    n_int = len(mesh) - 1
-    P = 2 * n_int + 1
-    nu = st.n_u
-    nv = 5 + nu
-    dtau = np.diff(mesh)
-    tau_pts = np.empty(P)
-    tau_pts[0::2] = mesh
-    tau_pts[1::2] = 0.5 * (mesh[:-1] + mesh[1:])
-
-    z = ca.MX.sym("z", nv * P + 1)
-    W = ca.reshape(z[:-1], nv, P)
-    X = W[:5, :]
-    U = W[5:, :]
-    tf = z[-1] * TIME_SCALE_S
-    Fall, Pall = F.map(P)(X, U)
     Xk, Xm, Xk1 = X[:, 0:-1:2], X[:, 1::2], X[:, 2::2]
-    Fk, Fm, Fk1 = Fall[:, 0:-1:2], Fall[:, 1::2], Fall[:, 2::2]
-    hk = ca.repmat(ca.DM(dtau).T, 5, 1) * tf
+    Fk, Fm, Fk1 = Fv[:, 0:-1:2], Fv[:, 1::2], Fv[:, 2::2]
+    hk = ca.repmat(ca.DM(dtau).T, X.shape[0], 1) * duration
     d_mid = Xm - 0.5 * (Xk + Xk1) - hk / 8.0 * (Fk - Fk1)
     d_simp = Xk1 - Xk - hk / 6.0 * (Fk + 4.0 * Fm + Fk1)
-    g = ca.vertcat(ca.vec(ca.vertcat(d_mid, d_simp)), ca.vec(Pall))
-    n_def = 10 * n_int
-    npth = len(st.path_names)
-    lbg = np.concatenate([np.zeros(n_def), np.tile(st.path_lb, P)])
-    ubg = np.concatenate([np.zeros(n_def), np.tile(st.path_ub, P)])
+    return ca.vec(ca.vertcat(d_mid, d_simp))
 
-    mf_s = X[3, -1]
-    if st.objective == "time":
-        J = z[-1]
-    else:
-        fuel_kg = (1.0 - mf_s) * st.m0
-        J = (fuel_kg + st.weight_kg_per_s * tf) / st.fuel_scale_kg
 
-    xs = st.x_scale
+def _box(st: _Setup, P: int) -> tuple[np.ndarray, np.ndarray]:
+    """Simple bounds (scaled) of the states and controls of a phase with P points."""
+    nv = 5 + st.n_u
     lbw = np.zeros((nv, P))
     ubw = np.zeros((nv, P))
-    lbw[:5, :] = (st.state_lb / xs)[:, None]
-    ubw[:5, :] = (st.state_ub / xs)[:, None]
+    lbw[:5, :] = (st.state_lb / st.x_scale)[:, None]
+    ubw[:5, :] = (st.state_ub / st.x_scale)[:, None]
     lbw[5, :], ubw[5, :] = -st.cl_bound, st.cl_bound
     if st.throttle_free:
         lbw[6, :], ubw[6, :] = st.model.throttle_min, st.model.throttle_max
-    lbw[:5, 0] = ubw[:5, 0] = st.x0 / xs
-    fixed = ~np.isnan(st.xf)
-    lbw[:5, -1][fixed] = (st.xf / xs)[fixed]
-    ubw[:5, -1][fixed] = (st.xf / xs)[fixed]
-    lbz = np.concatenate([lbw.ravel(order="F"), [1.0 / TIME_SCALE_S]])
-    ubz = np.concatenate([ubw.ravel(order="F"), [1.0e5 / TIME_SCALE_S]])
+    return lbw, ubw
 
-    s0, cl0, th0, tf0 = init
-    w0 = np.zeros((nv, P))
-    w0[:5, :] = s0 / xs[:, None]
-    w0[5, :] = cl0
+
+def _pack(st: _Setup, ph: _Phase) -> np.ndarray:
+    nv = 5 + st.n_u
+    w = np.zeros((nv, ph.states.shape[1]))
+    w[:5, :] = ph.states / st.x_scale[:, None]
+    w[5, :] = ph.cl
     if st.throttle_free:
-        w0[6, :] = th0
-    z0 = np.concatenate([w0.ravel(order="F"), [tf0 / TIME_SCALE_S]])
-    z0 = np.clip(z0, lbz, ubz)
+        w[6, :] = ph.throttle
+    return np.concatenate([w.ravel(order="F"), [ph.duration_s / TIME_SCALE_S]])
+
+
+def _unpack(st: _Setup, zpart: np.ndarray, tau: np.ndarray) -> _Phase:
+    nv = 5 + st.n_u
+    P = tau.size
+    W = zpart[:-1].reshape(P, nv).T
+    thr = W[6, :].copy() if st.throttle_free else np.full(P, st.fixed_throttle)
+    return _Phase(tau, W[:5, :] * st.x_scale[:, None], W[5, :].copy(), thr,
+                  float(zpart[-1] * TIME_SCALE_S))
+
+
+def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init: tuple, ipopt_opts: dict,
+                report=None) -> _Solution:
+    """Transcribe on ``mesh`` (climb-phase node taus from 0 to 1), solve, return the solution.
+
+    ``init`` = (climb _Phase on this mesh's points, dash _Phase or None).
+    """
+    import casadi as ca
+
+    climb0, dash0 = init
+    has_dash = st.dash_m is not None
+    n_int = len(mesh) - 1
+    tau_c = _points(mesh)
+    P = tau_c.size
+    nv = 5 + st.n_u
+    n_c = nv * P + 1
+    tau_d = _points(np.linspace(0.0, 1.0, DASH_INTERVALS + 1)) if has_dash else None
+    Pd = tau_d.size if has_dash else 0
+    n_d = nv * Pd + 1 if has_dash else 0
+    npth = len(st.path_names)
+
+    z = ca.MX.sym("z", n_c + n_d)
+    W = ca.reshape(z[: n_c - 1], nv, P)
+    t_climb = z[n_c - 1] * TIME_SCALE_S
+    Fv, Pv = F.map(P)(W[:5, :], W[5:, :])
+    g = [_hs_defects(W[:5, :], Fv, np.diff(mesh), t_climb), ca.vec(Pv)]
+    lbg = [np.zeros(10 * n_int), np.tile(st.path_lb, P)]
+    ubg = [np.zeros(10 * n_int), np.tile(st.path_ub, P)]
+
+    lbw, ubw = _box(st, P)
+    lbw[:5, 0] = ubw[:5, 0] = st.x0 / st.x_scale
+    fixed = ~np.isnan(st.xf)
+    lbw[:5, -1][fixed] = ubw[:5, -1][fixed] = (st.xf / st.x_scale)[fixed]
+    lbz = [lbw.ravel(order="F"), [1.0 / TIME_SCALE_S]]
+    ubz = [ubw.ravel(order="F"), [MAX_TIME_S / TIME_SCALE_S]]
+    z0 = [_pack(st, climb0)]
+    total_time = t_climb
+    m_end = W[3, -1]
+    if has_dash:
+        Wd = ca.reshape(z[n_c: n_c + n_d - 1], nv, Pd)
+        t_dash = z[n_c + n_d - 1] * TIME_SCALE_S
+        Fd, Pdv = F.map(Pd)(Wd[:5, :], Wd[5:, :])
+        # Mass and distance follow their dynamics; level, unaccelerated flight at every point;
+        # the dash starts where the climb ends.
+        g += [_hs_defects(Wd[3:5, :], Fd[3:5, :], np.full(DASH_INTERVALS, 1.0 / DASH_INTERVALS),
+                          t_dash),
+              ca.vec(TIME_SCALE_S * Fd[1:3, :]), ca.vec(Pdv), Wd[3:5, 0] - W[3:5, -1]]
+        zeros = np.zeros(4 * DASH_INTERVALS + 2 * Pd)
+        lbg += [zeros, np.tile(st.path_lb, Pd), np.zeros(2)]
+        ubg += [zeros, np.tile(st.path_ub, Pd), np.zeros(2)]
+        lbd, ubd = _box(st, Pd)
+        lbd[:3, :] = ubd[:3, :] = (st.xf[:3] / st.x_scale[:3])[:, None]
+        lbd[4, -1] = ubd[4, -1] = st.dash_m / st.x_scale[4]
+        lbz += [lbd.ravel(order="F"), [0.0]]
+        ubz += [ubd.ravel(order="F"), [MAX_TIME_S / TIME_SCALE_S]]
+        z0.append(_pack(st, dash0))
+        total_time = total_time + t_dash
+        m_end = Wd[3, -1]
+    if st.objective == "time":
+        J = total_time / TIME_SCALE_S
+    else:
+        J = ((1.0 - m_end) * st.m0 + st.weight_kg_per_s * total_time) / st.fuel_scale_kg
+    g = ca.vertcat(*g)
+    lbg, ubg = np.concatenate(lbg), np.concatenate(ubg)
+    lbz, ubz = np.concatenate(lbz), np.concatenate(ubz)
+    z0 = np.clip(np.concatenate(z0), lbz, ubz)
 
     opts = {"ipopt." + k: v for k, v in ipopt_opts.items()}
     opts["print_time"] = False
     cb = None
     if report is not None:
-        cb = _iteration_callback(len(z0), g.shape[0], report)
+        cb = _iteration_callback(z0.size, g.shape[0], report)
         opts["iteration_callback"] = cb
     t0 = _time.perf_counter()
     solver = ca.nlpsol("climb", "ipopt", {"x": z, "f": J, "g": g}, opts)
@@ -643,15 +767,13 @@ def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init, ipopt_opts: dict, report=
     t_solve = _time.perf_counter() - t0
     stats = solver.stats()
     zs = np.asarray(res["x"], float).ravel()
-    Ws = zs[:-1].reshape(P, nv).T
-    states = Ws[:5, :] * xs[:, None]
-    cl = Ws[5, :].copy()
-    thr = Ws[6, :].copy() if st.throttle_free else np.full(P, st.fixed_throttle)
-    tf_s = float(zs[-1] * TIME_SCALE_S)
+    climb = _unpack(st, zs[:n_c], tau_c)
+    dash = _unpack(st, zs[n_c:], tau_d) if has_dash else None
     del cb
+    total = climb.duration_s + (dash.duration_s if dash else 0.0)
+    mf = float((dash or climb).states[3, -1])
     return _Solution(
-        tau=tau_pts, states=states, cl=cl, throttle=thr, tf_s=tf_s,
-        objective_value=_objective_value(st, states, tf_s),
+        climb=climb, dash=dash, objective_value=_objective_value(st, total, mf),
         status=str(stats.get("return_status", "unknown")),
         success=bool(stats.get("success", False)),
         iterations=int(stats.get("iter_count", 0)),
@@ -679,24 +801,26 @@ def _quadratic(u0, um, u1, s):
     return u0 * (1 - s) * (1 - 2 * s) + um * 4 * s * (1 - s) + u1 * s * (2 * s - 1)
 
 
-def _interval_errors(st: _Setup, F, sol: _Solution) -> np.ndarray:
-    """Local error estimate of each interval [scaled state units]: the collocation residual
-    x_interp' - f(x_interp, u_interp) at the quarter points of the Hermite cubic through the
-    interval's end states and slopes, integrated over the interval (Simpson-like average)."""
-    xs = st.x_scale[:, None]
-    X = sol.states / xs
-    U = np.vstack([sol.cl, sol.throttle]) if st.throttle_free else sol.cl[None, :]
+def _scaled(st: _Setup, ph: _Phase):
+    X = ph.states / st.x_scale[:, None]
+    U = np.vstack([ph.cl, ph.throttle]) if st.throttle_free else ph.cl[None, :]
+    return X, U
+
+
+def _interval_errors(st: _Setup, F, ph: _Phase) -> np.ndarray:
+    """Local error estimate of each climb interval [scaled state units]: the collocation residual
+    x_interp' - f(x_interp, u_interp) of the cubic Hermite interpolant through the interval's end
+    states and rates, at its quarter points, times the interval length (largest state)."""
+    X, U = _scaled(st, ph)
     Fv = np.asarray(F.map(X.shape[1])(X, U)[0])
-    mesh = sol.tau[0::2]
-    h = np.diff(mesh) * sol.tf_s
+    h = np.diff(ph.tau[0::2]) * ph.duration_s
     x0, x1 = X[:, 0:-1:2], X[:, 2::2]
     f0, f1 = Fv[:, 0:-1:2], Fv[:, 2::2]
     u0, um, u1 = U[:, 0:-1:2], U[:, 1::2], U[:, 2::2]
     err = np.zeros(len(h))
     for s in (0.25, 0.75):
         xq, dxq = _hermite(x0, x1, f0, f1, h[None, :], s)
-        uq = _quadratic(u0, um, u1, s)
-        fq = np.asarray(F.map(xq.shape[1])(xq, uq)[0])
+        fq = np.asarray(F.map(xq.shape[1])(xq, _quadratic(u0, um, u1, s))[0])
         err = np.maximum(err, np.max(np.abs(dxq - fq), axis=0) * h)
     return err
 
@@ -715,10 +839,8 @@ def _refine(mesh: np.ndarray, err: np.ndarray, max_intervals: int) -> np.ndarray
         pieces[np.argsort(err)[::-1][: int(math.ceil(0.1 * n))]] = 2
     budget = max(max_intervals - n, 0)
     for i in np.argsort(err)[::-1]:  # keep the largest errors within the budget
-        extra = pieces[i] - 1
-        if extra > budget:
-            pieces[i] = 1 + budget
-            extra = budget
+        extra = min(pieces[i] - 1, budget)
+        pieces[i] = 1 + extra
         budget -= extra
     new = [mesh[:1]]
     for i in range(n):
@@ -726,24 +848,21 @@ def _refine(mesh: np.ndarray, err: np.ndarray, max_intervals: int) -> np.ndarray
     return np.concatenate(new)
 
 
-def _interp_solution(sol: _Solution, F, st: _Setup, tau_new: np.ndarray):
-    """Initial values on a new mesh from a solution: states by the Hermite cubic of each old
-    interval, controls by its quadratic."""
-    xs = st.x_scale[:, None]
-    X = sol.states / xs
-    U = np.vstack([sol.cl, sol.throttle])
-    Uf = U if st.throttle_free else U[:1]
-    Fv = np.asarray(F.map(X.shape[1])(X, Uf)[0])
-    mesh = sol.tau[0::2]
+def _interp_phase(st: _Setup, F, ph: _Phase, mesh_new: np.ndarray) -> _Phase:
+    """A phase on a new mesh from a solution: states by the Hermite cubic of each old interval,
+    controls by its quadratic."""
+    X, U = _scaled(st, ph)
+    Fv = np.asarray(F.map(X.shape[1])(X, U)[0])
+    tau_new = _points(mesh_new)
+    mesh = ph.tau[0::2]
     idx = np.clip(np.searchsorted(mesh, tau_new, side="right") - 1, 0, len(mesh) - 2)
     h = np.diff(mesh)[idx]
     s = (tau_new - mesh[idx]) / h
-    hh = h * sol.tf_s
-    x0, x1 = X[:, 2 * idx], X[:, 2 * idx + 2]
-    f0, f1 = Fv[:, 2 * idx], Fv[:, 2 * idx + 2]
-    xq, _ = _hermite(x0, x1, f0, f1, hh[None, :], s[None, :])
-    uq = _quadratic(U[:, 2 * idx], U[:, 2 * idx + 1], U[:, 2 * idx + 2], s[None, :])
-    return xq * xs, uq[0], uq[1], sol.tf_s
+    xq, _ = _hermite(X[:, 2 * idx], X[:, 2 * idx + 2], Fv[:, 2 * idx], Fv[:, 2 * idx + 2],
+                     (h * ph.duration_s)[None, :], s[None, :])
+    Uall = np.vstack([ph.cl, ph.throttle])
+    uq = _quadratic(Uall[:, 2 * idx], Uall[:, 2 * idx + 1], Uall[:, 2 * idx + 2], s[None, :])
+    return _Phase(tau_new, xq * st.x_scale[:, None], uq[0], uq[1], ph.duration_s)
 
 
 # --------------------------------------------------------------------------------------------
@@ -753,71 +872,74 @@ def _interp_solution(sol: _Solution, F, st: _Setup, tau_new: np.ndarray):
 
 def _trajectory(st: _Setup, sol: _Solution, *, converged: bool, status: str, iterations: int,
                 wall_s: float, notes: list) -> Trajectory:
-    """Per-point table at all nodes and midpoints (numpy model evaluation of the solution)."""
+    """Per-point table at all nodes and midpoints of both phases (numpy model evaluation).
+
+    With a dash the junction appears twice (end of climb, start of dash) at the same time."""
     model = st.model
-    h, v, gam, m, x = sol.states
-    t = sol.tau * sol.tf_s
-    hc = np.clip(h, model.fit_domain.altitude_min_m, model.fit_domain.altitude_max_m)
+    phases = [sol.climb] + ([sol.dash] if sol.dash is not None else [])
+    t = np.concatenate([sol.climb.tau * sol.climb.duration_s]
+                       + ([sol.climb.duration_s + sol.dash.tau * sol.dash.duration_s]
+                          if sol.dash is not None else []))
+    states = np.hstack([p.states for p in phases])
+    cl = np.concatenate([p.cl for p in phases])
+    thr = np.concatenate([p.throttle for p in phases])
+    h, v, gam, m, x = states
+    fd = model.fit_domain
+    hc = np.clip(h, fd.altitude_min_m, fd.altitude_max_m)
     atm = model.atmosphere(hc)
     a = np.asarray(atm.speed_of_sound_m_s, float)
     p = np.asarray(atm.pressure_pa, float)
-    rho = np.asarray(atm.density_kg_m3, float)
     mach = v / a
-    mach_c = np.clip(mach, model.fit_domain.mach_min, model.fit_domain.mach_max)
-    q = 0.5 * rho * v * v
+    mach_c = np.clip(mach, fd.mach_min, fd.mach_max)
+    q = 0.5 * np.asarray(atm.density_kg_m3, float) * v * v
     S = model.reference_area_m2
-    cd = np.asarray(model.drag_coefficient(sol.cl, mach_c, check=False), float)
-    thrust = np.asarray(model.thrust_n(hc, mach_c, sol.throttle, st.rating, check=False), float)
-    drag = q * S * cd
+    drag = q * S * np.asarray(model.drag_coefficient(cl, mach_c, check=False), float)
+    thrust = np.asarray(model.thrust_n(hc, mach_c, thr, st.rating, check=False), float)
+    controls = {
+        "lift_coefficient": cl,
+        "throttle": thr,
+        "load_factor": q * S * cl / (m * G0),
+        "dynamic_pressure_pa": q,
+    }
+    t_par = thrust
     if st.body_thrust:
-        alpha = sol.cl / np.asarray(model.lift_slope_per_rad(mach_c, check=False), float)
+        alpha = cl / np.asarray(model.lift_slope_per_rad(mach_c, check=False), float)
         t_par = thrust * np.cos(alpha)
-    else:
-        alpha = None
-        t_par = thrust
-    ps = v * (t_par - drag) / (m * G0)
-    cas = np.asarray(cas_from_mach(np.maximum(mach, 0.0), p), float)
+        controls["angle_of_attack_rad"] = alpha
     table = {
         "time_s": t,
         "altitude_m": h,
         "tas_m_s": v,
         "mach": mach,
-        "cas_m_s": cas,
+        "cas_m_s": np.asarray(cas_from_mach(np.maximum(mach, 0.0), p), float),
         "energy_height_m": h + v * v / (2.0 * G0),
-        "ps_m_s": ps,
+        "ps_m_s": v * (t_par - drag) / (m * G0),
         "flight_path_angle_rad": gam,
         "mass_kg": m,
         "fuel_used_kg": st.m0 - m,
         "distance_m": x,
-        "throttle": sol.throttle,
+        "throttle": thr,
     }
-    controls = {
-        "lift_coefficient": sol.cl.copy(),
-        "throttle": sol.throttle.copy(),
-        "load_factor": q * S * sol.cl / (m * G0),
-        "dynamic_pressure_pa": q,
-    }
-    if alpha is not None:
-        controls["angle_of_attack_rad"] = alpha
     return Trajectory(method="collocation", objective=st.objective, table=table,
                       converged=converged, status=status, iterations=iterations, wall_s=wall_s,
                       notes=list(notes), controls=controls)
 
 
-def _active_bound_notes(st: _Setup, sol: _Solution) -> list:
-    """Notes on artificial bounds that ended up active (the answer depends on them)."""
+def _active_bound_notes(st: _Setup, ph: _Phase) -> list:
+    """Notes on the climb's box bounds that ended up active (the answer depends on them)."""
     notes = []
     names = ["altitude", "speed", "flight-path angle", "mass"]
     units = ["m", "m/s", "rad", "kg"]
     for i in range(4):
-        inner = sol.states[i, 1:-1]
+        inner = ph.states[i, 1:-1]
         for bound, word in ((st.state_lb[i], "lower"), (st.state_ub[i], "upper")):
-            tol = 1e-6 * max(abs(bound), st.x_scale[i])
-            hit = np.abs(inner - bound) <= max(tol, 1e-4 * st.x_scale[i])
-            if np.any(hit):
-                frac = float(np.mean(hit))
+            if i == 3 and word == "upper":
+                continue  # the start mass
+            hit = np.abs(inner - bound) <= 1e-5 * st.x_scale[i]
+            if np.count_nonzero(hit) >= 3:
+                t_hit = ph.tau[1:-1][hit] * ph.duration_s
                 notes.append(f"{names[i]} rides its {word} bound {bound:.6g} {units[i]} "
-                             f"at {frac:.0%} of the points")
+                             f"between {t_hit.min():.0f} s and {t_hit.max():.0f} s")
     return notes
 
 
@@ -842,33 +964,32 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
         objective (if that solver fails, a straight line, said in the notes). ``"straight"``:
         straight line from start to target (cold start). A Trajectory: that trajectory.
     progress : callable(message: str, fraction: float | None), optional
-        Receives one message per IPOPT iteration and per mesh pass.
+        Receives one message per IPOPT iteration and one per mesh pass.
     intervals : int, optional
-        Intervals of the first mesh (default ``scenario.solver.intervals``).
+        Intervals of the first climb mesh (default ``scenario.solver.intervals``).
     ipopt_options : dict, optional
         IPOPT options; they override ``scenario.solver.ipopt``, which overrides
-        :data:`DEFAULT_IPOPT_OPTIONS`.
+        :data:`DEFAULT_IPOPT_OPTIONS` (and :data:`REFINE_IPOPT_OPTIONS` on refinement passes).
     verify : bool
         Re-simulate the result (:func:`climbopt.verify.resimulate`) and attach the check.
 
     Returns
     -------
     Trajectory
-        ``method="collocation"``; per-point table at the mesh nodes and midpoints; extra
-        attributes ``controls`` (dict of arrays: ``lift_coefficient``, ``throttle``,
-        ``load_factor``, ``dynamic_pressure_pa`` and, with body-axis thrust,
-        ``angle_of_attack_rad``) and ``interpolation`` ("hermite-simpson"); ``verification``
-        (see :mod:`climbopt.verify`). ``converged`` is true only when IPOPT converged on every
-        mesh and the objective changed by less than ``solver.mesh_tolerance`` on the last
-        refinement.
+        ``method="collocation"``; per-point table at the mesh nodes and interval midpoints (with
+        a dash, the junction point appears twice, at the same time); ``controls`` (see
+        :class:`climbopt.results.Trajectory`); ``verification`` (see :mod:`climbopt.verify`).
+        ``converged`` is true only when IPOPT converged on every mesh and the objective
+        changed by less than ``solver.mesh_tolerance`` (relative) on the last refinement.
+        ``iterations`` sums IPOPT iterations over the mesh passes; the notes list each pass.
 
     Raises
     ------
     SolverFailure
-        IPOPT did not converge; carries ``status``, ``iterations``, the last iterate as a
-        trajectory with ``converged=False`` and the guess trajectory.
+        IPOPT did not converge on some mesh pass; carries ``status``, ``iterations``, the last
+        iterate as a trajectory with ``converged=False`` and the guess trajectory.
     ValueError
-        Unknown objective, or body-axis thrust without a lift-slope table.
+        Unknown objective or guess, or body-axis thrust without a lift-slope table.
     """
     if objective not in OBJECTIVES:
         raise ValueError(f"objective must be one of {', '.join(OBJECTIVES)}; got {objective!r}")
@@ -882,9 +1003,8 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
     n0 = int(intervals or solver_opts.intervals)
     user = dict(solver_opts.ipopt or {})
     user.update(ipopt_options or {})
-    ipopt = {**DEFAULT_IPOPT_OPTIONS, **user}
-    # Refinement passes start next to the optimum: a small barrier parameter keeps IPOPT there.
-    warm_opts = {**DEFAULT_IPOPT_OPTIONS, **REFINE_IPOPT_OPTIONS, **user}
+    first_opts = {**DEFAULT_IPOPT_OPTIONS, **user}
+    refine_opts = {**DEFAULT_IPOPT_OPTIONS, **REFINE_IPOPT_OPTIONS, **user}
 
     def say(msg, frac=None):
         if progress is not None:
@@ -915,61 +1035,62 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
 
     F = _point_function(st)
     mesh = np.linspace(0.0, 1.0, n0 + 1)
-    tau_pts = np.empty(2 * n0 + 1)
-    tau_pts[0::2] = mesh
-    tau_pts[1::2] = 0.5 * (mesh[:-1] + mesh[1:])
-    init = _interp_guess(g, tau_pts)
+    climb0 = _phase_from_guess(g, mesh)
+    dash0 = None
+    if st.dash_m is not None:
+        dash0 = _dash_init(st, float(climb0.states[3, -1]), float(climb0.states[4, -1]),
+                           g.dash_s, 2 * DASH_INTERVALS + 1)
+    init = (climb0, dash0)
 
     total_iter = 0
     ipopt_s = 0.0
     history = []
     prev = None
-    sol = None
     mesh_converged = False
     max_ref = int(solver_opts.max_mesh_refinements)
-    max_intervals = 8 * n0
     for npass in range(max_ref + 1):
         def report(k, f, npass=npass):
-            say(f"mesh pass {npass + 1}: IPOPT iteration {k}, objective {f:.6g}", None)
+            say(f"mesh pass {npass + 1}: IPOPT iteration {k}, scaled objective {f:.6g}", None)
 
-        opts = ipopt if npass == 0 else warm_opts
-        sol = _solve_mesh(st, F, mesh, init, opts, report if progress else None)
+        sol = _solve_mesh(st, F, mesh, init, first_opts if npass == 0 else refine_opts,
+                          report if progress is not None else None)
         total_iter += sol.iterations
         ipopt_s += sol.ipopt_s
-        history.append((sol.intervals, sol.iterations, sol.objective_value, sol.status,
-                        sol.ipopt_s))
+        history.append((sol.intervals, sol.iterations, sol.objective_value, sol.ipopt_s))
         if not sol.success:
+            hint = ""
+            if st.dash_m is not None and not st.throttle_free:
+                hint = " (a dash needs a throttle range to hold level flight)"
             tr = _trajectory(st, sol, converged=False, status=sol.status, iterations=total_iter,
                              wall_s=_time.perf_counter() - wall0,
                              notes=notes + [f"IPOPT did not converge on mesh pass {npass + 1}"])
             raise SolverFailure(
                 f"IPOPT did not converge ({sol.status}) after {sol.iterations} iterations on "
-                f"{sol.intervals} intervals (mesh pass {npass + 1}); no optimal trajectory",
-                status=sol.status, iterations=total_iter, trajectory=tr, guess=guess_tr)
+                f"{sol.intervals} intervals (mesh pass {npass + 1}){hint}; "
+                "no optimal trajectory", status=sol.status, iterations=total_iter,
+                trajectory=tr, guess=guess_tr)
         say(f"mesh pass {npass + 1}: {sol.intervals} intervals, {sol.iterations} iterations, "
-            f"objective {sol.objective_value:.6g}", (npass + 1) / (max_ref + 2))
+            f"objective {sol.objective_value:.7g}", (npass + 1) / (max_ref + 2))
+        err = _interval_errors(st, F, sol.climb)
         if prev is not None:
             change = abs(sol.objective_value - prev) / max(abs(sol.objective_value), 1e-12)
-            if change < solver_opts.mesh_tolerance:
-                mesh_converged = True
+            mesh_converged = change < solver_opts.mesh_tolerance
+            if mesh_converged and err.max() <= ERROR_TOLERANCE:
                 break
         prev = sol.objective_value
         if npass == max_ref:
             break
-        err = _interval_errors(st, F, sol)
-        new_mesh = _refine(mesh, err, max_intervals)
+        new_mesh = _refine(mesh, err, MAX_INTERVALS_FACTOR * n0)
         if len(new_mesh) == len(mesh):
             break
+        init = (_interp_phase(st, F, sol.climb, new_mesh), sol.dash)
         mesh = new_mesh
-        tp = np.empty(2 * (len(mesh) - 1) + 1)
-        tp[0::2] = mesh
-        tp[1::2] = 0.5 * (mesh[:-1] + mesh[1:])
-        init = _interp_solution(sol, F, st, tp)
 
-    notes += _active_bound_notes(st, sol)
-    hist_txt = "; ".join(f"{n} intervals: {it} iterations, objective {obj:.7g}"
-                         for n, it, obj, _, _ in history)
-    notes.append(f"mesh passes: {hist_txt}")
+    notes += _active_bound_notes(st, sol.climb)
+    notes.append("mesh passes: " + "; ".join(
+        f"{n} intervals, {it} iterations, objective {obj:.7g}" for n, it, obj, _ in history))
+    notes.append(f"largest local error estimate on the final mesh {err.max():.1e} "
+                 f"(scaled states; refinement target {ERROR_TOLERANCE:.0e})")
     status = sol.status
     if sol.status != "Solve_Succeeded":
         notes.append(f"IPOPT status {sol.status}: converged to its acceptable (looser) tolerance")
@@ -977,11 +1098,11 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
         notes.append(
             f"mesh refinement stopped after {len(history)} passes without the objective settling "
             f"to {solver_opts.mesh_tolerance:g} relative; not reported as converged")
-        status = status + "; mesh not converged"
+        status += "; mesh not converged"
     tr = _trajectory(st, sol, converged=mesh_converged, status=status, iterations=total_iter,
                      wall_s=0.0, notes=notes)
-    tr.ipopt_s = ipopt_s
-    tr.mesh_history = history
+    notes_timing = f"IPOPT time {ipopt_s:.2f} s over {len(history)} mesh passes"
+    tr.notes.append(notes_timing)
     if verify:
         from climbopt.verify import resimulate
 

@@ -12,7 +12,8 @@ Controls are interpolated the way the collocation solver represents them: for a 
 trajectory (points = mesh nodes and interval midpoints) a quadratic through node, midpoint and
 node on each interval (Hermite-Simpson; Betts, *Practical Methods for Optimal Control*, 2nd ed.,
 SIAM 2010, sec. 4.5), otherwise linearly. Each interval is integrated separately (the controls
-have kinks at the nodes).
+have kinks at the nodes). A repeated time separates phases (climb and dash): the controls may
+jump there, and the simulation carries its own state across.
 
 Reported:
 
@@ -126,57 +127,70 @@ def resimulate(trajectory, scenario, model=None) -> dict:
         model = build_model(scenario)
     tb = trajectory.table
     t = np.asarray(tb["time_s"], float)
-    n = t.size
-    quadratic = trajectory.method == "collocation" and n % 2 == 1 and n >= 3
-    cl_u = _control_interpolant(t, np.asarray(trajectory.controls["lift_coefficient"], float),
-                                quadratic)
-    th_u = _control_interpolant(t, np.asarray(trajectory.controls["throttle"], float), quadratic)
+    cl_all = np.asarray(trajectory.controls["lift_coefficient"], float)
+    th_all = np.asarray(trajectory.controls["throttle"], float)
     rating = scenario.mission.rating or model.default_rating
     body = model.thrust_alignment == "body"
     m0 = float(tb["mass_kg"][0])
     scales = _SCALES * np.array([1, 1, 1, m0, 1])
-
     forces = _force_function(model, rating, body)
     dom = model.fit_domain
+    # Phases (e.g. climb and dash) are separated by a repeated time; the controls may jump there.
+    segments = np.split(np.arange(t.size), np.flatnonzero(np.diff(t) <= 0.0) + 1)
 
-    def rhs(tt, y):
-        h, v, gam, m, _x = y
-        if not (dom.altitude_min_m <= h <= dom.altitude_max_m) or v <= 0.0:
-            raise ModelDomainError(f"altitude {h:.6g} m, speed {v:.6g} m/s outside the tables")
-        cl, thr = cl_u(tt), th_u(tt)
-        mach, _, _, lift, drag, thrust, ff, alpha = np.asarray(forces(h, v, cl, thr)).ravel()
-        if not (dom.mach_min <= mach <= dom.mach_max):
-            raise ModelDomainError(f"Mach {mach:.6g} outside the tables")
-        return [
-            v * math.sin(gam),
-            (thrust * math.cos(alpha) - drag) / m - G0 * math.sin(gam),
-            (thrust * math.sin(alpha) + lift) / (m * v) - G0 * math.cos(gam) / v,
-            -ff,
-            v * math.cos(gam),
-        ]
+    def make_rhs(cl_u, th_u):
+        def rhs(tt, y):
+            h, v, gam, m, _x = y
+            if not (dom.altitude_min_m <= h <= dom.altitude_max_m) or v <= 0.0:
+                raise ModelDomainError(f"altitude {h:.6g} m, speed {v:.6g} m/s outside the tables")
+            mach, _, _, lift, drag, thrust, ff, alpha = np.asarray(
+                forces(h, v, cl_u(tt), th_u(tt))).ravel()
+            if not (dom.mach_min <= mach <= dom.mach_max):
+                raise ModelDomainError(f"Mach {mach:.6g} outside the tables")
+            return [
+                v * math.sin(gam),
+                (thrust * math.cos(alpha) - drag) / m - G0 * math.sin(gam),
+                (thrust * math.sin(alpha) + lift) / (m * v) - G0 * math.cos(gam) / v,
+                -ff,
+                v * math.cos(gam),
+            ]
+        return rhs
 
     y = np.array([tb["altitude_m"][0], tb["tas_m_s"][0], tb["flight_path_angle_rad"][0],
                   tb["mass_kg"][0], tb["distance_m"][0]], float)
-    breaks = t[0::2] if quadratic else t
-    ts, ys = [t[0]], [y.copy()]
+    ts, ys, cls = [t[0]], [y.copy()], [cl_all[0]]
     failure = ""
     steps = 0
-    for k in range(len(breaks) - 1):
-        try:
-            sol = solve_ivp(rhs, (breaks[k], breaks[k + 1]), y, method="DOP853", rtol=RTOL,
-                            atol=RTOL * scales)
-        except (ModelDomainError, ValueError) as exc:
-            failure = f"the simulated path left the model's tables near t = {breaks[k]:.1f} s: {exc}"
+    for seg in segments:
+        if seg.size < 2:
+            continue
+        ti = t[seg]
+        quadratic = trajectory.method == "collocation" and seg.size % 2 == 1
+        cl_u = _control_interpolant(ti, cl_all[seg], quadratic)
+        th_u = _control_interpolant(ti, th_all[seg], quadratic)
+        rhs = make_rhs(cl_u, th_u)
+        breaks = ti[0::2] if quadratic else ti
+        for k in range(len(breaks) - 1):
+            try:
+                sol = solve_ivp(rhs, (breaks[k], breaks[k + 1]), y, method="DOP853", rtol=RTOL,
+                                atol=RTOL * scales)
+            except (ModelDomainError, ValueError) as exc:
+                failure = (f"the simulated path left the model's tables near t = "
+                           f"{breaks[k]:.1f} s: {exc}")
+                break
+            if not sol.success:
+                failure = f"integration failed near t = {breaks[k]:.1f} s: {sol.message}"
+                break
+            steps += sol.t.size - 1
+            ts.extend(sol.t[1:])
+            ys.extend(sol.y[:, 1:].T)
+            cls.extend(cl_u(tt) for tt in sol.t[1:])
+            y = sol.y[:, -1].copy()
+        if failure:
             break
-        if not sol.success:
-            failure = f"integration failed near t = {breaks[k]:.1f} s: {sol.message}"
-            break
-        steps += sol.t.size - 1
-        ts.extend(sol.t[1:])
-        ys.extend(sol.y[:, 1:].T)
-        y = sol.y[:, -1].copy()
     ts = np.asarray(ts)
     ys = np.asarray(ys)
+    cls = np.asarray(cls)
 
     final = np.array([tb["altitude_m"][-1], tb["tas_m_s"][-1], tb["flight_path_angle_rad"][-1],
                       tb["mass_kg"][-1], tb["distance_m"][-1]], float)
@@ -191,7 +205,7 @@ def resimulate(trajectory, scenario, model=None) -> dict:
         miss_e = float(math.hypot(d[0], final[1] * d[1] / G0))
     miss_rel = miss_e / abs(he_f) if he_f else float("inf")
 
-    violations = _path_violations(model, scenario, rating, body, ts, ys, cl_u, th_u, he_f)
+    violations = _path_violations(model, scenario, ys, cls, he_f)
     max_viol = max(violations.values()) if violations else 0.0
     ok = (not failure and miss_rel <= FINAL_MISS_TOLERANCE
           and max_viol <= PATH_VIOLATION_TOLERANCE)
@@ -218,11 +232,10 @@ def resimulate(trajectory, scenario, model=None) -> dict:
     }
 
 
-def _path_violations(model, scenario, rating, body, ts, ys, cl_u, th_u, he_f) -> dict:
+def _path_violations(model, scenario, ys, cl, he_f) -> dict:
     """Largest relative excess over each scenario limit along the simulated points (>= 0)."""
     lim = scenario.limits
     h, v, m = ys[:, 0], ys[:, 1], ys[:, 3]
-    cl = np.array([cl_u(tt) for tt in ts])
     atm = model.atmosphere(np.clip(h, model.atmosphere.altitude_min_m, model.atmosphere.altitude_max_m))
     a = np.asarray(atm.speed_of_sound_m_s, float)
     p = np.asarray(atm.pressure_pa, float)
