@@ -225,28 +225,37 @@ class AircraftModel:
         ratio = (t_std + self.temperature_offset_k) / t_std
         return 1.0 / ratio, _sqrt(ratio)
 
+    def thrust_and_fuel_flow(self, altitude_m, mach, throttle=1.0, rating: str | None = None, *,
+                             check: bool = True):
+        """Net thrust [N] and fuel flow [kg/s] of all engines, evaluating each table once.
+
+        Pressure altitude [m], Mach [-], throttle [-] (fraction of the rating).
+        """
+        r = self._rating(rating)
+        thrust_factor, sfc_factor = self._day_factors(altitude_m)
+        scale = throttle * self.thrust_scale * thrust_factor
+        main = r.main(mach, altitude_m, check=check) * scale  # thrust [N] or shaft power [W]
+        if r.kind == "jet":
+            thrust = main
+        else:
+            tas = mach * self.atmosphere(altitude_m).speed_of_sound_m_s
+            thrust = r.eta(mach, check=check) * main / tas
+        if r.fuel is not None:
+            fuel = r.fuel(mach, altitude_m, check=check) * (scale * sfc_factor)
+        else:
+            sfc = r.tsfc_kg_per_n_s if r.kind == "jet" else r.psfc_kg_per_w_s
+            fuel = sfc * main * sfc_factor
+        return thrust, fuel
+
     def thrust_n(self, altitude_m, mach, throttle=1.0, rating: str | None = None, *,
                  check: bool = True):
-        """Net thrust of all engines [N] at pressure altitude [m], Mach and throttle [-]."""
-        r = self._rating(rating)
-        thrust_factor, _ = self._day_factors(altitude_m)
-        main = r.main(mach, altitude_m, check=check) * (throttle * self.thrust_scale * thrust_factor)
-        if r.kind == "jet":
-            return main
-        tas = mach * self.atmosphere(altitude_m).speed_of_sound_m_s
-        return r.eta(mach, check=check) * main / tas
+        """Net thrust of all engines [N] (see :meth:`thrust_and_fuel_flow`)."""
+        return self.thrust_and_fuel_flow(altitude_m, mach, throttle, rating, check=check)[0]
 
     def fuel_flow_kg_s(self, altitude_m, mach, throttle=1.0, rating: str | None = None, *,
                        check: bool = True):
-        """Fuel flow of all engines [kg/s]."""
-        r = self._rating(rating)
-        thrust_factor, sfc_factor = self._day_factors(altitude_m)
-        scale = throttle * self.thrust_scale * thrust_factor * sfc_factor
-        if r.fuel is not None:
-            return r.fuel(mach, altitude_m, check=check) * scale
-        full = r.main(mach, altitude_m, check=check)
-        sfc = r.tsfc_kg_per_n_s if r.kind == "jet" else r.psfc_kg_per_w_s
-        return sfc * full * scale
+        """Fuel flow of all engines [kg/s] (see :meth:`thrust_and_fuel_flow`)."""
+        return self.thrust_and_fuel_flow(altitude_m, mach, throttle, rating, check=check)[1]
 
     # ------------------------------------------------------------------ domain
     def in_domain(self, altitude_m, mach) -> np.ndarray:
@@ -276,8 +285,7 @@ class AircraftModel:
             cl = load_factor * weight / (q * self.reference_area_m2)
         cd = self.drag_coefficient(cl, mach, check=check)
         drag = q * self.reference_area_m2 * cd
-        thrust = self.thrust_n(h, mach, throttle, rating, check=check)
-        fuel = self.fuel_flow_kg_s(h, mach, throttle, rating, check=check)
+        thrust, fuel = self.thrust_and_fuel_flow(h, mach, throttle, rating, check=check)
         ps = v * (thrust - drag) / weight
         return PointPerformance(mach, q, cl, cd, drag, thrust, fuel, ps)
 
