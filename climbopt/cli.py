@@ -524,8 +524,10 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
         if parquet:
             written.append(sw.write_parquet(table, folder / "sweep.parquet"))
         if not no_plots:
-            written += [p for p in sw.plot_sweep(plan, result.rows, folder)
-                        if str(p).endswith(".png")]
+            from climbopt.plots import save_figure
+
+            for stem, fig in sw.sweep_figures(plan, result.rows).items():
+                written += [p for p in save_figure(fig, folder / stem) if p.suffix == ".png"]
     except sw.SweepError as exc:
         _fail(str(exc), EXIT_BAD_INPUT)
     except Exception as exc:  # outputs after the table: report, keep the table

@@ -17,8 +17,9 @@ What a sweep does
    changed values, the method and the objective); a re-run skips keys already in the table. A
    failing case is recorded with its status and error text and the sweep goes on. At the end the
    table is rewritten sorted by case order.
-4. :func:`plot_sweep` draws time and fuel against each varied input and, for the cost weight, the
-   time-fuel trade-off curve with its minimum-time and minimum-fuel ends marked.
+4. :func:`plot_parameter` draws time and fuel against each varied input and, for the cost weight,
+   :func:`plot_tradeoff` the time-fuel trade-off curve with its minimum-time and minimum-fuel
+   ends marked (:func:`sweep_figures` makes them all; the command line saves them).
 
 Statuses: ``ok``; ``infeasible`` (:class:`climbopt.rutowski.InfeasibleMission`);
 ``solver-failure`` (:class:`climbopt.collocation.SolverFailure`); ``bad-input`` (a changed value
@@ -52,8 +53,9 @@ from climbopt.units import UnitError, from_si, parse_quantity, split_quantity
 
 __all__ = [
     "PARAMETER_NAMES", "STATUSES", "SweepError", "SweepAborted", "Parameter", "Variation", "Case",
-    "SweepPlan", "SweepResult", "parameters", "parse_variation", "plan_sweep", "apply_case", "run_case",
-    "run_sweep", "read_table", "write_parquet", "tradeoff_curve", "pareto_front", "plot_sweep",
+    "SweepPlan", "SweepResult", "parameters", "parse_variation", "plan_sweep", "apply_case",
+    "run_case", "run_sweep", "read_table", "write_parquet", "tradeoff_curve", "pareto_front",
+    "plot_parameter", "plot_tradeoff", "sweep_figures",
 ]
 
 #: Names accepted by ``--vary``.
@@ -155,9 +157,9 @@ def parse_variation(text: str, scenario: Scenario) -> Variation:
 
     ``VALUES`` is either ``START:STOP:COUNT`` (COUNT evenly spaced values, both ends included)
     or a comma-separated list. Values may carry units (``60 t``, ``15 K``, ``35000 ft``,
-    ``280 kt``); a bare number takes the unit written with the other values of the same text,
-    or the SI unit (kg, K, m, m/s, kg/s) when no unit is written. No thousands separators
-    (commas separate values).
+    ``280 kt``); a bare number takes the one unit written with the other values of the same
+    text, or the SI unit (kg, K, m, m/s, kg/s) when no unit is written (with several units
+    written, every value needs its own). No thousands separators (commas separate values).
 
     Raises
     ------
@@ -195,7 +197,10 @@ def parse_variation(text: str, scenario: Scenario) -> Variation:
     else:
         items, count = _split_items(spec, what), None
     written = sorted({u for _, u in items if u})
-    default_unit = written[0] if len(written) == 1 else p.si_unit
+    if len(written) > 1 and any(not u for _, u in items):
+        raise SweepError(f"{what}: several units written ({', '.join(written)}) and some values "
+                         f"without one; write the unit on every value")
+    default_unit = written[0] if written else p.si_unit
     values = []
     for number, unit in items:
         unit = unit or default_unit
@@ -207,7 +212,7 @@ def parse_variation(text: str, scenario: Scenario) -> Variation:
     if count is not None:
         start, stop = values
         values = [start] if count == 1 else [start + (stop - start) * i / (count - 1)
-                                             for i in range(count)]
+                                             for i in range(count - 1)] + [stop]
         if count > 1 and start == stop:
             raise SweepError(f"{what}: START and STOP are equal; give COUNT 1 or different ends")
     seen = set()
@@ -958,86 +963,119 @@ def _shown(value_si: float, unit: str) -> str:
     return f"{from_si(value_si, unit):g} {unit}".strip() if unit else f"{value_si:g}"
 
 
-def plot_sweep(plan: SweepPlan, rows: list[dict], out_dir) -> list[Path]:
-    """Figures of a sweep in ``out_dir``: ``sweep_<name>.png/.svg`` (time and fuel against each
-    varied input, one line per combination of the other inputs) and, when the cost weight is
-    varied, ``tradeoff.png/.svg`` (fuel against time along the weight, non-dominated points
-    filled, minimum-time and minimum-fuel solutions marked). Returns the paths written."""
-    from climbopt.plots import OBJECTIVE_COLOURS, OBJECTIVE_MARKERS, plt, save_figure
+def _display_units(plan: SweepPlan) -> dict[str, str]:
+    """Plot unit of each varied input: the unit the user wrote, else SI."""
+    return {v.name: (v.unit or p.si_unit) for v, p in zip(plan.variations, plan.parameters)}
 
-    out_dir = Path(out_dir)
-    out_dir.mkdir(parents=True, exist_ok=True)
-    params = plan.parameters
-    units = {v.name: (v.unit or p.si_unit) for v, p in zip(plan.variations, params)}
+
+def _group_label(others, values, units) -> str:
+    return ", ".join(f"{q.name} {_shown(v, units[q.name])}" for q, v in zip(others, values))
+
+
+def plot_parameter(plan: SweepPlan, rows: list[dict], name: str, axes=None):
+    """Time [s] and fuel [kg] against the varied input ``name`` (in the unit the user wrote),
+    one line per combination of the other varied inputs; failed cases are crosses along the
+    bottom edge (``gid="failed"``). Only the rows of ``plan`` with its main objective are used.
+
+    ``axes``: two matplotlib axes (time, fuel) or None for a new figure. Returns the two axes.
+    """
+    from climbopt.plots import plt
+
+    params = {p.name: p for p in plan.parameters}
+    p = params[name]
+    others = [q for q in plan.parameters if q.name != name]
+    units = _display_units(plan)
     keys = {c.key for c in plan.cases}
     main = [r for r in rows if r["key"] in keys and r["objective"] == plan.objective]
-    written: list[Path] = []
+    if axes is None:
+        _, axes = plt.subplots(2, 1, figsize=(6.4, 6.0), sharex=True)
+    ax_t, ax_f = axes
+    groups = _groups(main, [q.column for q in others])
     palette = plt.get_cmap("viridis")
-
-    for p in params:
-        others = [q for q in params if q is not p]
-        groups = _groups(main, [q.column for q in others])
-        fig, (ax_t, ax_f) = plt.subplots(2, 1, figsize=(6.4, 6.0), sharex=True)
-        failed_x: list[float] = []
-        for gi, (gvals, grows) in enumerate(groups):
-            grows = sorted(grows, key=lambda r: r[p.column])
-            x = [from_si(r[p.column], units[p.name]) if units[p.name] else r[p.column]
-                 for r in grows]
-            ok = [r["status"] == "ok" for r in grows]
-            colour = palette(gi / max(1, len(groups) - 1)) if len(groups) > 1 else "#233d4d"
-            label = ", ".join(f"{q.name} {_shown(v, units[q.name])}"
-                              for q, v in zip(others, gvals)) or None
-            for ax, col in ((ax_t, "time_s"), (ax_f, "fuel_kg")):
-                y = [r[col] if good else math.nan for r, good in zip(grows, ok)]
-                ax.plot(x, y, "-o", color=colour, markersize=3.5, linewidth=1.2,
-                        label=label if ax is ax_t else None)
-            failed_x += [xi for xi, good in zip(x, ok) if not good]
-        for ax in (ax_t, ax_f):  # failed cases: crosses along the bottom edge
-            if failed_x:
-                ax.plot(failed_x, [0.03] * len(failed_x), "x", color="#b03a2e", markersize=6,
-                        transform=ax.get_xaxis_transform(), clip_on=False, gid="failed",
-                        label="failed case" if ax is ax_t else None)
-        ax_t.set_ylabel("time [s]")
-        ax_f.set_ylabel("fuel [kg]")
-        ax_f.set_xlabel(f"{p.label} [{units[p.name]}]" if units[p.name] else p.label)
-        for ax in (ax_t, ax_f):
-            ax.grid(True, color="#dddddd", linewidth=0.5)
-        if len(groups) <= 8 and (others or any(r["status"] != "ok" for r in main)):
-            ax_t.legend(fontsize=7, loc="best")
-        n_bad = sum(r["status"] != "ok" for r in main)
-        fig.suptitle(f"{plan.scenario.name}\n{METHODS[plan.method]}, objective {plan.objective}"
-                     + (f" ({n_bad} failed case{'s' if n_bad != 1 else ''})" if n_bad else ""),
-                     fontsize=9)
-        written += save_figure(fig, out_dir / f"sweep_{p.name}")
-
-    if "cost_weight" in [p.name for p in params]:
-        others = [q for q in params if q.name != "cost_weight"]
-        ours = [r for r in rows if r["key"] in keys]
-        groups = _groups(ours, [q.column for q in others])
-        fig, ax = plt.subplots(figsize=(6.4, 5.0))
-        for gi, (gvals, grows) in enumerate(groups):
-            curve = tradeoff_curve(grows)
-            colour = palette(gi / max(1, len(groups) - 1)) if len(groups) > 1 else \
-                OBJECTIVE_COLOURS["weighted"]
-            label = ", ".join(f"{q.name} {_shown(v, units[q.name])}"
-                              for q, v in zip(others, gvals)) or "weighted fuel + w x time"
-            ax.plot(curve["time_s"], curve["fuel_kg"], "-", color=colour, linewidth=1.2,
-                    label=label, gid="tradeoff")
-            front = set(curve["front"])
-            for i, (t, f) in enumerate(zip(curve["time_s"], curve["fuel_kg"])):
-                ax.plot(t, f, OBJECTIVE_MARKERS["weighted"], markersize=4, color=colour,
-                        markerfacecolor=colour if i in front else "white")
-            for obj, words in (("time", "minimum time"), ("fuel", "minimum fuel")):
-                a = curve[f"min_{obj}"]
-                if a is not None:
-                    ax.plot(a["time_s"], a["fuel_kg"], OBJECTIVE_MARKERS[obj], markersize=9,
-                            color=OBJECTIVE_COLOURS[obj], markeredgecolor="black",
-                            label=words if gi == 0 else None, gid=f"min_{obj}")
-        ax.set_xlabel("time [s]")
-        ax.set_ylabel("fuel [kg]")
+    failed_x: list[float] = []
+    for gi, (gvals, grows) in enumerate(groups):
+        grows = sorted(grows, key=lambda r: r[p.column])
+        x = [from_si(r[p.column], units[name]) if units[name] else r[p.column] for r in grows]
+        ok = [r["status"] == "ok" for r in grows]
+        colour = palette(gi / max(1, len(groups) - 1)) if len(groups) > 1 else "#233d4d"
+        label = _group_label(others, gvals, units) or None
+        for ax, col in ((ax_t, "time_s"), (ax_f, "fuel_kg")):
+            y = [r[col] if good else math.nan for r, good in zip(grows, ok)]
+            ax.plot(x, y, "-o", color=colour, markersize=3.5, linewidth=1.2, gid="sweep",
+                    label=label if ax is ax_t else None)
+        failed_x += [xi for xi, good in zip(x, ok) if not good]
+    for ax in (ax_t, ax_f):
+        if failed_x:
+            ax.plot(failed_x, [0.03] * len(failed_x), "x", color="#b03a2e", markersize=6,
+                    transform=ax.get_xaxis_transform(), clip_on=False, gid="failed",
+                    label="failed case" if ax is ax_t else None)
         ax.grid(True, color="#dddddd", linewidth=0.5)
-        ax.legend(fontsize=7, loc="best")
-        ax.set_title(f"{plan.scenario.name}\ntime-fuel trade-off over the cost weight "
-                     f"({METHODS[plan.method]}); hollow: dominated", fontsize=9)
-        written += save_figure(fig, out_dir / "tradeoff")
-    return written
+    ax_t.set_ylabel("time [s]")
+    ax_f.set_ylabel("fuel [kg]")
+    ax_f.set_xlabel(f"{p.label} [{units[name]}]" if units[name] else p.label)
+    if len(groups) <= 8 and (others or failed_x):
+        ax_t.legend(fontsize=7, loc="best")
+    n_bad = sum(r["status"] != "ok" for r in main)
+    ax_t.set_title(f"{plan.scenario.name}\n{METHODS[plan.method]}, objective {plan.objective}"
+                   + (f" ({n_bad} failed case{'s' if n_bad != 1 else ''})" if n_bad else ""),
+                   fontsize=9)
+    return ax_t, ax_f
+
+
+def plot_tradeoff(plan: SweepPlan, rows: list[dict], ax=None):
+    """Fuel [kg] against time [s] along the cost weight (the time-fuel trade-off curve,
+    ``gid="tradeoff"``), one curve per combination of the other varied inputs; non-dominated
+    points filled, dominated ones hollow; the minimum-time and minimum-fuel solutions marked
+    (``gid="min_time"``, ``gid="min_fuel"``). Returns the axes."""
+    from climbopt.plots import OBJECTIVE_COLOURS, OBJECTIVE_MARKERS, plt
+
+    if "cost_weight" not in [v.name for v in plan.variations]:
+        raise ValueError("the trade-off curve needs a sweep over cost_weight")
+    others = [q for q in plan.parameters if q.name != "cost_weight"]
+    units = _display_units(plan)
+    keys = {c.key for c in plan.cases}
+    groups = _groups([r for r in rows if r["key"] in keys], [q.column for q in others])
+    if ax is None:
+        _, ax = plt.subplots(figsize=(6.4, 5.0))
+    palette = plt.get_cmap("viridis")
+    for gi, (gvals, grows) in enumerate(groups):
+        curve = tradeoff_curve(grows)
+        colour = (palette(gi / max(1, len(groups) - 1)) if len(groups) > 1
+                  else OBJECTIVE_COLOURS["weighted"])
+        label = _group_label(others, gvals, units) or "minimum fuel + w x time"
+        ax.plot(curve["time_s"], curve["fuel_kg"], "-", color=colour, linewidth=1.2,
+                label=label, gid="tradeoff")
+        front = set(curve["front"])
+        for i, (t, f) in enumerate(zip(curve["time_s"], curve["fuel_kg"])):
+            ax.plot(t, f, OBJECTIVE_MARKERS["weighted"], markersize=4, color=colour,
+                    markerfacecolor=colour if i in front else "white")
+        for obj, words in (("time", "minimum time"), ("fuel", "minimum fuel")):
+            a = curve[f"min_{obj}"]
+            if a is not None:
+                ax.plot(a["time_s"], a["fuel_kg"], OBJECTIVE_MARKERS[obj], markersize=9,
+                        color=OBJECTIVE_COLOURS[obj], markeredgecolor="black",
+                        label=words if gi == 0 else None, gid=f"min_{obj}")
+    ax.set_xlabel("time [s]")
+    ax.set_ylabel("fuel [kg]")
+    ax.grid(True, color="#dddddd", linewidth=0.5)
+    ax.legend(fontsize=7, loc="best")
+    ax.set_title(f"{plan.scenario.name}\ntime-fuel trade-off over the cost weight "
+                 f"({METHODS[plan.method]}); hollow: dominated", fontsize=9)
+    return ax
+
+
+def sweep_figures(plan: SweepPlan, rows: list[dict]) -> dict:
+    """All figures of a sweep by file stem: ``sweep_<name>`` for each varied input and
+    ``tradeoff`` when the cost weight is varied. Nothing is saved here."""
+    from climbopt.plots import plt
+
+    figures = {}
+    for p in plan.parameters:
+        fig, axes = plt.subplots(2, 1, figsize=(6.4, 6.0), sharex=True)
+        plot_parameter(plan, rows, p.name, axes)
+        figures[f"sweep_{p.name}"] = fig
+    if "cost_weight" in [v.name for v in plan.variations]:
+        fig, ax = plt.subplots(figsize=(6.4, 5.0))
+        plot_tradeoff(plan, rows, ax)
+        figures["tradeoff"] = fig
+    return figures

@@ -100,8 +100,8 @@ def test_target_speed_follows_the_kind_of_the_target(twin, interceptor):
     # the demo transport's target is Mach 0.78: plain numbers
     p = sw.parameters(twin)["target_speed"]
     assert p.column == "target_mach" and p.dimension == "dimensionless"
-    assert sw.parse_variation("target_speed=0.74:0.8:4", twin).values == pytest.approx(
-        [0.74, 0.76, 0.78, 0.80], abs=1e-15)
+    values = sw.parse_variation("target_speed=0.74:0.8:4", twin).values
+    assert values == pytest.approx([0.74, 0.76, 0.78, 0.80], abs=1e-15) and values[-1] == 0.8
     # the interceptor's target is a TAS: a speed in any unit, stored in m/s
     p = sw.parameters(interceptor)["target_speed"]
     assert p.column == "target_tas_m_s"
@@ -121,6 +121,7 @@ def test_target_speed_follows_the_kind_of_the_target(twin, interceptor):
     ("mass=60 m", "not a mass"),
     ("temperature_offset=15 degC", "absolute temperature"),
     ("thrust_scale=0.9,,1.1", "empty value"),
+    ("mass=60 t,70,150000 lb", "write the unit on every value"),
 ])
 def test_bad_vary_text_is_explained(twin, text, words):
     with pytest.raises(sw.SweepError) as info:
@@ -283,6 +284,22 @@ def test_serial_table_is_in_case_order_with_physical_trends(serial_rows):
         assert ok[(80000.0, h)]["fuel_kg"] > ok[(60000.0, h)]["fuel_kg"]
 
 
+def test_parameter_plots_show_groups_and_failed_cases(grid_plan, serial_rows):
+    from climbopt.plots import plt
+
+    figs = sw.sweep_figures(grid_plan, serial_rows)
+    assert sorted(figs) == ["sweep_mass", "sweep_target_altitude"]
+    ax_t, _ = figs["sweep_target_altitude"].axes
+    lines = [ln for ln in ax_t.get_lines() if ln.get_gid() == "sweep"]
+    assert [ln.get_label() for ln in lines] == ["mass 60 t", "mass 80 t"]  # one per other value
+    assert list(lines[0].get_xdata()) == pytest.approx([33000, 35000, 45000])  # in ft, as written
+    assert math.isnan(lines[0].get_ydata()[2])  # the infeasible case leaves a gap
+    (failed,) = [ln for ln in ax_t.get_lines() if ln.get_gid() == "failed"]
+    assert list(failed.get_xdata()) == pytest.approx([45000, 45000])
+    for fig in figs.values():
+        plt.close(fig)
+
+
 def test_local_pool_gives_the_identical_table(grid_plan, serial_rows, tmp_path):
     res = sw.run_sweep(grid_plan, tmp_path / "t.csv", executor="pool", workers=2)
     assert res.workers == 2 and res.computed == 6
@@ -424,19 +441,32 @@ def test_tradeoff_ends_match_the_single_objective_solutions(tradeoff, intercepto
 
 
 def test_plots_of_a_sweep_and_the_tradeoff(tradeoff):
+    from climbopt.plots import plt, save_figure
+
     plan, res, folder = tradeoff
-    paths = sw.plot_sweep(plan, res.rows, folder)
-    names = sorted(p.name for p in paths)
-    assert names == ["sweep_cost_weight.png", "sweep_cost_weight.svg", "tradeoff.png",
-                     "tradeoff.svg"]
-    for p in paths:
-        data = p.read_bytes()
-        assert len(data) > 5000
-        if p.suffix == ".png":
-            assert data[:8] == b"\x89PNG\r\n\x1a\n"
-    svg = (folder / "tradeoff.svg").read_text()
-    assert 'id="min_time' in svg and 'id="min_fuel' in svg and 'id="tradeoff' in svg
-    assert "not for operational use" in svg
+    figs = sw.sweep_figures(plan, res.rows)
+    assert sorted(figs) == ["sweep_cost_weight", "tradeoff"]
+    ax = figs["tradeoff"].axes[0]
+    by_gid = {}
+    for line in ax.get_lines():
+        by_gid.setdefault(line.get_gid(), []).append(line)
+    (curve,) = by_gid["tradeoff"]
+    curve_t, curve_f = curve.get_data()
+    assert list(curve_t) == sw.tradeoff_curve(res.rows)["time_s"]  # 7 weights, by weight
+    assert len(curve_t) == 7 and list(curve_f) == sorted(curve_f)
+    (t_end,), (f_end,) = by_gid["min_time"], by_gid["min_fuel"]
+    t_min = next(r for r in res.rows if r["objective"] == "time")
+    f_min = next(r for r in res.rows if r["objective"] == "fuel")
+    assert (t_end.get_xdata()[0], t_end.get_ydata()[0]) == (t_min["time_s"], t_min["fuel_kg"])
+    assert (f_end.get_xdata()[0], f_end.get_ydata()[0]) == (f_min["time_s"], f_min["fuel_kg"])
+    ax_t, ax_f = figs["sweep_cost_weight"].axes
+    (line,) = [ln for ln in ax_f.get_lines() if ln.get_gid() == "sweep"]
+    assert list(line.get_xdata()) == [0, 1, 3, 10, 30, 100, 10000]  # kg/s as written
+    assert ax_f.get_xlabel() == "cost weight (fuel per second of time) [kg/s]"
+    written = save_figure(figs["tradeoff"], folder / "tradeoff")
+    plt.close(figs["sweep_cost_weight"])
+    png = next(p for p in written if p.suffix == ".png").read_bytes()
+    assert png[:8] == b"\x89PNG\r\n\x1a\n" and len(png) > 5000
 
 
 def test_pareto_front_drops_dominated_points():
@@ -521,3 +551,31 @@ def test_cli_sweep_missing_optional_package_exits_2(small_toml, tmp_path, monkey
     assert r.exit_code == 2, r.output
     assert words in r.output
     assert not (tmp_path / "o" / "sweep.csv").exists()
+
+
+def test_cli_sweep_ctrl_c_keeps_the_finished_rows_and_exits_130(small_toml, tmp_path, monkeypatch):
+    real = sw.run_case
+    calls = []
+
+    def interrupted_on_second(scenario, case):
+        calls.append(case.index)
+        if len(calls) == 2:
+            raise KeyboardInterrupt
+        return real(scenario, case)
+
+    monkeypatch.setattr(sw, "run_case", interrupted_on_second)
+    out = tmp_path / "o"
+    args = ["sweep", str(small_toml), "--vary", "thrust_scale=0.9,1,1.1", "--serial",
+            "--out", str(out)]
+    r = CliRunner().invoke(cli, args)
+    assert r.exit_code == 130
+    assert "interrupted: the finished cases are in" in r.output and "Traceback" not in r.output
+    assert [x["thrust_scale"] for x in sw.read_table(out / "sweep.csv")] == [0.9]
+    monkeypatch.setattr(sw, "run_case", real)
+    r = CliRunner().invoke(cli, args + ["--no-plots"])
+    assert r.exit_code == 0, r.output
+    assert "done 2, failed 0, skipped 1" in r.output
+    rows = sw.read_table(out / "sweep.csv")
+    assert [x["thrust_scale"] for x in rows] == [0.9, 1.0, 1.1]
+    # more thrust: a faster climb (common practice, no source)
+    assert rows[0]["time_s"] > rows[1]["time_s"] > rows[2]["time_s"]
