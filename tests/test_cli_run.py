@@ -194,7 +194,10 @@ def test_map_command(tmp_path):
     """`climbopt map`: the fields as .npz and .csv, plots, map.json with the caution; the CSV
     has one row per grid point and its Ps matches the .npz."""
     out = tmp_path / "m"
-    scenario = ROOT / "scenarios" / "turboprop_regional.toml"
+    text = (ROOT / "scenarios" / "turboprop_regional.toml").read_text()
+    scenario = tmp_path / "small_grid.toml"         # a coarser grid keeps the test fast
+    scenario.write_text(text.replace("grid_altitude_points = 300", "grid_altitude_points = 90")
+                        .replace("grid_speed_points = 300", "grid_speed_points = 70"))
     result = _run(["map", scenario, "--out", out])
     assert result.exit_code == 0, result.output
     assert CAUTION in result.output
@@ -202,6 +205,7 @@ def test_map_command(tmp_path):
     assert meta["caution"] == CAUTION
     data = np.load(out / "energy_map.npz")
     nh, nv = meta["shape"]
+    assert (nh, nv) == (90, 70)
     assert data["ps_m_s"].shape == (nh, nv) and data["feasible"].dtype == bool
     header, rows = read_csv(out / "energy_map.csv")
     assert len(rows) == nh * nv
