@@ -766,7 +766,8 @@ def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init: tuple, ipopt_opts: dict,
     res = solver(x0=z0, lbx=lbz, ubx=ubz, lbg=lbg, ubg=ubg)
     t_solve = _time.perf_counter() - t0
     stats = solver.stats()
-    zs = np.asarray(res["x"], float).ravel()
+    # IPOPT relaxes bounds by 1e-8 relative (bound_relax_factor); report values inside them.
+    zs = np.clip(np.asarray(res["x"], float).ravel(), lbz, ubz)
     climb = _unpack(st, zs[:n_c], tau_c)
     dash = _unpack(st, zs[n_c:], tau_d) if has_dash else None
     del cb

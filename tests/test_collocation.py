@@ -1,0 +1,202 @@
+"""Direct collocation (climbopt.collocation) against the published minimum-time-to-climb benchmark.
+
+Benchmark: the supersonic interceptor of A. E. Bryson, M. N. Desai and W. C. Hoffman, "Energy-state
+approximation in performance optimization of supersonic aircraft", J. Aircraft 6(6), 1969, with
+the data and problem statement as tabulated in J. T. Betts, *Practical Methods for Optimal
+Control and Estimation Using Nonlinear Programming*, 2nd ed., SIAM 2010 (tests/data/
+interceptor_1969.toml). Published figures used here are collected in
+/work/shared/reference/CHECK_VALUES.md and interceptor_1969/README.md.
+
+Solved trajectories are shared through module-scoped fixtures to keep the file fast.
+"""
+
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from climbopt.aircraft import build_model
+from climbopt.collocation import SolverFailure, solve_collocation
+from climbopt.rutowski import solve_energy_state
+from climbopt.scenario import load_scenario
+from climbopt.verify import FINAL_MISS_TOLERANCE, PATH_VIOLATION_TOLERANCE
+
+DATA = Path(__file__).parent / "data"
+SCENARIOS = Path(__file__).parent.parent / "scenarios"
+LB_KG = 0.45359237
+SLUG_KG = 14.593902937
+
+
+@pytest.fixture(scope="module")
+def interceptor():
+    scenario = load_scenario(DATA / "interceptor_1969.toml")
+    return scenario, build_model(scenario)
+
+
+@pytest.fixture(scope="module")
+def min_time(interceptor):
+    scenario, model = interceptor
+    return solve_collocation(scenario, "time", model=model)  # energy-state warm start
+
+
+@pytest.fixture(scope="module")
+def min_time_cold(interceptor):
+    scenario, model = interceptor
+    return solve_collocation(scenario, "time", model=model, guess="straight", verify=False)
+
+
+@pytest.fixture(scope="module")
+def min_fuel(interceptor):
+    scenario, model = interceptor
+    return solve_collocation(scenario, "fuel", model=model)
+
+
+def test_min_time_matches_published_benchmark(min_time):
+    """Minimum time to climb: published direct-method solutions report about 320.5 s and 321 s
+    (Betts 2010; Bryson, Desai & Hoffman 1969 data). Within 1.5% of 320 s: fitting the coarse
+    tables alone moves the answer by about 0.5% (CHECK_VALUES.md)."""
+    assert min_time.converged
+    assert min_time.method == "collocation" and min_time.objective == "time"
+    assert min_time.time_s == pytest.approx(320.0, rel=0.015)
+    # End state exactly the published target: 65,600 ft, 968.148 ft/s, level.
+    tb = min_time.table
+    assert tb["altitude_m"][-1] == pytest.approx(65600 * 0.3048, abs=1e-6)
+    assert tb["tas_m_s"][-1] == pytest.approx(968.148 * 0.3048, abs=1e-6)
+    assert tb["flight_path_angle_rad"][-1] == pytest.approx(0.0, abs=1e-9)
+
+
+def test_min_time_final_mass_matches_published(min_time):
+    """Final mass on the minimum-time path: about 1161.9 slug (CHECK_VALUES.md, from the
+    published minimum-fuel comparison); within 0.5%."""
+    assert min_time.final_mass_kg == pytest.approx(1161.9 * SLUG_KG, rel=0.005)
+
+
+def test_min_time_keeps_ground_and_dives_through_transonic(min_time):
+    """Shape (Bryson, Desai & Hoffman 1969): subsonic climb, a dive through the transonic drag
+    rise, then a supersonic climb. The altitude >= 0 bound is active at the start of the path
+    (stated for this benchmark in the project's issue: without it the time drops to ~319 s):
+    the solution never goes below 0 m and runs along it for the first seconds."""
+    tb = min_time.table
+    t, h, mach = tb["time_s"], tb["altitude_m"], tb["mach"]
+    assert h.min() >= -1e-6
+    early = (t > 1.0) & (t < 15.0)
+    assert np.all(h[early] < 1.0)  # flies along the ground bound
+    sub = mach < 0.99
+    i_peak = int(np.argmax(np.where(sub, h, -np.inf)))
+    assert h[i_peak] > 8000.0  # subsonic climb well up before the dive
+    after = slice(i_peak, int(np.argmax(mach > 1.2)))
+    assert h[i_peak] - h[after].min() > 500.0  # dives while going supersonic
+    assert mach[after].max() > 1.0
+
+
+def test_min_time_resimulation(min_time):
+    """Re-integrating the optimal controls (scipy solve_ivp, rtol 1e-10) reaches the target to
+    within 0.1% of the final energy height, and no limit is exceeded beyond the tolerance."""
+    v = min_time.verification
+    assert v is not None and v["ok"], v["message"]
+    assert v["final_miss_relative"] < 1e-3
+    assert FINAL_MISS_TOLERANCE == 1e-3
+    assert v["max_path_violation"] <= PATH_VIOLATION_TOLERANCE
+    he_f = 65600 * 0.3048 + (968.148 * 0.3048) ** 2 / (2 * 9.80665)
+    assert v["final_energy_height_m"] == pytest.approx(he_f, rel=1e-9)
+
+
+def test_cold_and_warm_start_agree(min_time, min_time_cold):
+    """A straight-line guess and the energy-state guess reach the same optimum (well-posed
+    problem: within 0.1%), and the warm start needs no more IPOPT iterations."""
+    assert min_time_cold.converged
+    assert min_time_cold.time_s == pytest.approx(min_time.time_s, rel=1e-3)
+    assert min_time.iterations <= min_time_cold.iterations
+    assert any("straight line" in n for n in min_time_cold.notes)
+    assert any("energy-state" in n for n in min_time.notes)
+
+
+def test_energy_state_answer_is_optimistic(interceptor, min_time):
+    """The energy-state time on this problem is well below the point-mass optimum: its final
+    zoom from about Mach 1.7 to the target is free (CHECK_VALUES.md: 'a value near 320 s would
+    be suspicious' for the energy-state answer)."""
+    scenario, model = interceptor
+    es = solve_energy_state(scenario, "time", model=model)
+    assert es.time_s < 0.95 * min_time.time_s
+
+
+def test_min_fuel_matches_published(min_fuel, min_time):
+    """Minimum fuel, full-thrust data, free final time: final mass about 1177.7-1178.1 slug
+    (about 17,190 kg), climb time about 380 s, only weakly determined (CHECK_VALUES.md: check
+    fuel tightly, time loosely). With constant specific impulse the throttle stays at full."""
+    assert min_fuel.converged and min_fuel.objective == "fuel"
+    assert min_fuel.final_mass_kg == pytest.approx(17190.0, rel=0.005)
+    assert min_fuel.time_s == pytest.approx(380.0, rel=0.10)
+    assert min_fuel.fuel_kg < min_time.fuel_kg
+    assert min_fuel.time_s > min_time.time_s
+    assert np.mean(min_fuel.controls["throttle"] > 0.99) > 0.95
+    assert min_fuel.verification["ok"], min_fuel.verification["message"]
+
+
+def test_dynamic_pressure_limit_is_ridden_not_exceeded(interceptor, min_time):
+    """With a dynamic-pressure limit below the unconstrained path's peak (about 57 kPa) the
+    optimum rides the limit over part of the supersonic climb and never exceeds it: at the
+    collocation points to IPOPT's tolerance, along the re-simulated path to the stated
+    PATH_VIOLATION_TOLERANCE (0.5%). Riding a limit costs time (common practice, no source)."""
+    scenario, model = interceptor
+    q_max = 45_000.0
+    assert min_time.controls["dynamic_pressure_pa"].max() > 1.2 * q_max
+    limited = replace(scenario, limits=replace(scenario.limits, max_dynamic_pressure_pa=q_max))
+    tr = solve_collocation(limited, "time", model=model)
+    q = tr.controls["dynamic_pressure_pa"]
+    assert tr.converged
+    assert q.max() <= q_max * (1 + 1e-6)
+    riding = q >= q_max * (1 - 1e-3)
+    t = tr.table["time_s"]
+    assert np.ptp(t[riding]) > 30.0  # rides it for a while, not just touches
+    assert tr.time_s > min_time.time_s
+    assert tr.verification["path_violations"]["dynamic_pressure"] <= PATH_VIOLATION_TOLERANCE
+    assert tr.verification["ok"], tr.verification["message"]
+
+
+def test_weighted_objective_lies_between(interceptor, min_time, min_fuel):
+    """fuel + w * time with w = 2 kg/s (near the fuel-flow scale of this aircraft): the
+    compromise takes no less fuel than the minimum-fuel path and no more time than it, and no
+    less time than the minimum-time path (definition of the weighted objective)."""
+    scenario, model = interceptor
+    sc = replace(scenario, solver=replace(scenario.solver, cost_weight_kg_per_s=2.0))
+    tr = solve_collocation(sc, "weighted", model=model, intervals=60, verify=False)
+    assert tr.converged and tr.objective == "weighted"
+    assert min_time.time_s * (1 - 1e-4) <= tr.time_s <= min_fuel.time_s * (1 + 1e-4)
+    assert min_fuel.fuel_kg * (1 - 1e-4) <= tr.fuel_kg <= min_time.fuel_kg * (1 + 1e-4)
+    cost = tr.fuel_kg + 2.0 * tr.time_s
+    assert cost <= min_time.fuel_kg + 2.0 * min_time.time_s + 1e-3 * cost
+    assert cost <= min_fuel.fuel_kg + 2.0 * min_fuel.time_s + 1e-3 * cost
+
+
+def test_forced_failure_raises_with_status(interceptor):
+    """IPOPT stopped after one iteration: SolverFailure with IPOPT's status and iteration count,
+    and the iterate flagged as not converged (never reported as optimal)."""
+    scenario, model = interceptor
+    with pytest.raises(SolverFailure) as info:
+        solve_collocation(scenario, "time", model=model, guess="straight", intervals=20,
+                          ipopt_options={"max_iter": 1}, verify=False)
+    err = info.value
+    assert err.status == "Maximum_Iterations_Exceeded"
+    assert err.iterations == 1
+    assert "Maximum_Iterations_Exceeded" in str(err)
+    assert err.trajectory is not None and err.trajectory.converged is False
+    assert err.trajectory.table["time_s"].shape == (41,)
+
+
+def test_unknown_objective_invalid(interceptor):
+    scenario, model = interceptor
+    with pytest.raises(ValueError, match="objective must be one of time, fuel, weighted"):
+        solve_collocation(scenario, "range", model=model)
+
+
+def test_progress_reports_iterations(interceptor):
+    """The progress callback receives one message per IPOPT iteration and per mesh pass."""
+    scenario, model = interceptor
+    msgs = []
+    tr = solve_collocation(scenario, "time", model=model, intervals=30, verify=False,
+                           progress=lambda m, f: msgs.append((m, f)))
+    per_iteration = [m for m, _ in msgs if "IPOPT iteration" in m]
+    assert len(per_iteration) >= tr.iterations
+    assert any(m.startswith("mesh pass 1: 30 intervals") for m, _ in msgs)
