@@ -137,6 +137,20 @@ def _default_out(scenario_file: str, suffix: str = "") -> Path:
     return Path("out") / (Path(scenario_file).stem + suffix)
 
 
+def _check_out_dir(out: Path, marker: str) -> None:
+    """Refuse to replace a folder that is not an earlier climbopt output (the whole folder is
+    swapped out): it must be missing, empty, or hold ``marker`` (summary.json / map.json)."""
+    resolved = out.resolve()
+    cwd = Path.cwd().resolve()
+    if resolved == cwd or resolved in cwd.parents:
+        _fail(f"--out {out}: refusing to replace the current folder or one above it; "
+              "give a folder for the results", EXIT_BAD_INPUT)
+    if out.is_dir() and any(out.iterdir()) and not (out / marker).is_file():
+        _fail(f"--out {out}: the folder exists and is not a climbopt output folder (no {marker}); "
+              "it would be replaced as a whole, so choose another folder or empty it",
+              EXIT_BAD_INPUT)
+
+
 def _solve_all(scenario, model, method: str, objectives: list[str], bar: _Progress):
     """Run the solvers. Returns (results, errors, exit_code). Raises InfeasibleMission."""
     from climbopt.report import FailedRun
@@ -269,6 +283,7 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
 
     scenario = _load_for_command(scenario_file)
     out = Path(out_dir) if out_dir else _default_out(scenario_file)
+    _check_out_dir(out, "summary.json")
     objectives = ["time", "fuel"] if objective == "both" else [objective]
     bar = _Progress(_progress_enabled(quiet or as_json))
     try:
@@ -326,6 +341,7 @@ def map_command(scenario_file, out_dir, units, quiet):
 
     scenario = _load_for_command(scenario_file)
     out = Path(out_dir) if out_dir else _default_out(scenario_file, "-map")
+    _check_out_dir(out, "map.json")
     bar = _Progress(_progress_enabled(quiet))
     try:
         model = build_model(scenario)

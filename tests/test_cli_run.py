@@ -271,3 +271,21 @@ def test_forced_solver_failure_exit_4(tmp_path):
     assert not (out / "collocation_time_schedule.csv").exists()
     table = (out / "report.txt").read_text()
     assert "not ranked" in table and CAUTION in table
+
+
+def test_run_refuses_foreign_out_folder(tmp_path, monkeypatch):
+    """The output folder is replaced as a whole, so a non-empty folder that is not an earlier
+    climbopt output (no summary.json), or the current folder, is refused with exit 2 and left
+    alone."""
+    foreign = tmp_path / "mine"
+    foreign.mkdir()
+    (foreign / "thesis.tex").write_text("precious")
+    scenario = ROOT / "scenarios" / "turboprop_regional.toml"
+    result = _run(["run", scenario, "--method", "energy", "--out", foreign])
+    assert result.exit_code == 2
+    assert "not a climbopt output folder" in result.output
+    assert (foreign / "thesis.tex").read_text() == "precious"
+    monkeypatch.chdir(foreign)
+    result = _run(["run", scenario, "--method", "energy", "--out", "."])
+    assert result.exit_code == 2 and "current folder" in result.output
+    assert (foreign / "thesis.tex").read_text() == "precious"
