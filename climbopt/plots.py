@@ -332,6 +332,10 @@ def plot_time_histories(trajectories, *, units: str = "si", axes=None):
     for ax, key in zip(axes, TIME_PANELS):
         ax.set_ylabel(labels[key], fontsize=8)
         ax.grid(True, color="#dddddd", linewidth=0.5)
+        ax.ticklabel_format(axis="y", useOffset=False, style="plain")
+    # the throttle is a fraction of the rating: show its whole range, not rounding noise
+    lo, hi = axes[TIME_PANELS.index("throttle")].get_ylim()
+    axes[TIME_PANELS.index("throttle")].set_ylim(min(lo, -0.05), max(hi, 1.05))
     axes[-1].set_xlabel("time from start [s]")
     if len(trajectories):
         axes[0].legend(fontsize=7, loc="best")

@@ -150,3 +150,14 @@ def test_styles_apart_in_grey():
     e = plots.path_style("energy-state", "time")
     assert e["linestyle"] != t["linestyle"]
     assert e["markerfacecolor"] != t["markerfacecolor"]
+
+
+def test_time_histories_throttle_axis_full_range():
+    """The throttle panel shows 0 to 1 even when the throttle is constant (no offset notation
+    amplifying rounding noise)."""
+    tb = simple_table()
+    tb["throttle"] = 1.0 - 1e-7 * np.arange(len(tb["throttle"]))
+    axes = plots.plot_time_histories([Trajectory("collocation", "fuel", tb)])
+    lo, hi = axes[3].get_ylim()
+    assert lo <= 0.0 and hi >= 1.0
+    assert axes[3].yaxis.get_major_formatter().get_offset() == ""
