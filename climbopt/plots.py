@@ -40,7 +40,7 @@ __all__ = [
 # colours and styles (ours)
 
 #: Objective colours: dark slate (time), light ochre (fuel), mid green (weighted); their grey
-#: values are about 25 %, 65 % and 45 % so they stay apart in grey print.
+#: values (ITU-R BT.601 luma) are about 22 %, 66 % and 46 % so they stay apart in grey print.
 OBJECTIVE_COLOURS = {"time": "#233d4d", "fuel": "#e0a33a", "weighted": "#5c8a4a"}
 OBJECTIVE_MARKERS = {"time": "o", "fuel": "s", "weighted": "D"}
 METHOD_LINESTYLES = {"energy-state": (0, (6, 3)), "collocation": "-"}
