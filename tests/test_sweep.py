@@ -311,8 +311,13 @@ def test_local_pool_gives_the_identical_table(grid_plan, serial_rows, tmp_path):
 def test_dask_local_cluster_gives_the_identical_table(grid_plan, serial_rows, tmp_path):
     from distributed import Client, LocalCluster
 
-    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                      dashboard_address=None) as cluster, Client(cluster) as client:
+    # Two workers on the loopback interface, talking TCP (every task and result is serialised
+    # over the wire as on a real cluster); worker threads in this process rather than worker
+    # processes, which would take 5-20 s to start on the shared 2-core test machine. The
+    # benchmark (benchmarks/bench_sweep.py) runs worker processes.
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, protocol="tcp://",
+                      host="127.0.0.1", dashboard_address=None) as cluster, \
+            Client(cluster) as client:
         workers = client.scheduler_info()["workers"]
         assert len(workers) == 2 and all(a.startswith("tcp://127.0.0.1:") for a in workers)
         res = sw.run_sweep(grid_plan, tmp_path / "t.csv", executor="dask",
