@@ -504,8 +504,8 @@ def _read_rows(path: Path) -> tuple[list[str] | None, list[list[str]]]:
     """
     with open(path, newline="", encoding="utf-8") as fh:
         text = fh.read()
-    text = text[: text.rfind("\n") + 1]
-    lines = [ln for ln in text.splitlines(keepends=True) if not ln.startswith("#")]
+    complete = text[: text.rfind("\n") + 1].split("\n")[:-1]
+    lines = [ln + "\n" for ln in complete if not ln.startswith("#")]
     if not lines:
         return None, []
     rows = list(csv.reader(lines))
@@ -806,16 +806,16 @@ def run_sweep(plan: SweepPlan, table_path, *, executor: str = "pool", workers: i
     table_path.parent.mkdir(parents=True, exist_ok=True)
 
     existing: dict[str, list[str]] = {}  # key -> last row
-    if table_path.exists() and table_path.stat().st_size > 0:
-        old_header, old_rows = _read_rows(table_path)
-        if old_header is not None and old_header != header:
+    old_header, old_rows = _read_rows(table_path) if table_path.exists() else (None, [])
+    if old_header is not None:
+        if old_header != header:
             raise SweepError(
                 f"{table_path} holds another sweep (columns {', '.join(old_header)}); this "
                 f"sweep writes columns {', '.join(header)}: choose another output or remove it")
         _repair_tail(table_path)
         for r in old_rows:
             existing[r[1]] = r
-    else:
+    else:  # new table (or one torn before its header was complete)
         with open(table_path, "w", newline="", encoding="utf-8") as fh:
             fh.write("\n".join(_comment_lines(plan)) + "\n")
             csv.writer(fh, lineterminator="\n").writerow(header)
