@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
+import os
 import tempfile
 import time
 from pathlib import Path
@@ -64,7 +65,9 @@ def main(argv=None) -> None:
     solve_energy_state(base, "time")  # warm-up
     print(f"Sweep benchmark: {base.name} (invented demo aircraft), energy-state minimum time, "
           f"grid {args.grid} x {args.grid}; warm-up solve {time.perf_counter() - t0:.2f} s")
-    print(f"  {n} cases (mass x temperature offset); {args.workers} workers")
+    print(f"  {n} cases (mass x temperature offset); {args.workers} workers; load average "
+          f"before {os.getloadavg()[0]:.2f} on {os.cpu_count()} cores (other work on the "
+          f"machine lowers the pool's speed-up)")
     print()
 
     with tempfile.TemporaryDirectory() as tmp:
@@ -76,7 +79,8 @@ def main(argv=None) -> None:
         pool = timed(plan, folder, "pool", executor="pool", workers=args.workers)
         print(f"pool   : {pool.wall_s:6.2f} s, {pool.cases_per_s:6.2f} cases/s, speed-up "
               f"{pool.cases_per_s / serial.cases_per_s:.2f}x on {pool.workers} processes "
-              f"(includes starting them)")
+              f"(includes starting them; mean solve in the workers "
+              f"{sum(r['wall_s'] for r in pool.rows) / n:.3f} s)")
 
         c_serial = timed(cheap, folder, "cheap_serial", executor="serial")
         c_pool = timed(cheap, folder, "cheap_pool", executor="pool", workers=args.workers)
@@ -94,8 +98,7 @@ def main(argv=None) -> None:
                               host="127.0.0.1", dashboard_address=None) as cluster, \
                     Client(cluster) as client:
                 start = time.perf_counter() - t0
-                client.run(lambda: __import__("climbopt.sweep") and None)  # workers warm
-                client.submit(solve_energy_state, base, "time").result()
+                client.run(_warm_up, base)  # every worker: imports and a first solve
                 c_dask = timed(cheap, folder, "cheap_dask", executor="dask", cluster=client)
                 dask = timed(plan, folder, "dask", executor="dask", cluster=client)
             print(f"  dask   : {1e3 * c_dask.wall_s / n_cheap:7.3f} ms/case "
@@ -104,13 +107,17 @@ def main(argv=None) -> None:
             print(f"dask   : {dask.wall_s:6.2f} s, {dask.cases_per_s:6.2f} cases/s, speed-up "
                   f"{dask.cases_per_s / serial.cases_per_s:.2f}x (cluster start-up "
                   f"{start:.1f} s not included)")
-            print(f"mean solve time inside the workers: serial {solve_s:.3f} s, pool "
-                  f"{sum(r['wall_s'] for r in pool.rows) / n:.3f} s, dask "
+            print(f"         mean solve in the workers "
                   f"{sum(r['wall_s'] for r in dask.rows) / n:.3f} s")
             print(f"tables identical (serial, pool, dask; wall_s aside): "
                   f"{_same(serial, pool) and _same(serial, dask)}")
         else:
             print(f"tables identical (serial, pool; wall_s aside): {_same(serial, pool)}")
+    print(f"load average after {os.getloadavg()[0]:.2f}")
+
+
+def _warm_up(scenario) -> None:
+    solve_energy_state(scenario, "time")
 
 
 def _same(a: sw.SweepResult, b: sw.SweepResult) -> bool:
