@@ -116,9 +116,17 @@ DEFAULT_IPOPT_OPTIONS = {
 }
 
 
-#: Extra IPOPT options for the refinement passes (started from the previous mesh's solution).
-REFINE_IPOPT_OPTIONS = {"mu_strategy": "monotone", "mu_init": 1e-9, "bound_push": 1e-10,
-                        "bound_frac": 1e-10}
+#: Extra IPOPT options for the refinement passes, which start from the previous mesh's solution
+#: and its multipliers carried to the new mesh (see :func:`_map_multipliers`).
+REFINE_IPOPT_OPTIONS = {
+    "warm_start_init_point": "yes",
+    "mu_init": 1e-6,
+    "warm_start_bound_push": 1e-8,
+    "warm_start_bound_frac": 1e-8,
+    "warm_start_slack_bound_push": 1e-8,
+    "warm_start_slack_bound_frac": 1e-8,
+    "warm_start_mult_bound_push": 1e-8,
+}
 
 
 class SolverFailure(RuntimeError):
@@ -607,6 +615,8 @@ class _Solution:
     ipopt_s: float
     nlp_s: float
     intervals: int
+    lam_x: np.ndarray | None = None  # IPOPT's bound multipliers (scaled problem)
+    lam_g: np.ndarray | None = None  # constraint multipliers
 
     @property
     def total_time_s(self) -> float:
@@ -691,11 +701,13 @@ def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init: tuple, ipopt_opts: dict,
                 report=None) -> _Solution:
     """Transcribe on ``mesh`` (climb-phase node taus from 0 to 1), solve, return the solution.
 
-    ``init`` = (climb _Phase on this mesh's points, dash _Phase or None).
+    ``init`` = (climb _Phase on this mesh's points, dash _Phase or None[, (lam_x, lam_g)]):
+    with multipliers IPOPT is warm-started from them (``warm_start_init_point``).
     """
     import casadi as ca
 
-    climb0, dash0 = init
+    climb0, dash0 = init[:2]
+    mult = init[2] if len(init) > 2 else None
     has_dash = st.dash_m is not None
     n_int = len(mesh) - 1
     tau_c = _points(mesh)
@@ -763,7 +775,10 @@ def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init: tuple, ipopt_opts: dict,
     solver = ca.nlpsol("climb", "ipopt", {"x": z, "f": J, "g": g}, opts)
     t_build = _time.perf_counter() - t0
     t0 = _time.perf_counter()
-    res = solver(x0=z0, lbx=lbz, ubx=ubz, lbg=lbg, ubg=ubg)
+    if mult is not None:
+        res = solver(x0=z0, lbx=lbz, ubx=ubz, lbg=lbg, ubg=ubg, lam_x0=mult[0], lam_g0=mult[1])
+    else:
+        res = solver(x0=z0, lbx=lbz, ubx=ubz, lbg=lbg, ubg=ubg)
     t_solve = _time.perf_counter() - t0
     stats = solver.stats()
     # IPOPT relaxes bounds by 1e-8 relative (bound_relax_factor); report values inside them.
@@ -779,6 +794,7 @@ def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init: tuple, ipopt_opts: dict,
         success=bool(stats.get("success", False)),
         iterations=int(stats.get("iter_count", 0)),
         ipopt_s=t_solve, nlp_s=t_build, intervals=n_int,
+        lam_x=np.asarray(res["lam_x"], float).ravel(), lam_g=np.asarray(res["lam_g"], float).ravel(),
     )
 
 
@@ -864,6 +880,53 @@ def _interp_phase(st: _Setup, F, ph: _Phase, mesh_new: np.ndarray) -> _Phase:
     Uall = np.vstack([ph.cl, ph.throttle])
     uq = _quadratic(Uall[:, 2 * idx], Uall[:, 2 * idx + 1], Uall[:, 2 * idx + 2], s[None, :])
     return _Phase(tau_new, xq * st.x_scale[:, None], uq[0], uq[1], ph.duration_s)
+
+
+def _weights(mesh: np.ndarray) -> np.ndarray:
+    """Simpson quadrature weights of the nodes and midpoints of a mesh (normalised time)."""
+    d = np.diff(mesh)
+    w = np.zeros(2 * d.size + 1)
+    w[0:-1:2] += d / 6.0
+    w[2::2] += d / 6.0
+    w[1::2] = 4.0 * d / 6.0
+    return w
+
+
+def _map_multipliers(st: _Setup, mesh_old: np.ndarray, mesh_new: np.ndarray,
+                     lam_x: np.ndarray, lam_g: np.ndarray):
+    """IPOPT multipliers of a solution carried to a refined climb mesh (warm start).
+
+    Discrete multipliers of quantities imposed at every point (bounds, path constraints) are a
+    density times the point's quadrature weight; the Simpson defects' multipliers approximate
+    the costates (copied to each piece of a split interval); the midpoint defects' multipliers
+    scale with the interval length. Boundary-point multipliers and the dash phase's (whose
+    mesh does not change) are copied.
+    """
+    nv = 5 + st.n_u
+    npth = len(st.path_names)
+    n_old, n_new = mesh_old.size - 1, mesh_new.size - 1
+    p_old, p_new = 2 * n_old + 1, 2 * n_new + 1
+    tau_old, tau_new = _points(mesh_old), _points(mesh_new)
+    w_old, w_new = _weights(mesh_old), _weights(mesh_new)
+
+    def by_density(values):  # (rows, p_old) -> (rows, p_new)
+        dens = values / w_old
+        out = np.vstack([np.interp(tau_new, tau_old, r) for r in dens]) * w_new
+        out[:, 0], out[:, -1] = values[:, 0], values[:, -1]
+        return out
+
+    lx = lam_x[: nv * p_old].reshape(p_old, nv).T
+    lam_x_new = np.concatenate([by_density(lx).ravel(order="F"), lam_x[nv * p_old:]])
+    nd = 10 * n_old
+    defects = lam_g[:nd].reshape(n_old, 10).T
+    path = lam_g[nd: nd + npth * p_old].reshape(p_old, npth).T
+    k_old = np.clip(np.searchsorted(mesh_old, 0.5 * (mesh_new[:-1] + mesh_new[1:]),
+                                    side="right") - 1, 0, n_old - 1)
+    d_new = defects[:, k_old]
+    d_new[:5] *= np.diff(mesh_new) / np.diff(mesh_old)[k_old]
+    lam_g_new = np.concatenate([d_new.ravel(order="F"), by_density(path).ravel(order="F"),
+                                lam_g[nd + npth * p_old:]])
+    return lam_x_new, lam_g_new
 
 
 # --------------------------------------------------------------------------------------------
@@ -1084,7 +1147,8 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
         new_mesh = _refine(mesh, err, MAX_INTERVALS_FACTOR * n0)
         if len(new_mesh) == len(mesh):
             break
-        init = (_interp_phase(st, F, sol.climb, new_mesh), sol.dash)
+        init = (_interp_phase(st, F, sol.climb, new_mesh), sol.dash,
+                _map_multipliers(st, mesh, new_mesh, sol.lam_x, sol.lam_g))
         mesh = new_mesh
 
     notes += _active_bound_notes(st, sol.climb)
