@@ -490,7 +490,9 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
     executor = "serial" if serial else ("dask" if cluster else "pool")
     shape = " x ".join(f"{v.name} ({len(v.values)})" for v in plan.variations)
     n_anchor = sum(c.objective != plan.objective for c in plan.cases)
-    click.echo(f"sweep: {len(plan.cases)} cases ({'given combinations of' if zip_values else 'grid'} "
+    n_cases = len(plan.cases)
+    click.echo(f"sweep: {n_cases} case{'s' if n_cases != 1 else ''} "
+               f"({'given combinations of' if zip_values else 'grid'} "
                f"{shape}" + (f", plus {n_anchor} minimum-time/minimum-fuel end cases" if n_anchor else "")
                + f"); {sw.METHODS[method]}, objective {plan.objective}; table {table}")
 

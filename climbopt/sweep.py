@@ -807,6 +807,8 @@ def run_sweep(plan: SweepPlan, table_path, *, executor: str = "pool", workers: i
 
     existing: dict[str, list[str]] = {}  # key -> last row
     old_header, old_rows = _read_rows(table_path) if table_path.exists() else (None, [])
+    if old_header is not None and old_header != header and not old_rows:
+        old_header = None  # another sweep's table without a single row: nothing to keep
     if old_header is not None:
         if old_header != header:
             raise SweepError(
@@ -815,7 +817,7 @@ def run_sweep(plan: SweepPlan, table_path, *, executor: str = "pool", workers: i
         _repair_tail(table_path)
         for r in old_rows:
             existing[r[1]] = r
-    else:  # new table (or one torn before its header was complete)
+    else:  # new table (or one torn before its header was complete, or an empty one)
         with open(table_path, "w", newline="", encoding="utf-8") as fh:
             fh.write("\n".join(_comment_lines(plan)) + "\n")
             csv.writer(fh, lineterminator="\n").writerow(header)
