@@ -93,6 +93,13 @@ FUEL_SCALE_FRACTION = 0.01
 #: interval is split: 1e-3 is 10 m of altitude, 0.3 m/s, 1 mrad, 0.1% of the start mass.
 ERROR_TOLERANCE = 1.0e-3
 
+#: Refinement: an interval with error e > ERROR_TOLERANCE is split into
+#: ceil((e / ERROR_TOLERANCE)^REFINE_EXPONENT) pieces, at least 2 and at most MAX_PIECES.
+#: (1/2: between the O(h^4) local error of smooth arcs and the O(h) error of an interval that
+#: contains a control switch.)
+REFINE_EXPONENT = 0.5
+MAX_PIECES = 4
+
 #: Intervals of the dash phase (its solution is smooth: mass falls almost linearly).
 DASH_INTERVALS = 10
 #: Upper bound of each phase's duration [s].
@@ -844,14 +851,15 @@ def _interval_errors(st: _Setup, F, ph: _Phase) -> np.ndarray:
 
 def _refine(mesh: np.ndarray, err: np.ndarray, max_intervals: int) -> np.ndarray:
     """New mesh: every interval whose error estimate exceeds ``ERROR_TOLERANCE`` is split into
-    2 to 4 equal pieces (more for larger errors: ceil((err / tol)^(1/3))); if none exceeds it,
+    2 to ``MAX_PIECES`` equal pieces (ceil((err / tol)^REFINE_EXPONENT)); if none exceeds it,
     the 10% of intervals with the largest errors are bisected. Total capped at ``max_intervals``
     (largest errors first)."""
     n = len(err)
     pieces = np.ones(n, int)
     over = err > ERROR_TOLERANCE
     if over.any():
-        pieces[over] = np.clip(np.ceil((err[over] / ERROR_TOLERANCE) ** (1.0 / 3.0)), 2, 4)
+        pieces[over] = np.clip(np.ceil((err[over] / ERROR_TOLERANCE) ** REFINE_EXPONENT), 2,
+                               MAX_PIECES)
     else:
         pieces[np.argsort(err)[::-1][: int(math.ceil(0.1 * n))]] = 2
     budget = max(max_intervals - n, 0)

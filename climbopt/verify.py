@@ -11,7 +11,9 @@ transcription errors.
 Controls are interpolated the way the collocation solver represents them: for a collocation
 trajectory (points = mesh nodes and interval midpoints) a quadratic through node, midpoint and
 node on each interval (Hermite-Simpson; Betts, *Practical Methods for Optimal Control*, 2nd ed.,
-SIAM 2010, sec. 4.5), otherwise linearly. Each interval is integrated separately (the controls
+SIAM 2010, sec. 4.5), limited to the range of those three values (so that a control switching
+inside an interval, e.g. a bang-bang pull-up, is not given values the optimiser never chose;
+for smooth controls the limit changes nothing measurable), otherwise linearly. Each interval is integrated separately (the controls
 have kinks at the nodes). A repeated time separates phases (climb and dash): the controls may
 jump there, and the simulation carries its own state across.
 
@@ -52,22 +54,25 @@ _SCALES = np.array([1.0e4, 300.0, 1.0, 1.0, 1.0e5])
 
 
 def _pieces(t: np.ndarray, cl: np.ndarray, thr: np.ndarray, quadratic: bool):
-    """Control polynomials per interval: (t0, t1, (c0, c1, c2) of CL, same of throttle) with
-    u = c0 + s (c1 + s c2), s = (t - t0) / (t1 - t0). Quadratic through node, midpoint, node
-    (Hermite-Simpson) or linear between points."""
+    """Control polynomials per interval: (t0, t1, (c0, c1, c2, lo, hi) of CL, same of throttle)
+    with u = min(max(c0 + s (c1 + s c2), lo), hi), s = (t - t0) / (t1 - t0). Quadratic through
+    node, midpoint, node (Hermite-Simpson) limited to the range of those three values, or linear
+    between points."""
     out = []
     if quadratic:
         for k in range(0, t.size - 2, 2):
             coeffs = []
             for u in (cl, thr):
                 u0, um, u1 = u[k], u[k + 1], u[k + 2]
-                coeffs.append((u0, -3 * u0 + 4 * um - u1, 2 * u0 - 4 * um + 2 * u1))
+                coeffs.append((u0, -3 * u0 + 4 * um - u1, 2 * u0 - 4 * um + 2 * u1,
+                               min(u0, um, u1), max(u0, um, u1)))
             out.append((t[k], t[k + 2], coeffs[0], coeffs[1]))
     else:
         for k in range(t.size - 1):
             if t[k + 1] > t[k]:
-                out.append((t[k], t[k + 1], (cl[k], cl[k + 1] - cl[k], 0.0),
-                            (thr[k], thr[k + 1] - thr[k], 0.0)))
+                out.append((t[k], t[k + 1],
+                            (cl[k], cl[k + 1] - cl[k], 0.0, -np.inf, np.inf),
+                            (thr[k], thr[k + 1] - thr[k], 0.0, -np.inf, np.inf)))
     return out
 
 
@@ -178,8 +183,8 @@ def resimulate(trajectory, scenario, model=None) -> dict:
             if not (dom.altitude_min_m <= h <= dom.altitude_max_m) or v <= 0.0:
                 raise ModelDomainError(f"altitude {h:.6g} m, speed {v:.6g} m/s outside the tables")
             s_ = (tt - t0) * inv
-            cl = cl_c[0] + s_ * (cl_c[1] + s_ * cl_c[2])
-            thr = th_c[0] + s_ * (th_c[1] + s_ * th_c[2])
+            cl = min(max(cl_c[0] + s_ * (cl_c[1] + s_ * cl_c[2]), cl_c[3]), cl_c[4])
+            thr = min(max(th_c[0] + s_ * (th_c[1] + s_ * th_c[2]), th_c[3]), th_c[4])
             mach, _, _, lift, drag, thrust, ff, alpha = forces(h, v, cl, thr)
             if not (dom.mach_min <= mach <= dom.mach_max):
                 raise ModelDomainError(f"Mach {mach:.6g} outside the tables")
@@ -216,7 +221,7 @@ def resimulate(trajectory, scenario, model=None) -> dict:
             ts.extend(sol.t[1:])
             ys.extend(sol.y[:, 1:].T)
             s_ = (sol.t[1:] - t0) / (t1 - t0)
-            cls.extend(cl_c[0] + s_ * (cl_c[1] + s_ * cl_c[2]))
+            cls.extend(np.clip(cl_c[0] + s_ * (cl_c[1] + s_ * cl_c[2]), cl_c[3], cl_c[4]))
             y = sol.y[:, -1].copy()
         if failure:
             break
