@@ -72,15 +72,24 @@ def main(argv=None) -> None:
 
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
+        cpu0 = time.process_time()
         serial = timed(plan, folder, "serial", executor="serial")
+        cpu_serial = (time.process_time() - cpu0) / n
         solve_s = sum(r["wall_s"] for r in serial.rows) / n
         print(f"serial : {serial.wall_s:6.2f} s, {serial.cases_per_s:6.2f} cases/s "
-              f"(mean solve {solve_s:.3f} s)")
+              f"(mean solve {solve_s:.3f} s; CPU {cpu_serial:.3f} s/case)")
+        cpu0 = _children_cpu_s()
         pool = timed(plan, folder, "pool", executor="pool", workers=args.workers)
+        cpu_pool = (_children_cpu_s() - cpu0) / n
         print(f"pool   : {pool.wall_s:6.2f} s, {pool.cases_per_s:6.2f} cases/s, speed-up "
               f"{pool.cases_per_s / serial.cases_per_s:.2f}x on {pool.workers} processes "
               f"(includes starting them; mean solve in the workers "
-              f"{sum(r['wall_s'] for r in pool.rows) / n:.3f} s)")
+              f"{sum(r['wall_s'] for r in pool.rows) / n:.3f} s; worker CPU {cpu_pool:.3f} "
+              f"s/case)")
+        print(f"         CPU-bound limit on {pool.workers} free cores: "
+              f"{pool.workers * cpu_serial / cpu_pool:.2f}x (serial CPU per case / worker CPU "
+              f"per case x workers; the wall-clock speed-up falls short of it by the share of "
+              f"the cores other processes take)")
 
         c_serial = timed(cheap, folder, "cheap_serial", executor="serial")
         c_pool = timed(cheap, folder, "cheap_pool", executor="pool", workers=args.workers)
@@ -114,6 +123,14 @@ def main(argv=None) -> None:
         else:
             print(f"tables identical (serial, pool; wall_s aside): {_same(serial, pool)}")
     print(f"load average after {os.getloadavg()[0]:.2f}")
+
+
+def _children_cpu_s() -> float:
+    """User + system CPU time [s] of the finished child processes of this process."""
+    import resource
+
+    ru = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return ru.ru_utime + ru.ru_stime
 
 
 def _warm_up(scenario) -> None:
