@@ -1160,6 +1160,16 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
         mesh = new_mesh
 
     notes += _active_bound_notes(st, sol.climb)
+    if sol.dash is not None:
+        full = st.dash_m / st.xf[1]
+        notes.append(f"dash phase: {sol.dash.duration_s:.1f} s at the target state, from "
+                     f"{sol.climb.states[4, -1] / 1000:.1f} km")
+        if sol.dash.duration_s < 0.1 * full:
+            notes.append(
+                "the optimum covers most of the dash distance before reaching the target state: "
+                "flying it at another altitude and speed is better for this objective than the "
+                "dash at the target state (the energy-state solver, which always dashes at the "
+                "target state, answers that different question)")
     notes.append("mesh passes: " + "; ".join(
         f"{n} intervals, {it} iterations, objective {obj:.7g}" for n, it, obj, _ in history))
     notes.append(f"largest local error estimate on the final mesh {err.max():.1e} "
