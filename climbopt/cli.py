@@ -503,10 +503,16 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
         if skipped:
             click.echo(f"  {skipped} case{'s' if skipped != 1 else ''} already in the table: skipped")
         if show and to_run:
+            import shutil
+
             from tqdm import tqdm
 
+            # as in _Progress: a terminal reporting no size would hide the bar
+            size = shutil.get_terminal_size((100, 40))
+            encoding = (getattr(sys.stderr, "encoding", "") or "").lower()
             state["bar"] = tqdm(total=to_run, unit="case", desc="sweep", file=sys.stderr,
-                                dynamic_ncols=True)
+                                ncols=min(size.columns, 120), nrows=max(size.lines, 2),
+                                ascii="utf" not in encoding)
 
     def on_case(row):
         if row["status"] != "ok":
