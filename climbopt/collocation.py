@@ -45,16 +45,25 @@ the start equals the dash distance. It is transcribed like the climb (``DASH_INT
 intervals, its duration a decision variable) with altitude, speed and flight-path angle held at
 the target by simple bounds and level unaccelerated flight (V' = 0, gamma' = 0) imposed at every
 point, so CL and throttle follow the mass; the climb phase ends at the target state with zero
-flight-path angle and at most the dash distance from the start.
+flight-path angle and at most the dash distance from the start. The climb phase is otherwise
+free: where covering the distance at another altitude and speed pays more than dashing at the
+target state (e.g. flying faster than the target speed), the optimum does so and the dash phase
+shrinks, possibly to nothing; the notes say so (the energy-state solver, which always dashes at
+the target state, then answers a different question).
 
 Initial guess: the energy-state path (:func:`climbopt.rutowski.solve_energy_state`) converted to
 time, its instantaneous zooms given a duration and smoothed (see :func:`guess_from_trajectory`),
-or a straight line between start and target (:func:`straight_line_guess`). Mesh refinement:
-after each solve, intervals whose estimated local error (collocation residual of the
-interpolating cubic at the quarter points) is large are bisected and the problem re-solved from
-the previous solution, until the objective changes by less than ``solver.mesh_tolerance``
-(relative), at most ``solver.max_mesh_refinements`` times. Every result is re-simulated
-(:func:`climbopt.verify.resimulate`) and the check is attached as ``trajectory.verification``.
+or a straight line between start and target (:func:`straight_line_guess`).
+
+Mesh refinement: after each solve the local error of every climb interval is estimated (the
+collocation residual of the interpolating cubic at the quarter points); intervals above
+``ERROR_TOLERANCE`` are split (more pieces for larger errors), or, when none is, the worst 10%
+are bisected; the problem is re-solved from the previous solution with its IPOPT multipliers
+carried over. This repeats until the objective changes by less than ``solver.mesh_tolerance``
+(relative) and no interval exceeds ``ERROR_TOLERANCE``, at most ``solver.max_mesh_refinements``
+times; the result counts as converged when the last objective change was below the tolerance.
+Every result is re-simulated (:func:`climbopt.verify.resimulate`) and the check is attached as
+``trajectory.verification``; a failed check is also written into the notes.
 """
 
 from __future__ import annotations
@@ -137,7 +146,7 @@ REFINE_IPOPT_OPTIONS = {
 
 
 class SolverFailure(RuntimeError):
-    """IPOPT did not converge (or the mesh refinement failed); nothing here is optimal.
+    """IPOPT did not converge on some mesh pass; nothing here is optimal.
 
     Attributes
     ----------
