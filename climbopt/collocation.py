@@ -114,7 +114,7 @@ DASH_INTERVALS = 10
 #: Upper bound of each phase's duration [s].
 MAX_TIME_S = 1.0e5
 #: The mesh never grows beyond this many times the first mesh's intervals.
-MAX_INTERVALS_FACTOR = 8
+MAX_INTERVALS_FACTOR = 4
 
 #: Width of the band above a CAS-restriction altitude over which the restriction is released [m].
 CAS_RESTRICTION_BAND_M = 300.0

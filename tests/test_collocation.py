@@ -138,7 +138,8 @@ def test_dynamic_pressure_limit_is_ridden_not_exceeded(interceptor, min_time):
     """With a dynamic-pressure limit below the unconstrained path's peak (about 57 kPa) the
     optimum rides the limit over part of the supersonic climb and never exceeds it: at the
     collocation points to IPOPT's tolerance, along the re-simulated path to the stated
-    PATH_VIOLATION_TOLERANCE (0.5%). Riding a limit costs time (common practice, no source)."""
+    PATH_VIOLATION_TOLERANCE (1% of the limit; measured about 0.01%). Riding a limit costs time
+    (common practice, no source)."""
     scenario, model = interceptor
     q_max = 45_000.0
     assert min_time.controls["dynamic_pressure_pa"].max() > 1.2 * q_max
@@ -152,6 +153,7 @@ def test_dynamic_pressure_limit_is_ridden_not_exceeded(interceptor, min_time):
     assert np.ptp(t[riding]) > 30.0  # rides it for a while, not just touches
     assert tr.time_s > min_time.time_s
     assert tr.verification["path_violations"]["dynamic_pressure"] <= PATH_VIOLATION_TOLERANCE
+    assert PATH_VIOLATION_TOLERANCE == 0.01
     assert tr.verification["ok"], tr.verification["message"]
 
 
