@@ -1069,6 +1069,9 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
     SolverFailure
         IPOPT did not converge on some mesh pass; carries ``status``, ``iterations``, the last
         iterate as a trajectory with ``converged=False`` and the guess trajectory.
+    climbopt.rutowski.InfeasibleMission
+        With the energy-state guess: the energy-state solver finds the target energy out of
+        reach (its message names the highest reachable energy height).
     ValueError
         Unknown objective or guess, or body-axis thrust without a lift-slope table.
     """
@@ -1098,13 +1101,15 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
         guess_tr = guess
         notes.append(f"initial guess: the given {guess.method} trajectory")
     elif guess in (None, "energy-state"):
-        try:
-            from climbopt.rutowski import solve_energy_state
+        from climbopt.rutowski import InfeasibleMission, solve_energy_state
 
+        try:
             say("energy-state solution for the initial guess", 0.0)
             guess_tr = solve_energy_state(scenario, objective, model=model)
             g = _from_trajectory(st, guess_tr)
             notes.append("initial guess: energy-state path, zooms given time and smoothed")
+        except InfeasibleMission:
+            raise  # the target energy is out of reach: no point-mass path reaches it either
         except Exception as exc:  # the guess is only a guess: fall back, and say so
             g = _straight_line(st)
             notes.append(f"initial guess: straight line (energy-state solver failed: {exc})")
