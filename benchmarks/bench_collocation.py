@@ -121,7 +121,9 @@ def main(argv=None) -> None:
     args = parser.parse_args(argv)
     sizes = [100] if args.quick else [50, 100, 200]
     starts = ["cold", "warm"]
-    paths = [INTERCEPTOR] if args.quick else [INTERCEPTOR] + sorted((ROOT / "scenarios").glob("*.toml"))
+    paths = [INTERCEPTOR]
+    if not args.quick:
+        paths += sorted((ROOT / "scenarios").glob("*.toml"))
     for path in paths:
         bench_scenario(path, args.objective, sizes, starts)
     if not args.no_cli:

@@ -810,7 +810,8 @@ def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init: tuple, ipopt_opts: dict,
         success=bool(stats.get("success", False)),
         iterations=int(stats.get("iter_count", 0)),
         ipopt_s=t_solve, nlp_s=t_build, intervals=n_int,
-        lam_x=np.asarray(res["lam_x"], float).ravel(), lam_g=np.asarray(res["lam_g"], float).ravel(),
+        lam_x=np.asarray(res["lam_x"], float).ravel(),
+        lam_g=np.asarray(res["lam_g"], float).ravel(),
     )
 
 

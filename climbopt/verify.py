@@ -13,9 +13,9 @@ trajectory (points = mesh nodes and interval midpoints) a quadratic through node
 node on each interval (Hermite-Simpson; Betts, *Practical Methods for Optimal Control*, 2nd ed.,
 SIAM 2010, sec. 4.5), limited to the range of those three values (so that a control switching
 inside an interval, e.g. a bang-bang pull-up, is not given values the optimiser never chose;
-for smooth controls the limit changes nothing measurable), otherwise linearly. Each interval is integrated separately (the controls
-have kinks at the nodes). A repeated time separates phases (climb and dash): the controls may
-jump there, and the simulation carries its own state across.
+for smooth controls the limit changes nothing measurable), otherwise linearly. Each interval is
+integrated separately (the controls have kinks at the nodes). A repeated time separates phases
+(climb and dash): the controls may jump there, and the simulation carries its own state across.
 
 Reported:
 
@@ -281,7 +281,8 @@ def _path_violations(model, scenario, ys, cl, he_f, h_plan) -> dict:
     final miss), not a speed violation."""
     lim = scenario.limits
     h, v, m = ys[:, 0], ys[:, 1], ys[:, 3]
-    atm = model.atmosphere(np.clip(h, model.atmosphere.altitude_min_m, model.atmosphere.altitude_max_m))
+    atm = model.atmosphere(np.clip(h, model.atmosphere.altitude_min_m,
+                                   model.atmosphere.altitude_max_m))
     a = np.asarray(atm.speed_of_sound_m_s, float)
     p = np.asarray(atm.pressure_pa, float)
     mach = v / a

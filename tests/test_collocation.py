@@ -24,7 +24,6 @@ from climbopt.verify import FINAL_MISS_TOLERANCE, PATH_VIOLATION_TOLERANCE
 
 DATA = Path(__file__).parent / "data"
 SCENARIOS = Path(__file__).parent.parent / "scenarios"
-LB_KG = 0.45359237
 SLUG_KG = 14.593902937
 
 
