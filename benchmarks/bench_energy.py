@@ -18,6 +18,8 @@ import statistics
 import time
 from pathlib import Path
 
+import numpy as np
+
 from climbopt.aircraft import build_model
 from climbopt.energy import build_energy_map
 from climbopt.rutowski import solve_energy_state
@@ -43,6 +45,12 @@ def map_build_time(model, repeats: int = 7) -> dict[str, float]:
             "cpu_median": statistics.median(cpu), "cpu_best": min(cpu)}
 
 
+def _timed(fn, arg) -> float:
+    t0 = time.perf_counter()
+    fn(arg)
+    return time.perf_counter() - t0
+
+
 def with_grid(scenario, levels: int, speeds: int):
     solver = dataclasses.replace(scenario.solver, grid_altitude_points=levels,
                                  grid_speed_points=speeds)
@@ -60,6 +68,11 @@ def main(argv=None) -> None:
     print("Energy map, 400 x 400 (altitude x TAS), 1969 interceptor (target 100 ms)")
     print(f"  wall time: median {tm['wall_median'] * 1000:.1f} ms, best {tm['wall_best'] * 1000:.1f} ms")
     print(f"  CPU time:  median {tm['cpu_median'] * 1000:.1f} ms, best {tm['cpu_best'] * 1000:.1f} ms")
+    z = np.linspace(0.0, 20000.0, 400 * 400).reshape(400, 400)
+    atm = model.atmosphere
+    atm(z)
+    t_atm = min(_timed(atm, z) for _ in range(7))
+    print(f"  of which the smooth atmosphere on 400 x 400 points: best {t_atm * 1000:.1f} ms")
     print()
 
     sizes = [(50, 50), (100, 100), (200, 200), (400, 400)]

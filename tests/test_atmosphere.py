@@ -1,6 +1,5 @@
 """Tests of climbopt.atmosphere against the US Standard Atmosphere 1976 and the `ambiance` package."""
 
-import time
 
 import casadi as ca
 import numpy as np
@@ -236,21 +235,15 @@ def test_smooth_is_c2_scalar():
     assert slope_r == pytest.approx(0.0, abs=1e-9)
 
 
-def test_smooth_numpy_speed_array():
-    """A 400 x 400 energy-map grid evaluates in a few ms (bound 50 ms, generous for a shared CI box;
-    a per-point CasADi evaluation would take seconds)."""
+def test_smooth_numpy_array_shape():
+    """A 400 x 400 energy-map grid evaluates in one vectorised call and keeps its shape (the
+    speed figure lives in benchmarks/bench_energy.py, not in a timed test)."""
     atm = SmoothAtmosphere()
     z = np.random.default_rng(0).uniform(0.0, 60000.0, (400, 400))
-    atm(z)
-    best = min(_timed(atm, z) for _ in range(5))
-    assert best < 0.05, best
-    assert atm(z).density_kg_m3.shape == (400, 400)
-
-
-def _timed(fn, arg):
-    t0 = time.perf_counter()
-    fn(arg)
-    return time.perf_counter() - t0
+    out = atm(z)
+    assert out.density_kg_m3.shape == (400, 400)
+    exact = standard_atmosphere(z)
+    np.testing.assert_allclose(out.density_kg_m3, exact.density_kg_m3, rtol=5e-4)
 
 
 @pytest.mark.parametrize(
