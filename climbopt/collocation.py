@@ -38,18 +38,23 @@ at every node and interval midpoint, each divided by its limit:
 * -n_max <= L / (m g0) <= n_max (the scenario gives the positive load-factor limit only).
 
 Objectives: ``"time"`` (minimum t_f), ``"fuel"`` (maximum final mass, free t_f), ``"weighted"``
-(fuel + ``solver.cost_weight_kg_per_s`` * t_f). Missions: climb to the target altitude, speed and
-flight-path angle. With ``mission.dash_distance_m`` a second phase follows, as the mission
-defines it: steady level flight at the target altitude and speed until the ground distance from
-the start equals the dash distance. It is transcribed like the climb (``DASH_INTERVALS``
-intervals, its duration a decision variable) with altitude, speed and flight-path angle held at
-the target by simple bounds and level unaccelerated flight (V' = 0, gamma' = 0) imposed at every
-point, so CL and throttle follow the mass; the climb phase ends at the target state with zero
-flight-path angle and at most the dash distance from the start. The climb phase is otherwise
-free: where covering the distance at another altitude and speed pays more than dashing at the
-target state (e.g. flying faster than the target speed), the optimum does so and the dash phase
-shrinks, possibly to nothing; the notes say so (the energy-state solver, which always dashes at
-the target state, then answers a different question).
+(fuel + ``solver.cost_weight_kg_per_s`` * t_f). With a free throttle the minimum-time objective
+carries a tie-break, ``FUEL_TIE_BREAK_S`` * fuel / start mass (0.1 s per 1% of the start mass
+burnt): where the time does not depend on the throttle (an arc held at the speed limits) it picks
+the least-fuel controls instead of one of the many equally fast ones, among which Hermite-Simpson
+admits node-to-midpoint control oscillations that cannot be flown (see the constant's comment; it
+moves the minimum time by less than 1e-5 relative). Missions: climb to the target altitude, speed
+and flight-path angle. With ``mission.dash_distance_m`` a second phase follows, as the mission
+defines it: steady level flight at the target altitude and speed until the ground distance from the
+start equals the dash distance. It is transcribed like the climb (``DASH_INTERVALS`` intervals, its
+duration a decision variable) with altitude, speed and flight-path angle held at the target by
+simple bounds and level unaccelerated flight (V' = 0, gamma' = 0) imposed at every point, so CL and
+throttle follow the mass; the climb phase ends at the target state with zero flight-path angle and
+at most the dash distance from the start. The climb phase is otherwise free: where covering the
+distance at another altitude and speed pays more than dashing at the target state (e.g. flying
+faster than the target speed), the optimum does so and the dash phase shrinks, possibly to nothing;
+the notes say so (the energy-state solver, which always dashes at the target state, then answers a
+different question).
 
 Initial guess: the energy-state path (:func:`climbopt.rutowski.solve_energy_state`) converted to
 time, its instantaneous zooms given a duration and smoothed (see :func:`guess_from_trajectory`),
@@ -99,8 +104,13 @@ TIME_SCALE_S = 100.0
 FUEL_SCALE_FRACTION = 0.01
 
 #: Local error (scaled state units per interval, see :func:`_interval_errors`) above which an
-#: interval is split: 1e-3 is 10 m of altitude, 0.3 m/s, 1 mrad, 0.1% of the start mass.
-ERROR_TOLERANCE = 1.0e-3
+#: interval is split: 3e-4 is 3 m of altitude, 0.09 m/s, 0.3 mrad, 0.03% of the start mass.
+#: Chosen against the re-simulation tolerance (0.1% of the final energy height, see
+#: :mod:`climbopt.verify`): at Mach 2 (600 m/s) 0.09 m/s is 5.5 m of energy height, so the few
+#: intervals that contain a control switch (where Hermite-Simpson errors are largest and add up
+#: in an open-loop re-simulation) stay well inside the 20-30 m tolerance of a 20-30 km climb.
+#: (1e-3 let a Mach 2 dash demo stop refining at 0.96e-3 and miss by 0.13%.)
+ERROR_TOLERANCE = 3.0e-4
 
 #: Refinement: an interval with error e > ERROR_TOLERANCE is split into
 #: ceil((e / ERROR_TOLERANCE)^REFINE_EXPONENT) pieces, at least 2 and at most MAX_PIECES.
@@ -108,6 +118,22 @@ ERROR_TOLERANCE = 1.0e-3
 #: contains a control switch.)
 REFINE_EXPONENT = 0.5
 MAX_PIECES = 4
+
+#: Minimum time with a free throttle minimises t_f + FUEL_TIE_BREAK_S * fuel / start mass:
+#: burning 1% of the start mass counts as 0.1 s. Where the aircraft cannot go faster (e.g. on
+#: an arc held by both the Mach and the dynamic-pressure limits) the time does not depend on
+#: the throttle, any surplus thrust can be spent as induced drag, and the discrete problem has a
+#: family of optima, among them controls that alternate between nodes and midpoints
+#: (Hermite-Simpson admits that: only the Simpson average enters the defects), which IPOPT
+#: approaches slowly and which no aircraft can fly: without it, the climb-and-dash demo rode
+#: such an arc at load factors -3.6 and +3.3 at alternate points, and flying those controls
+#: missed the target by 17% of the energy height. The tie-break selects the least-fuel member:
+#: level flight at n = 1, thrust = drag on average (the throttle may still differ by a few
+#: percent between nodes and midpoints there, the discrete trace of the two state limits; the
+#: quadratic control of each interval reproduces its Simpson average, so it re-simulates).
+#: Measured effect on the minimum time: below 1e-5 relative (interceptor benchmark +0.0003 s of
+#: 321.3 s), far below ``solver.mesh_tolerance``.
+FUEL_TIE_BREAK_S = 10.0
 
 #: Intervals of the dash phase (its solution is smooth: mass falls almost linearly).
 DASH_INTERVALS = 10
@@ -279,6 +305,9 @@ def _setup(scenario, model, objective: str) -> _Setup:
     names.append("cl_max"); lbs.append(-1.0); ubs.append(1.0)
     names.append("load_factor"); lbs.append(-1.0); ubs.append(1.0)
 
+    if objective == "time" and throttle_free:
+        notes.append(f"minimum time with a fuel tie-break ({FUEL_TIE_BREAK_S * 0.01:g} s per 1% "
+                     "of the start mass burnt): among equally fast controls the least-fuel ones")
     w = float(scenario.solver.cost_weight_kg_per_s) if objective == "weighted" else 0.0
     return _Setup(scenario, model, objective, rating, throttle_free, body, m0, x_scale, state_lb,
                   state_ub, cl_bound, x0, xf, dash, names, np.array(lbs), np.array(ubs), mach_cap,
@@ -774,6 +803,8 @@ def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init: tuple, ipopt_opts: dict,
         m_end = Wd[3, -1]
     if st.objective == "time":
         J = total_time / TIME_SCALE_S
+        if st.throttle_free:
+            J = J + FUEL_TIE_BREAK_S * (1.0 - m_end) / TIME_SCALE_S
     else:
         J = ((1.0 - m_end) * st.m0 + st.weight_kg_per_s * total_time) / st.fuel_scale_kg
     g = ca.vertcat(*g)

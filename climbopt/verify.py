@@ -22,6 +22,10 @@ Reported:
 * ``final_state_miss``: simulated minus trajectory final state, per state (m, m/s, rad, kg, m);
 * ``final_miss_energy_m``: sqrt(dh^2 + (V dV / g0)^2), the miss in altitude and speed expressed
   as energy height [m], and ``final_miss_relative`` = that / final energy height;
+* ``largest_departure_relative``: the largest distance, as energy height relative to the final
+  energy height, between the simulated and the trajectory's state at the end of any interval,
+  and ``departure_time_s``: where it first exceeded ``FINAL_MISS_TOLERANCE`` (None if never),
+  so that a failed check says where the controls stop reproducing the path;
 * ``path_violations``: the largest excess over each limit along the simulated path (all
   integrator steps), relative to the limit (altitude: metres over the final energy height);
   ``max_path_violation`` the largest of them;
@@ -56,10 +60,10 @@ _SCALES = np.array([1.0e4, 300.0, 1.0, 1.0, 1.0e5])
 
 
 def _pieces(t: np.ndarray, cl: np.ndarray, thr: np.ndarray, quadratic: bool):
-    """Control polynomials per interval: (t0, t1, (c0, c1, c2, lo, hi) of CL, same of throttle)
-    with u = min(max(c0 + s (c1 + s c2), lo), hi), s = (t - t0) / (t1 - t0). Quadratic through
-    node, midpoint, node (Hermite-Simpson) limited to the range of those three values, or linear
-    between points."""
+    """Control polynomials per interval: (t0, t1, (c0, c1, c2, lo, hi) of CL, same of throttle,
+    index of the interval's last point) with u = min(max(c0 + s (c1 + s c2), lo), hi),
+    s = (t - t0) / (t1 - t0). Quadratic through node, midpoint, node (Hermite-Simpson) limited
+    to the range of those three values, or linear between points."""
     out = []
     if quadratic:
         for k in range(0, t.size - 2, 2):
@@ -68,13 +72,14 @@ def _pieces(t: np.ndarray, cl: np.ndarray, thr: np.ndarray, quadratic: bool):
                 u0, um, u1 = u[k], u[k + 1], u[k + 2]
                 coeffs.append((u0, -3 * u0 + 4 * um - u1, 2 * u0 - 4 * um + 2 * u1,
                                min(u0, um, u1), max(u0, um, u1)))
-            out.append((t[k], t[k + 2], coeffs[0], coeffs[1]))
+            if t[k + 2] > t[k]:
+                out.append((t[k], t[k + 2], coeffs[0], coeffs[1], k + 2))
     else:
         for k in range(t.size - 1):
             if t[k + 1] > t[k]:
                 out.append((t[k], t[k + 1],
                             (cl[k], cl[k + 1] - cl[k], 0.0, -np.inf, np.inf),
-                            (thr[k], thr[k + 1] - thr[k], 0.0, -np.inf, np.inf)))
+                            (thr[k], thr[k + 1] - thr[k], 0.0, -np.inf, np.inf), k + 1))
     return out
 
 
@@ -144,6 +149,7 @@ def resimulate(trajectory, scenario, model=None) -> dict:
     dict
         ``ok`` (bool), ``message`` (str), ``final_state_miss`` (dict of per-state differences,
         SI), ``final_miss_energy_m``, ``final_miss_relative``, ``final_energy_height_m``,
+        ``largest_departure_relative``, ``departure_time_s`` (float or None),
         ``path_violations`` (dict, relative), ``max_path_violation``, ``tolerances`` (dict),
         ``simulated_final_state`` (dict), ``steps`` (integrator steps).
 
@@ -199,17 +205,23 @@ def resimulate(trajectory, scenario, model=None) -> dict:
             ]
         return rhs
 
-    y = np.array([tb["altitude_m"][0], tb["tas_m_s"][0], tb["flight_path_angle_rad"][0],
-                  tb["mass_kg"][0], tb["distance_m"][0]], float)
+    planned = np.vstack([np.asarray(tb[k], float) for k in
+                         ("altitude_m", "tas_m_s", "flight_path_angle_rad", "mass_kg",
+                          "distance_m")])
+    he_f = float(planned[0, -1] + planned[1, -1] ** 2 / (2 * G0))
+    y = planned[:, 0].copy()
     ts, ys, cls = [t[0]], [y.copy()], [cl_all[0]]
     failure = ""
     steps = 0
+    # Departure from the trajectory at the end of every interval, as energy height.
+    departure = 0.0
+    departure_t = None
     for seg in segments:
         if seg.size < 2:
             continue
         quadratic = trajectory.method == "collocation" and seg.size % 2 == 1
         pieces = _pieces(t[seg], cl_all[seg], th_all[seg], quadratic)
-        for t0, t1, cl_c, th_c in pieces:
+        for t0, t1, cl_c, th_c, k_end in pieces:
             try:
                 sol = solve_ivp(make_rhs(t0, t1, cl_c, th_c), (t0, t1), y, method="DOP853",
                                 rtol=RTOL, atol=RTOL * scales)
@@ -225,15 +237,18 @@ def resimulate(trajectory, scenario, model=None) -> dict:
             s_ = (sol.t[1:] - t0) / (t1 - t0)
             cls.extend(np.clip(cl_c[0] + s_ * (cl_c[1] + s_ * cl_c[2]), cl_c[3], cl_c[4]))
             y = sol.y[:, -1].copy()
+            d = y - planned[:, seg[k_end]]
+            dep = math.hypot(d[0], planned[1, seg[k_end]] * d[1] / G0) / max(abs(he_f), 1e-9)
+            departure = max(departure, dep)
+            if departure_t is None and dep > FINAL_MISS_TOLERANCE:
+                departure_t = float(t1)
         if failure:
             break
     ts = np.asarray(ts)
     ys = np.asarray(ys)
     cls = np.asarray(cls)
 
-    final = np.array([tb["altitude_m"][-1], tb["tas_m_s"][-1], tb["flight_path_angle_rad"][-1],
-                      tb["mass_kg"][-1], tb["distance_m"][-1]], float)
-    he_f = float(final[0] + final[1] ** 2 / (2 * G0))
+    final = planned[:, -1]
     names = ("altitude_m", "tas_m_s", "flight_path_angle_rad", "mass_kg", "distance_m")
     if failure:
         miss = {k: float("nan") for k in names}
@@ -256,6 +271,10 @@ def resimulate(trajectory, scenario, model=None) -> dict:
         message = (f"final miss {miss_e:.3g} m of energy height ({miss_rel:.2e} of "
                    f"{he_f:.0f} m; tolerance {FINAL_MISS_TOLERANCE:.0e}); largest path-limit "
                    f"excess {max_viol:.2e} ({worst}; tolerance {PATH_VIOLATION_TOLERANCE:.0e})")
+        if departure_t is not None:
+            message += (f"; the simulated path first leaves the trajectory by more than "
+                        f"{FINAL_MISS_TOLERANCE:.0e} of the final energy height near "
+                        f"t = {departure_t:.1f} s")
     return {
         "ok": bool(ok),
         "message": message,
@@ -267,6 +286,8 @@ def resimulate(trajectory, scenario, model=None) -> dict:
         "max_path_violation": float(max_viol),
         "tolerances": {"final_miss_relative": FINAL_MISS_TOLERANCE,
                        "path_violation": PATH_VIOLATION_TOLERANCE, "rtol": RTOL},
+        "largest_departure_relative": float(departure) if not failure else float("inf"),
+        "departure_time_s": departure_t,
         "simulated_final_state": {k: float(v) for k, v in zip(names, ys[-1])},
         "steps": int(steps),
     }

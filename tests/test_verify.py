@@ -49,6 +49,8 @@ def test_optimal_controls_reach_the_target(interceptor, solved):
     assert set(v["final_state_miss"]) == {"altitude_m", "tas_m_s", "flight_path_angle_rad",
                                           "mass_kg", "distance_m"}
     assert v["steps"] > 40
+    assert v["departure_time_s"] is None
+    assert v["final_miss_relative"] <= v["largest_departure_relative"] < FINAL_MISS_TOLERANCE
 
 
 def test_perturbed_controls_are_caught(interceptor, solved):
@@ -60,6 +62,23 @@ def test_perturbed_controls_are_caught(interceptor, solved):
     assert not v["ok"]
     assert v["final_miss_relative"] > 5 * FINAL_MISS_TOLERANCE
     assert "final miss" in v["message"]
+    assert v["largest_departure_relative"] >= v["final_miss_relative"]
+
+
+def test_departure_time_located(interceptor, solved):
+    """Controls perturbed only after 60% of the flight (lift coefficient 5% high): the check
+    says where the simulated path first leaves the trajectory, after the perturbation starts
+    and before the end, and names that time in its message."""
+    scenario, model = interceptor
+    t = solved.table["time_s"]
+    t_start = 0.6 * t[-1]
+    cl = solved.controls["lift_coefficient"].copy()
+    cl[t > t_start] *= 1.05
+    v = resimulate(_copy(solved, lift_coefficient=cl), scenario, model)
+    assert not v["ok"]
+    assert v["departure_time_s"] is not None
+    assert t_start < v["departure_time_s"] < t[-1]
+    assert f"near t = {v['departure_time_s']:.1f} s" in v["message"]
 
 
 def test_limit_violations_are_measured(interceptor, solved):
