@@ -28,9 +28,8 @@ SLUG_KG = 14.593902937
 
 
 @pytest.fixture(scope="module")
-def interceptor():
-    scenario = load_scenario(DATA / "interceptor_1969.toml")
-    return scenario, build_model(scenario)
+def interceptor(interceptor_case):
+    return interceptor_case
 
 
 @pytest.fixture(scope="module")

@@ -19,9 +19,8 @@ SCENARIOS = Path(__file__).parent.parent / "scenarios"
 
 
 @pytest.fixture(scope="module")
-def interceptor():
-    scenario = load_scenario(DATA / "interceptor_1969.toml")
-    return scenario, build_model(scenario)
+def interceptor(interceptor_case):
+    return interceptor_case
 
 
 @pytest.fixture(scope="module")
