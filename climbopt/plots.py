@@ -222,6 +222,7 @@ def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str
 
     # paths
     dt = float(getattr(energy_map, "temperature_offset_k", 0.0))
+    labels: list[tuple[str, float, float]] = []  # zoom labels already placed (text, x, y)
     for traj in trajectories:
         tb = traj.table
         px = tb["mach"] if x == "mach" else u["tas"][0](tb["tas_m_s"])
@@ -231,7 +232,7 @@ def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str
         line.set_gid("path")
         handles.append(line)
         for zoom in traj.zooms:
-            _mark_zoom(ax, zoom, x, alt_fn, u["tas"][0], dt, style["color"])
+            _mark_zoom(ax, zoom, x, alt_fn, u["tas"][0], dt, style["color"], labels)
     if any(traj.zooms for traj in trajectories):
         handles.append(Line2D([], [], color="black", marker="*", linestyle="none",
                               markersize=9, label="zoom (constant energy)"))
@@ -251,8 +252,11 @@ def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str
     return ax
 
 
-def _mark_zoom(ax, zoom, x, alt_fn, tas_fn, temperature_offset_k, colour):
-    """Arrow from the start to the end of a constant-energy zoom, stars at both ends."""
+def _mark_zoom(ax, zoom, x, alt_fn, tas_fn, temperature_offset_k, colour, labels):
+    """Arrow from the start to the end of a constant-energy zoom, stars at both ends.
+
+    ``labels`` holds the zoom labels already drawn; a label is not repeated where the same text
+    already stands close by (zooms of several paths often coincide)."""
     def xval(h, v):
         if x == "tas":
             return float(tas_fn(v))
@@ -266,8 +270,14 @@ def _mark_zoom(ax, zoom, x, alt_fn, tas_fn, temperature_offset_k, colour):
     pts.set_gid("zoom")
     ax.annotate("", xy=(x1, y1), xytext=(x0, y0),
                 arrowprops={"arrowstyle": "->", "color": "black", "linewidth": 1.2})
-    ax.annotate(f"zoom {zoom.kind}", xy=(0.5 * (x0 + x1), 0.5 * (y0 + y1)), fontsize=7,
-                xytext=(4, 4), textcoords="offset points")
+    text, xm, ym = f"zoom {zoom.kind}", 0.5 * (x0 + x1), 0.5 * (y0 + y1)
+    x_span = np.diff(ax.get_xlim())[0] or 1.0
+    y_span = np.diff(ax.get_ylim())[0] or 1.0
+    if any(t == text and abs(xm - xl) < 0.08 * x_span and abs(ym - yl) < 0.05 * y_span
+           for t, xl, yl in labels):
+        return
+    labels.append((text, xm, ym))
+    ax.annotate(text, xy=(xm, ym), fontsize=7, xytext=(4, 4), textcoords="offset points")
 
 
 def plot_ps_map(energy_map, trajectories=(), *, x: str = "mach", units: str = "si", ax=None,
