@@ -271,10 +271,11 @@ def scenario_fingerprint(scenario: Scenario) -> str:
 
 def case_key(fingerprint: str, method: str, objective: str,
              values: tuple[tuple[str, float], ...]) -> str:
-    """16-hex-digit key of one case: hash of the scenario fingerprint, method, objective and the
-    changed values (exact float representations)."""
-    doc = {"v": _KEY_VERSION, "scenario": fingerprint, "method": method, "objective": objective,
-           "values": sorted((n, repr(float(v))) for n, v in values)}
+    """16-hex-digit key of one case: hash of the climbopt version, the scenario fingerprint,
+    method, objective and the changed values (exact float representations). A new climbopt
+    version gives new keys, so a resumed sweep never mixes answers of two solver versions."""
+    doc = {"v": _KEY_VERSION, "climbopt": __version__, "scenario": fingerprint, "method": method,
+           "objective": objective, "values": sorted((n, repr(float(v))) for n, v in values)}
     return hashlib.sha256(json.dumps(doc, sort_keys=True).encode("utf-8")).hexdigest()[:16]
 
 

@@ -182,6 +182,14 @@ def test_case_keys_are_stable_and_depend_on_every_input(twin):
     assert [c.key for c in _plan(renamed, "mass=60,70 t").cases] == [c.key for c in a.cases]
 
 
+def test_case_keys_change_with_the_climbopt_version(twin, monkeypatch):
+    """A resumed sweep never mixes answers of two solver versions."""
+    before = [c.key for c in _plan(twin, "mass=60,70 t").cases]
+    monkeypatch.setattr(sw, "__version__", "99.0")
+    after = [c.key for c in _plan(twin, "mass=60,70 t").cases]
+    assert len(after) == 2 and not set(before) & set(after)
+
+
 # ---- the changed scenario -------------------------------------------------------------------
 
 
