@@ -721,31 +721,36 @@ class _DaskBackend:
     def run(self, todo, record, ready) -> None:
         dd = self._distributed
         queue = iter(todo)
-        pending = {}
+        pending = {}  # future key -> (case, future)
         ok = False
         try:
-            completed = dd.as_completed(with_results=True, raise_errors=False)
             for case in itertools.islice(queue, max(32, 8 * self.workers)):
                 fut = self._submit(case)
                 pending[fut.key] = (case, fut)
-                completed.add(fut)
             ready()
-            for fut, out in completed:
-                case, _ = pending.pop(fut.key)
-                if fut.status == "error":
-                    exc = out[1]
-                    if not isinstance(exc, dd.KilledWorker):
-                        raise SweepAborted(f"the Dask cluster failed on case {case.index}: "
-                                           f"{type(exc).__name__}: {exc}")
-                    out = _failure_row(f"KilledWorker: {exc}")  # the case kept killing workers
-                elif fut.status != "finished":
-                    raise SweepAborted(f"the Dask cluster lost case {case.index} ({fut.status})")
-                record(case, out)
-                nxt = next(queue, None)
-                if nxt is not None:
-                    fut = self._submit(nxt)
-                    pending[fut.key] = (nxt, fut)
-                    completed.add(fut)
+            while pending:
+                # wait(FIRST_COMPLETED) rather than as_completed: the latter was seen to miss
+                # completions now and then with two clients in one process (tests, LocalCluster)
+                done, _ = dd.wait([f for _, f in pending.values()], return_when="FIRST_COMPLETED")
+                finished = [f for f in done if f.status == "finished"]
+                results = dict(zip((f.key for f in finished), self.client.gather(finished)))
+                for fut in done:
+                    case, _ = pending.pop(fut.key)
+                    if fut.status == "error":
+                        exc = fut.exception()
+                        if not isinstance(exc, dd.KilledWorker):
+                            raise SweepAborted(f"the Dask cluster failed on case {case.index}: "
+                                               f"{type(exc).__name__}: {exc}")
+                        out = _failure_row(f"KilledWorker: {exc}")  # the case kept killing workers
+                    elif fut.status != "finished":
+                        raise SweepAborted(f"the Dask cluster lost case {case.index} ({fut.status})")
+                    else:
+                        out = results[fut.key]
+                    record(case, out)
+                    nxt = next(queue, None)
+                    if nxt is not None:
+                        new = self._submit(nxt)
+                        pending[new.key] = (nxt, new)
             ok = True
         finally:
             if not ok and pending:
