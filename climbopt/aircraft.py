@@ -215,7 +215,8 @@ class AircraftModel:
         try:
             return self._ratings[name]
         except KeyError:
-            raise ValueError(f"unknown engine rating {name!r}; known: {', '.join(self._ratings)}")
+            raise ValueError(f"unknown engine rating {name!r}; known: {', '.join(self._ratings)}"
+                             ) from None
 
     def _day_factors(self, altitude_m):
         """(thrust factor, sfc factor) for the temperature offset; (1, 1) on a standard day."""

@@ -244,7 +244,7 @@ def _write_run_folder(folder: Path, scenario, scenario_file, results, records, e
     bar.done()
 
     text = [f"climbopt {__version__}: {scenario.name}", "", report.format_table(records, units)]
-    for stem, sched in schedules.items():
+    for sched in schedules.values():
         text += ["", report.format_schedule(sched, units)]
     text += [""] + [f"error: {e}" for e in errors] + [f"Caution: {CAUTION}"]
     report.write_text_atomic(folder / "report.txt", "\n".join(text) + "\n")
@@ -306,7 +306,7 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
         click.echo("")
         click.echo(report.format_table(records, units))
         click.echo("")
-        for stem, sched in schedules.items():
+        for sched in schedules.values():
             click.echo(f"{sched.method}, minimum {sched.objective}: "
                        f"{report.schedule_summary(sched, units)}")
         if not quiet:

@@ -762,7 +762,6 @@ def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init: tuple, ipopt_opts: dict,
     tau_d = _points(np.linspace(0.0, 1.0, DASH_INTERVALS + 1)) if has_dash else None
     Pd = tau_d.size if has_dash else 0
     n_d = nv * Pd + 1 if has_dash else 0
-    npth = len(st.path_names)
 
     z = ca.MX.sym("z", n_c + n_d)
     W = ca.reshape(z[: n_c - 1], nv, P)
@@ -953,8 +952,8 @@ def _map_multipliers(st: _Setup, mesh_old: np.ndarray, mesh_new: np.ndarray,
     """
     nv = 5 + st.n_u
     npth = len(st.path_names)
-    n_old, n_new = mesh_old.size - 1, mesh_new.size - 1
-    p_old, p_new = 2 * n_old + 1, 2 * n_new + 1
+    n_old = mesh_old.size - 1
+    p_old = 2 * n_old + 1
     tau_old, tau_new = _points(mesh_old), _points(mesh_new)
     w_old, w_new = _weights(mesh_old), _weights(mesh_new)
 

@@ -602,7 +602,7 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
     if dash_m:
         totals = {}
         dashes = {}
-        for name, (path, integ, _, _) in variants.items():
+        for name, (_, integ, _, _) in variants.items():
             x_c = integ["distance"][-1]
             dash = dashes[name] = _dash(prob, target, start_mass - integ["fuel"][-1],
                                         dash_m - x_c)

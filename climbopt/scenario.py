@@ -570,7 +570,7 @@ class _Reader:
         fld = _join(path, key)
         if key not in node:
             if required:
-                self.problem(fld, f"missing; expected a constant or a table {{ mach = [...], values = [...] }}")
+                self.problem(fld, "missing; expected a constant or a table { mach = [...], values = [...] }")
             return None
         raw = node[key]
         if isinstance(raw, dict):
@@ -692,8 +692,8 @@ def _read_drag(r: _Reader, aircraft: dict) -> tuple[DragPolar | None, list[float
     if model == "parabolic":
         for key in ("cl", "cd"):
             if key in node:
-                r.problem(_join(path, key), f"only used with model = \"table\"; the parabolic model takes "
-                                            f"cd0 and k")
+                r.problem(_join(path, key), "only used with model = \"table\"; the parabolic model takes "
+                                            "cd0 and k")
         cd0 = _mach_column(r, node, "cd0", path, mach, what="a zero-lift drag coefficient > 0")
         k = _mach_column(r, node, "k", path, mach, what="an induced-drag factor > 0")
         if None in (mach, cd0, k):
@@ -703,8 +703,8 @@ def _read_drag(r: _Reader, aircraft: dict) -> tuple[DragPolar | None, list[float
     if model == "table":
         for key in ("cd0", "k"):
             if key in node:
-                r.problem(_join(path, key), f"only used with model = \"parabolic\"; the table model takes "
-                                            f"cl and cd")
+                r.problem(_join(path, key), "only used with model = \"parabolic\"; the table model takes "
+                                            "cl and cd")
         cl = r.grid(node, "cl", path, "dimensionless")
         cd = r.array(node, "cd", path, "dimensionless", ndim=2)
         if None in (mach, cl, cd):
@@ -1263,7 +1263,7 @@ _SYSTEM_UNITS = {
 
 def _kind_of_unit(unit: str) -> str | None:
     """Name of the DIMENSIONS entry a unit belongs to (None when it cannot be told)."""
-    for name, dim in DIMENSIONS.items():
+    for name in DIMENSIONS:
         if name == "dimensionless":
             continue
         try:

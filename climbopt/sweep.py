@@ -924,7 +924,7 @@ def pareto_front(times, fuels) -> list[int]:
            if not (math.isnan(t) or math.isnan(f))]
     pts.sort()
     front, best_fuel = [], math.inf
-    for t, f, i in pts:
+    for _, f, i in pts:
         if f < best_fuel:
             front.append(i)
             best_fuel = f
