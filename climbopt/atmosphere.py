@@ -59,6 +59,12 @@ __all__ = [
 
 # Defining constants, US Standard Atmosphere 1976, table 2 (SI units).
 G0 = 9.80665  # standard gravity [m/s^2]
+
+
+def energy_height_m(altitude_m, tas_m_s):
+    """Energy height (specific energy) he = h + V^2 / (2 g0) [m] from altitude [m] and true
+    airspeed [m/s] (Rutowski, J. Aeronaut. Sci. 21(3), 1954). Floats or arrays (broadcast)."""
+    return np.asarray(altitude_m, dtype=float) + np.asarray(tas_m_s, dtype=float) ** 2 / (2.0 * G0)
 R_STAR = 8.31432  # universal gas constant as adopted by the standard [J/(mol K)]
 M0_KG_MOL = 0.0289644  # sea-level mean molar mass of air [kg/mol]
 EARTH_RADIUS_M = 6356766.0  # r0, effective Earth radius for geopotential height [m]

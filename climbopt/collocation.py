@@ -80,7 +80,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from climbopt.airspeed import cas_from_mach, impact_pressure_from_cas, impact_pressure_pa
-from climbopt.atmosphere import G0
+from climbopt.atmosphere import G0, energy_height_m
 from climbopt.results import Trajectory
 
 __all__ = [
@@ -456,7 +456,7 @@ def _straight_line(st: _Setup, points: int = 201) -> _Guess:
     ps = np.asarray(perf.ps_m_s)
     pos = ps[ps > 0.0]
     ps_mean = float(np.mean(pos)) if pos.size else 1.0
-    dhe = abs((st.xf[0] + st.xf[1] ** 2 / (2 * G0)) - (st.x0[0] + st.x0[1] ** 2 / (2 * G0)))
+    dhe = abs(float(energy_height_m(st.xf[0], st.xf[1]) - energy_height_m(st.x0[0], st.x0[1])))
     tf = max(dhe / max(ps_mean, 1.0), 10.0)
     ff = float(np.mean(np.asarray(perf.fuel_flow_kg_s)))
     m = np.maximum(st.m0 - ff * tf * tau, st.state_lb[3] + 0.01 * st.m0)
@@ -1024,7 +1024,7 @@ def _trajectory(st: _Setup, sol: _Solution, *, converged: bool, status: str, ite
         "tas_m_s": v,
         "mach": mach,
         "cas_m_s": np.asarray(cas_from_mach(np.maximum(mach, 0.0), p), float),
-        "energy_height_m": h + v * v / (2.0 * G0),
+        "energy_height_m": energy_height_m(h, v),
         "ps_m_s": v * (t_par - drag) / (m * G0),
         "flight_path_angle_rad": gam,
         "mass_kg": m,

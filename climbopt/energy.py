@@ -31,7 +31,7 @@ from functools import cached_property
 import numpy as np
 
 from climbopt.airspeed import cas_from_mach
-from climbopt.atmosphere import G0
+from climbopt.atmosphere import energy_height_m
 from climbopt.scenario import Limits, Scenario
 
 __all__ = [
@@ -55,11 +55,6 @@ LIMIT_NAMES = (
     "cas",  # CAS <= limits.max_cas_m_s
     "cas_restriction",  # CAS <= limit below the restriction altitude
 )
-
-
-def energy_height_m(altitude_m, tas_m_s):
-    """Energy height he = h + V^2 / (2 g0) [m] (Rutowski 1954). Arrays broadcast."""
-    return np.asarray(altitude_m, dtype=float) + np.asarray(tas_m_s, dtype=float) ** 2 / (2.0 * G0)
 
 
 class EnergyFields:

@@ -77,7 +77,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from climbopt.airspeed import cas_from_mach
-from climbopt.atmosphere import G0
+from climbopt.atmosphere import G0, energy_height_m
 from climbopt.energy import LIMIT_NAMES, energy_fields, maximise_on_lines
 from climbopt.results import COLUMNS, Trajectory, Zoom
 
@@ -549,8 +549,8 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
     n_levels = max(2, int(scenario.solver.grid_altitude_points))
     start, target = scenario.mission.start, scenario.mission.target
     start_mass = float(model.mass_kg)
-    he0 = start.altitude_m + start.tas_m_s**2 / (2.0 * G0)
-    hef = target.altitude_m + target.tas_m_s**2 / (2.0 * G0)
+    he0 = float(energy_height_m(start.altitude_m, start.tas_m_s))
+    hef = float(energy_height_m(target.altitude_m, target.tas_m_s))
     notes: list[str] = []
 
     fs = energy_fields(model, start.altitude_m, start.tas_m_s, start_mass, limits=lim,
@@ -746,7 +746,7 @@ def _finish_columns(model, cols):
 def _append_dash(prob, table, dash, target):
     n = dash["distance"].size - 1  # skip the first point (same as the climb's end)
     t0, x0, f0 = table["time_s"][-1], table["distance_m"][-1], table["fuel_used_kg"][-1]
-    he_t = target.altitude_m + target.tas_m_s**2 / (2.0 * G0)
+    he_t = float(energy_height_m(target.altitude_m, target.tas_m_s))
     ext = {
         "time_s": t0 + dash["time"][1:],
         "altitude_m": np.full(n, target.altitude_m),

@@ -21,6 +21,8 @@ import tomllib
 from dataclasses import dataclass, field
 from typing import Literal
 
+from climbopt.airspeed import cas_from_tas, eas_from_tas, tas_from_speed
+from climbopt.atmosphere import G0, energy_height_m, standard_atmosphere
 from climbopt.units import DIMENSIONS, UnitError, from_si, parse_quantity_with_unit, unit_factor
 
 
@@ -254,29 +256,6 @@ _REL_TOL = 1e-9
 
 #: At most this many bad elements of one array are listed individually.
 _MAX_ELEMENT_PROBLEMS = 3
-
-
-def _tas_from_speed(kind: str, value: float, altitude_m: float, temperature_offset_k: float) -> float:
-    from climbopt.airspeed import tas_from_speed
-
-    return float(tas_from_speed(kind, value, altitude_m, temperature_offset_k))
-
-
-def _cas_from_tas(tas_m_s: float, altitude_m: float, temperature_offset_k: float) -> float:
-    from climbopt.airspeed import cas_from_tas
-
-    return float(cas_from_tas(tas_m_s, altitude_m, temperature_offset_k))
-
-
-def _g0() -> float:
-    from climbopt.atmosphere import G0
-
-    return float(G0)
-
-
-def energy_height_m(altitude_m: float, tas_m_s: float) -> float:
-    """Specific energy (energy height) h + V^2 / (2 g0) [m] (Rutowski 1954)."""
-    return altitude_m + tas_m_s**2 / (2.0 * _g0())
 
 
 def _type_name(value) -> str:
@@ -898,7 +877,7 @@ def _read_rating(r: _Reader, name: str, raw) -> Rating | None:
             isp = r.quantity(raw, "specific_impulse", path, "time", minimum=0.0, strict_min=True,
                              expect="a positive specific impulse, e.g. \"1600 s\"")
             if isp is not None:
-                tsfc = 1.0 / (_g0() * isp)  # Isp = T / (mdot g0)  (definition of specific impulse)
+                tsfc = 1.0 / (G0 * isp)  # Isp = T / (mdot g0)  (definition of specific impulse)
             fuel_ok = tsfc is not None
         else:
             psfc = r.quantity(raw, "psfc", path, "psfc", minimum=0.0, strict_min=True,
@@ -947,7 +926,7 @@ def _read_point(r: _Reader, mission: dict, key: str, dt_k: float | None) -> Flig
     if None in (alt, speed, fpa, dt_k):
         return None
     try:
-        tas = _tas_from_speed(kind, speed, alt, dt_k)
+        tas = float(tas_from_speed(kind, speed, alt, dt_k))
     except Exception as exc:  # the conversion has no meaning for this input (e.g. CAS too high)
         r.problem(_join(path, kind), f"cannot convert {_show(node[kind])} to true airspeed at "
                                      f"{_show(node['altitude'])}: {exc}")
@@ -1083,14 +1062,12 @@ def _cross_checks(r: _Reader, aircraft: AircraftData | None, propulsion: Propuls
 
 
 def _point_state(point: FlightPoint, dt_k: float):
-    from climbopt.atmosphere import standard_atmosphere
-
     atm = standard_atmosphere(point.altitude_m, dt_k)
     a = float(atm.speed_of_sound_m_s)
     rho = float(atm.density_kg_m3)
     mach = point.tas_m_s / a
     q = 0.5 * rho * point.tas_m_s**2
-    cas = _cas_from_tas(point.tas_m_s, point.altitude_m, dt_k)
+    cas = float(cas_from_tas(point.tas_m_s, point.altitude_m, dt_k))
     return mach, q, cas, rho
 
 
@@ -1315,14 +1292,12 @@ def _describe_table1d(label: str, table: Table1D, unit: str = "") -> str:
 
 
 def _describe_point(scenario: Scenario, key: str, point: FlightPoint, dt_k: float) -> list[str]:
-    from climbopt.airspeed import eas_from_tas
-
     fld = f"mission.{key}"
     u_alt = _u(scenario, f"{fld}.altitude", "ft")
     u_speed = _u(scenario, f"{fld}.{point.speed_kind}", "kt")
     mach, q, cas, rho = _point_state(point, dt_k)
     he = energy_height_m(point.altitude_m, point.tas_m_s)
-    g0 = _g0()
+    g0 = G0
     eas = float(eas_from_tas(point.tas_m_s, rho))
     given = (f"Mach {_fmt(point.speed_value)}" if point.speed_kind == "mach"
              else f"{point.speed_kind.upper()} {_q(point.speed_value, u_speed)}")
@@ -1418,7 +1393,7 @@ def _describe(scenario: Scenario) -> str:
         if rt.fuel_flow_kg_s is not None:
             out.append(f"    fuel flow table {_range(_flat(rt.fuel_flow_kg_s), _u(s, base + '.fuel_flow', 'kg/h'))}")
         elif base + ".specific_impulse" in s.display_units:
-            isp = 1.0 / (_g0() * rt.tsfc_kg_per_n_s)
+            isp = 1.0 / (G0 * rt.tsfc_kg_per_n_s)
             out.append(f"    fuel: specific impulse {_q(isp, _u(s, base + '.specific_impulse', 's'))} "
                        f"(TSFC {_q(rt.tsfc_kg_per_n_s, _u(s, base + '.tsfc', 'lb/lbf/h'))})")
         elif rt.tsfc_kg_per_n_s is not None:

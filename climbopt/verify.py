@@ -41,7 +41,7 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 from climbopt.airspeed import impact_pressure_from_cas, impact_pressure_pa
-from climbopt.atmosphere import G0
+from climbopt.atmosphere import G0, energy_height_m
 
 __all__ = ["resimulate", "FINAL_MISS_TOLERANCE", "PATH_VIOLATION_TOLERANCE", "RTOL"]
 
@@ -208,7 +208,7 @@ def resimulate(trajectory, scenario, model=None) -> dict:
     planned = np.vstack([np.asarray(tb[k], float) for k in
                          ("altitude_m", "tas_m_s", "flight_path_angle_rad", "mass_kg",
                           "distance_m")])
-    he_f = float(planned[0, -1] + planned[1, -1] ** 2 / (2 * G0))
+    he_f = float(energy_height_m(planned[0, -1], planned[1, -1]))
     y = planned[:, 0].copy()
     ts, ys, cls = [t[0]], [y.copy()], [cl_all[0]]
     failure = ""
