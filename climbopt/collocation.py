@@ -21,21 +21,15 @@ not a single value, the throttle.
 Transcription: Hermite-Simpson in separated form (Betts 2010, sec. 4.5) on a mesh over the
 normalised time tau = t / t_f in [0, 1] with the final time t_f a decision variable. Every
 variable is scaled (altitude / 1e4 m, speed / 300 m/s, mass / start mass, distance / 1e5 m,
-t_f / 100 s). Box limits (altitude range, speed range, mass range, CL range, throttle range,
-start and end states) are simple bounds, so IPOPT's iterates never leave them. Path constraints
-at every node and interval midpoint, each divided by its limit:
-
-* Mach <= min(limits.max_mach, top of the table data) (keeps the tables in their data);
-* dynamic pressure <= limits.max_dynamic_pressure_pa;
-* impact pressure <= the impact pressure of limits.max_cas_m_s (CAS limit, compressible);
-* CAS restriction below an altitude (e.g. 250 kt below 10,000 ft): the impact-pressure limit is
-  enforced in full at and below the restriction altitude and relaxed over the band
-  ``CAS_RESTRICTION_BAND_M`` above it with a C2 quintic smoothstep, so the constraint is smooth
-  and never looser than the rule below the restriction altitude (our choice; documented in the
-  result notes);
-* -CLmax(M) <= CL <= CLmax(M) (the scenario gives only the positive CLmax; the negative bound
-  is taken symmetric);
-* -n_max <= L / (m g0) <= n_max (the scenario gives the positive load-factor limit only).
+t_f / 100 s). The flight envelope is :mod:`climbopt.envelope`'s, the same rows and boundary rule
+as every other part of climbopt: its altitude window (which, for the *procedure* climb profile,
+runs from the start to the target altitude) and, for the procedure profile, its no-descent row
+(flight-path angle >= 0) are simple bounds, like the speed range, mass range, CL range, throttle
+range and the start and end states, so IPOPT's iterates never leave them. Every other row
+(table Mach range, Mach, dynamic pressure, CAS, CAS restriction, CLmax, load factor) is a path
+constraint at every node and interval midpoint, in the envelope's normalised form; the CAS
+restriction in its smooth form (released over ``CAS_RESTRICTION_BAND_M`` above its altitude,
+never looser than the rule).
 
 Objectives: ``"time"`` (minimum t_f), ``"fuel"`` (maximum final mass, free t_f), ``"weighted"``
 (fuel + ``solver.cost_weight_kg_per_s`` * t_f). With a free throttle the minimum-time objective
@@ -56,9 +50,11 @@ faster than the target speed), the optimum does so and the dash phase shrinks, p
 the notes say so (the energy-state solver, which always dashes at the target state, then answers a
 different question).
 
-Initial guess: the energy-state path (:func:`climbopt.rutowski.solve_energy_state`) converted to
-time, its instantaneous zooms given a duration and smoothed (see :func:`guess_from_trajectory`),
-or a straight line between start and target (:func:`straight_line_guess`).
+Initial guess: any trajectory, e.g. the energy-state path (the pipeline passes it), converted
+to time, its instantaneous zooms given a duration and smoothed (see
+:func:`guess_from_trajectory`), or a straight line between start and target
+(:func:`straight_line_guess`). This module never calls another solver or the verifier
+(:mod:`climbopt.pipeline` joins them).
 
 Mesh refinement: after each solve the local error of every climb interval is estimated (the
 collocation residual of the interpolating cubic at the quarter points); intervals above
@@ -66,9 +62,9 @@ collocation residual of the interpolating cubic at the quarter points); interval
 are bisected; the problem is re-solved from the previous solution with its IPOPT multipliers
 carried over. This repeats until the objective changes by less than ``solver.mesh_tolerance``
 (relative) and no interval exceeds ``ERROR_TOLERANCE``, at most ``solver.max_mesh_refinements``
-times; the result counts as converged when the last objective change was below the tolerance.
-Every result is re-simulated (:func:`climbopt.verify.resimulate`) and the check is attached as
-``trajectory.verification``; a failed check is also written into the notes.
+times. One failure channel: anything short of an optimum (IPOPT failing on a mesh pass, or the
+mesh refinement not settling within its passes) raises :class:`SolverFailure`, which carries the
+last iterate, labelled as not converged.
 """
 
 from __future__ import annotations
@@ -79,9 +75,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from climbopt.airspeed import cas_from_mach, impact_pressure_from_cas, impact_pressure_pa
+from climbopt.airspeed import cas_from_mach
 from climbopt.atmosphere import G0, energy_height_m
-from climbopt.results import Trajectory
+from climbopt.envelope import CAS_RESTRICTION_BAND_M, FlightQuantities, envelope_for
+from climbopt.results import Controls, Method, Trajectory, derive_segments
 
 __all__ = [
     "SolverFailure",
@@ -142,9 +139,6 @@ MAX_TIME_S = 1.0e5
 #: The mesh never grows beyond this many times the first mesh's intervals.
 MAX_INTERVALS_FACTOR = 4
 
-#: Width of the band above a CAS-restriction altitude over which the restriction is released [m].
-CAS_RESTRICTION_BAND_M = 300.0
-
 #: Flight-path angle bounds [rad] (+-80 deg; a climb optimum never comes near them).
 GAMMA_BOUND_RAD = math.radians(80.0)
 
@@ -172,28 +166,25 @@ REFINE_IPOPT_OPTIONS = {
 
 
 class SolverFailure(RuntimeError):
-    """IPOPT did not converge on some mesh pass; nothing here is optimal.
+    """The collocation solve reached no optimum (the solver's one failure channel).
 
     Attributes
     ----------
     status : str
-        IPOPT's return status, e.g. ``"Maximum_Iterations_Exceeded"``.
+        IPOPT's return status, e.g. ``"Maximum_Iterations_Exceeded"``, or it with
+        "; mesh not converged" when IPOPT converged but the mesh refinement did not settle.
     iterations : int
         IPOPT iterations spent (all mesh passes).
     trajectory : Trajectory or None
         The last iterate as a trajectory with ``converged=False`` (for inspection only).
-    guess : Trajectory or None
-        The trajectory used as the initial guess (the energy-state result when it was used),
-        so that a caller can still show that answer, labelled as such.
     """
 
     def __init__(self, message: str, *, status: str, iterations: int,
-                 trajectory: Trajectory | None = None, guess: Trajectory | None = None):
+                 trajectory: Trajectory | None = None):
         super().__init__(message)
         self.status = status
         self.iterations = int(iterations)
         self.trajectory = trajectory
-        self.guess = guess
 
 
 # --------------------------------------------------------------------------------------------
@@ -219,6 +210,7 @@ class _Setup:
     x0: np.ndarray  # start state, physical (5,)
     xf: np.ndarray  # climb end state, physical, NaN where free (5,)
     dash_m: float | None  # dash distance from the start [m]
+    envelope: object  # climbopt.envelope.Envelope
     path_names: list
     path_lb: np.ndarray
     path_ub: np.ndarray
@@ -258,11 +250,8 @@ def _setup(scenario, model, objective: str) -> _Setup:
         raise ValueError("thrust along the body axis needs the lift-slope table "
                          "(aircraft.drag.lift_slope)")
 
-    h_lo = max(lim.min_altitude_m, dom.altitude_min_m, model.atmosphere.altitude_min_m)
-    h_hi = dom.altitude_max_m
-    if lim.max_altitude_m is not None:
-        h_hi = min(h_hi, lim.max_altitude_m)
-    h_hi = min(h_hi, model.atmosphere.altitude_max_m)
+    env = envelope_for(scenario, model)
+    h_lo, h_hi = env.altitude_min_m, env.altitude_max_m
 
     mach_cap = float(dom.mach_max)
     if lim.max_mach is not None:
@@ -275,7 +264,12 @@ def _setup(scenario, model, objective: str) -> _Setup:
     m_lo = max(m0 - float(fuel), 1e-3 * m0)
     dash = None if mis.dash_distance_m is None else float(mis.dash_distance_m)
     x_hi = dash if dash is not None else 1.0e3 * DISTANCE_SCALE_M
-    state_lb = np.array([h_lo, v_lo, -GAMMA_BOUND_RAD, m_lo, 0.0])
+    gamma_lo = -GAMMA_BOUND_RAD
+    if env.profile == "procedure":  # the envelope's "climb" row, as a simple bound
+        gamma_lo = min(0.0, mis.start.flight_path_angle_rad, mis.target.flight_path_angle_rad)
+        notes.append("procedure profile: altitude between the start and target altitudes and "
+                     "never decreasing (flight-path angle >= 0), as simple bounds")
+    state_lb = np.array([h_lo, v_lo, gamma_lo, m_lo, 0.0])
     state_ub = np.array([h_hi, v_hi, GAMMA_BOUND_RAD, m0, x_hi])
 
     mach_grid = np.linspace(dom.mach_min, dom.mach_max, 181)
@@ -293,33 +287,21 @@ def _setup(scenario, model, objective: str) -> _Setup:
     x_scale = np.array([ALTITUDE_SCALE_M, SPEED_SCALE_M_S, 1.0, m0,
                         max(DISTANCE_SCALE_M, (dash or 0.0) / 5.0)])
 
-    names, lbs, ubs = ["mach"], [float(dom.mach_min) / mach_cap], [1.0]
-    if lim.max_dynamic_pressure_pa is not None:
-        names.append("dynamic_pressure"); lbs.append(-np.inf); ubs.append(1.0)
-    if lim.max_cas_m_s is not None:
-        names.append("cas"); lbs.append(-np.inf); ubs.append(1.0)
+    # every envelope row but those imposed as simple bounds (altitude, climb)
+    rows = [r for r in env.rows if r.name not in ("altitude", "climb")]
     if lim.cas_restriction is not None:
-        names.append("cas_restriction"); lbs.append(-np.inf); ubs.append(0.0)
-        notes.append("CAS restriction enforced in full up to its altitude and released smoothly "
-                     f"over the {CAS_RESTRICTION_BAND_M:.0f} m above it")
-    names.append("cl_max"); lbs.append(-1.0); ubs.append(1.0)
-    names.append("load_factor"); lbs.append(-1.0); ubs.append(1.0)
+        notes.append("CAS restriction enforced in full below its altitude and released smoothly "
+                     f"over the {CAS_RESTRICTION_BAND_M:.0f} m above it (never looser than the "
+                     "rule)")
 
     if objective == "time" and throttle_free:
         notes.append(f"minimum time with a fuel tie-break ({FUEL_TIE_BREAK_S * 0.01:g} s per 1% "
                      "of the start mass burnt): among equally fast controls the least-fuel ones")
     w = float(scenario.solver.cost_weight_kg_per_s) if objective == "weighted" else 0.0
     return _Setup(scenario, model, objective, rating, throttle_free, body, m0, x_scale, state_lb,
-                  state_ub, cl_bound, x0, xf, dash, names, np.array(lbs), np.array(ubs), mach_cap,
+                  state_ub, cl_bound, x0, xf, dash, env, [r.name for r in rows],
+                  np.array([r.lower for r in rows]), np.array([r.upper for r in rows]), mach_cap,
                   notes, w)
-
-
-def _smoothstep(s):
-    """C2 quintic step: 0 for s <= 0, 1 for s >= 1, 6 s^5 - 15 s^4 + 10 s^3 between."""
-    import casadi as ca
-
-    c = ca.fmin(ca.fmax(s, 0.0), 1.0)
-    return c**3 * (10.0 - 15.0 * c + 6.0 * c**2)
 
 
 def _point_function(st: _Setup):
@@ -331,7 +313,6 @@ def _point_function(st: _Setup):
     import casadi as ca
 
     model = st.model
-    lim = st.scenario.limits
     xs = st.x_scale
     S = float(model.reference_area_m2)
 
@@ -361,27 +342,9 @@ def _point_function(st: _Setup):
         -ff_s,
         v * ca.cos(gam),
     ) / ca.DM(xs)
-    path = []
-    for name in st.path_names:
-        if name == "mach":
-            path.append(mach / st.mach_cap)
-        elif name == "dynamic_pressure":
-            path.append(q / lim.max_dynamic_pressure_pa)
-        elif name == "cas":
-            path.append(impact_pressure_pa(mach, p_s)
-                        / float(impact_pressure_from_cas(lim.max_cas_m_s)))
-        elif name == "cas_restriction":
-            cas_r, h_r = lim.cas_restriction
-            qc_r = float(impact_pressure_from_cas(cas_r))
-            # Largest relative excess possible above the band: at the Mach cap at h_r.
-            p_r = float(model.atmosphere(np.array(h_r)).pressure_pa)
-            excess = max(float(impact_pressure_pa(st.mach_cap, p_r)) / qc_r - 1.0, 0.1)
-            path.append(impact_pressure_pa(mach, p_s) / qc_r - 1.0
-                        - excess * _smoothstep((h - h_r) / CAS_RESTRICTION_BAND_M))
-        elif name == "cl_max":
-            path.append(cl / clmax_s)
-        elif name == "load_factor":
-            path.append(lift / (m * G0) / lim.max_load_factor)
+    fq = FlightQuantities(h, mach, p_s, q, cl, clmax_s, lift / (m * G0))
+    values = st.envelope.values(fq, smooth=True)
+    path = [values[name] for name in st.path_names]
     algebra = ca.Function("algebra", [X, U, p_s, rho_s, a_s, cd_s, clmax_s, cla_s, thr_s, ff_s],
                           [f, ca.vertcat(*path)])
 
@@ -535,8 +498,8 @@ def _from_trajectory(st: _Setup, tr: Trajectory, points: int = 401,
     thr = np.asarray(tb["throttle"], float)[cut]
     controls = tr.controls
     if controls is not None and np.all(np.diff(t) > 0):
-        cl = np.asarray(controls["lift_coefficient"], float)[cut]
-        thr = np.asarray(controls.get("throttle", thr), float)[cut]
+        cl = np.asarray(controls.lift_coefficient, float)[cut]
+        thr = np.asarray(controls.throttle, float)[cut]
         return _Guess(t / t[-1], np.vstack([h, v, gam, m, x]), cl, thr, float(t[-1]), tr.method,
                       dash_s)
     # Give zero-duration steps (zooms) a duration.
@@ -1007,17 +970,12 @@ def _trajectory(st: _Setup, sol: _Solution, *, converged: bool, status: str, ite
     S = model.reference_area_m2
     drag = q * S * np.asarray(model.drag_coefficient(cl, mach_c, check=False), float)
     thrust = np.asarray(model.thrust_n(hc, mach_c, thr, st.rating, check=False), float)
-    controls = {
-        "lift_coefficient": cl,
-        "throttle": thr,
-        "load_factor": q * S * cl / (m * G0),
-        "dynamic_pressure_pa": q,
-    }
+    lift_over_weight = q * S * cl / (m * G0)
     t_par = thrust
+    alpha = None
     if st.body_thrust:
         alpha = cl / np.asarray(model.lift_slope_per_rad(mach_c, check=False), float)
         t_par = thrust * np.cos(alpha)
-        controls["angle_of_attack_rad"] = alpha
     table = {
         "time_s": t,
         "altitude_m": h,
@@ -1031,10 +989,14 @@ def _trajectory(st: _Setup, sol: _Solution, *, converged: bool, status: str, ite
         "fuel_used_kg": st.m0 - m,
         "distance_m": x,
         "throttle": thr,
+        "lift_coefficient": cl,
+        "load_factor": lift_over_weight,
+        "dynamic_pressure_pa": q,
     }
-    return Trajectory(method="collocation", objective=st.objective, table=table,
+    return Trajectory(method=Method.COLLOCATION, objective=st.objective, table=table,
                       converged=converged, status=status, iterations=iterations, wall_s=wall_s,
-                      notes=list(notes), controls=controls)
+                      notes=tuple(notes), controls=Controls(cl, thr, alpha),
+                      segments=derive_segments(table), profile=st.envelope.profile)
 
 
 def _active_bound_notes(st: _Setup, ph: _Phase) -> list:
@@ -1062,7 +1024,8 @@ def _active_bound_notes(st: _Setup, ph: _Phase) -> list:
 
 def solve_collocation(scenario, objective: str = "time", *, model=None, guess=None,
                       progress=None, intervals: int | None = None,
-                      ipopt_options: dict | None = None, verify: bool = True) -> Trajectory:
+                      ipopt_options: dict | None = None,
+                      time_limit_s: float | None = None) -> Trajectory:
     """Optimal climb by Hermite-Simpson collocation and IPOPT (see the module docstring).
 
     Parameters
@@ -1071,10 +1034,10 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
     objective : {"time", "fuel", "weighted"}
     model : AircraftModel, optional
         Built from the scenario when omitted.
-    guess : None, "energy-state", "straight" or Trajectory
-        Initial guess. ``None`` or ``"energy-state"``: the energy-state solution for the same
-        objective (if that solver fails, a straight line, said in the notes). ``"straight"``:
-        straight line from start to target (cold start). A Trajectory: that trajectory.
+    guess : Trajectory or "straight"
+        Initial guess: a trajectory (e.g. the energy-state solution for the same objective, as
+        :mod:`climbopt.pipeline` passes it) or a straight line from start to target
+        (``"straight"`` or None: a cold start).
     progress : callable(message: str, fraction: float | None), optional
         Receives one message per IPOPT iteration and one per mesh pass.
     intervals : int, optional
@@ -1082,27 +1045,26 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
     ipopt_options : dict, optional
         IPOPT options; they override ``scenario.solver.ipopt``, which overrides
         :data:`DEFAULT_IPOPT_OPTIONS` (and :data:`REFINE_IPOPT_OPTIONS` on refinement passes).
-    verify : bool
-        Re-simulate the result (:func:`climbopt.verify.resimulate`) and attach the check.
+    time_limit_s : float, optional
+        Wall-clock budget of the whole solve [s] (IPOPT's ``max_wall_time`` on each pass).
 
     Returns
     -------
     Trajectory
-        ``method="collocation"``; per-point table at the mesh nodes and interval midpoints (with
-        a dash, the junction point appears twice, at the same time); ``controls`` (see
-        :class:`climbopt.results.Trajectory`); ``verification`` (see :mod:`climbopt.verify`).
-        ``converged`` is true only when IPOPT converged on every mesh and the objective
-        changed by less than ``solver.mesh_tolerance`` (relative) on the last refinement.
+        ``method="collocation"``, converged: IPOPT converged on every mesh pass and the
+        objective changed by less than ``solver.mesh_tolerance`` (relative) on the last
+        refinement (with ``max_mesh_refinements = 0``: the single mesh's local error estimate is
+        within :data:`ERROR_TOLERANCE`). Per-point table at the mesh nodes and interval
+        midpoints (with a dash, the junction point appears twice, at the same time);
+        ``controls``; no ``verification`` (:func:`climbopt.verify.resimulate` does that).
         ``iterations`` sums IPOPT iterations over the mesh passes; the notes list each pass.
 
     Raises
     ------
     SolverFailure
-        IPOPT did not converge on some mesh pass; carries ``status``, ``iterations``, the last
-        iterate as a trajectory with ``converged=False`` and the guess trajectory.
-    climbopt.rutowski.InfeasibleMission
-        With the energy-state guess: the energy-state solver finds the target energy out of
-        reach (its message names the highest reachable energy height).
+        Anything short of an optimum: IPOPT did not converge on some mesh pass (or ran out of
+        time), or the mesh refinement did not settle. Carries ``status``, ``iterations`` and
+        the last iterate as a trajectory with ``converged=False``.
     ValueError
         Unknown objective or guess, or body-axis thrust without a lift-slope table.
     """
@@ -1126,29 +1088,15 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
             progress(msg, frac)
 
     notes = list(st.notes)
-    guess_tr = None
     if isinstance(guess, Trajectory):
         g = _from_trajectory(st, guess)
-        guess_tr = guess
-        notes.append(f"initial guess: the given {guess.method} trajectory")
-    elif guess in (None, "energy-state"):
-        from climbopt.rutowski import InfeasibleMission, solve_energy_state
-
-        try:
-            say("energy-state solution for the initial guess", 0.0)
-            guess_tr = solve_energy_state(scenario, objective, model=model)
-            g = _from_trajectory(st, guess_tr)
-            notes.append("initial guess: energy-state path, zooms given time and smoothed")
-        except InfeasibleMission:
-            raise  # the target energy is out of reach: no point-mass path reaches it either
-        except Exception as exc:  # the guess is only a guess: fall back, and say so
-            g = _straight_line(st)
-            notes.append(f"initial guess: straight line (energy-state solver failed: {exc})")
-    elif guess in ("straight", "cold"):
+        notes.append(f"initial guess: the {guess.method} trajectory"
+                     + (", zooms given time and smoothed" if guess.zooms else ""))
+    elif guess in (None, "straight"):
         g = _straight_line(st)
         notes.append("initial guess: straight line from start to target (cold start)")
     else:
-        raise ValueError("guess must be None, 'energy-state', 'straight' or a Trajectory")
+        raise ValueError("guess must be a Trajectory, 'straight' or None")
 
     F = _point_function(st)
     mesh = np.linspace(0.0, 1.0, n0 + 1)
@@ -1165,12 +1113,22 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
     prev = None
     mesh_converged = False
     max_ref = int(solver_opts.max_mesh_refinements)
+
+    def fail(sol, message, status):
+        tr = _trajectory(st, sol, converged=False, status=status, iterations=total_iter,
+                         wall_s=_time.perf_counter() - wall0,
+                         notes=notes + [f"NOT CONVERGED: {message}"])
+        raise SolverFailure(f"{message}; no optimal trajectory", status=status,
+                            iterations=total_iter, trajectory=tr)
+
     for npass in range(max_ref + 1):
         def report(k, f, npass=npass):
             say(f"mesh pass {npass + 1}: IPOPT iteration {k}, scaled objective {f:.6g}", None)
 
-        sol = _solve_mesh(st, F, mesh, init, first_opts if npass == 0 else refine_opts,
-                          report if progress is not None else None)
+        opts = dict(first_opts if npass == 0 else refine_opts)
+        if time_limit_s is not None:
+            opts["max_wall_time"] = max(time_limit_s - (_time.perf_counter() - wall0), 1e-3)
+        sol = _solve_mesh(st, F, mesh, init, opts, report if progress is not None else None)
         total_iter += sol.iterations
         ipopt_s += sol.ipopt_s
         history.append((sol.intervals, sol.iterations, sol.objective_value, sol.ipopt_s))
@@ -1178,17 +1136,16 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
             hint = ""
             if st.dash_m is not None and not st.throttle_free:
                 hint = " (a dash needs a throttle range to hold level flight)"
-            tr = _trajectory(st, sol, converged=False, status=sol.status, iterations=total_iter,
-                             wall_s=_time.perf_counter() - wall0,
-                             notes=notes + [f"IPOPT did not converge on mesh pass {npass + 1}"])
-            raise SolverFailure(
-                f"IPOPT did not converge ({sol.status}) after {sol.iterations} iterations on "
-                f"{sol.intervals} intervals (mesh pass {npass + 1}){hint}; "
-                "no optimal trajectory", status=sol.status, iterations=total_iter,
-                trajectory=tr, guess=guess_tr)
+            if sol.status == "Maximum_WallTime_Exceeded":
+                hint = f" (the time limit of {time_limit_s:.0f} s was reached)"
+            fail(sol, f"IPOPT did not converge ({sol.status}) after {sol.iterations} iterations "
+                      f"on {sol.intervals} intervals (mesh pass {npass + 1}){hint}", sol.status)
         say(f"mesh pass {npass + 1}: {sol.intervals} intervals, {sol.iterations} iterations, "
             f"objective {sol.objective_value:.7g}", (npass + 1) / (max_ref + 2))
         err = _interval_errors(st, F, sol.climb)
+        if max_ref == 0:
+            mesh_converged = bool(err.max() <= ERROR_TOLERANCE)
+            break
         if prev is not None:
             change = abs(sol.objective_value - prev) / max(abs(sol.objective_value), 1e-12)
             mesh_converged = change < solver_opts.mesh_tolerance
@@ -1204,6 +1161,16 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
                 _map_multipliers(st, mesh, new_mesh, sol.lam_x, sol.lam_g))
         mesh = new_mesh
 
+    notes.append("mesh passes: " + "; ".join(
+        f"{n} intervals, {it} iterations, objective {obj:.7g}" for n, it, obj, _ in history))
+    notes.append(f"largest local error estimate on the final mesh {err.max():.1e} "
+                 f"(scaled states; refinement target {ERROR_TOLERANCE:.0e})")
+    if not mesh_converged:
+        what = (f"the local error estimate {err.max():.1e} exceeds {ERROR_TOLERANCE:.0e} on the "
+                "single mesh (max_mesh_refinements = 0)" if max_ref == 0 else
+                f"mesh refinement stopped after {len(history)} passes without the objective "
+                f"settling to {solver_opts.mesh_tolerance:g} relative")
+        fail(sol, what, sol.status + "; mesh not converged")
     notes += _active_bound_notes(st, sol.climb)
     if sol.dash is not None:
         full = st.dash_m / st.xf[1]
@@ -1215,28 +1182,8 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
                 "flying it at another altitude and speed is better for this objective than the "
                 "dash at the target state (the energy-state solver, which always dashes at the "
                 "target state, answers that different question)")
-    notes.append("mesh passes: " + "; ".join(
-        f"{n} intervals, {it} iterations, objective {obj:.7g}" for n, it, obj, _ in history))
-    notes.append(f"largest local error estimate on the final mesh {err.max():.1e} "
-                 f"(scaled states; refinement target {ERROR_TOLERANCE:.0e})")
-    status = sol.status
     if sol.status != "Solve_Succeeded":
         notes.append(f"IPOPT status {sol.status}: converged to its acceptable (looser) tolerance")
-    if not mesh_converged:
-        notes.append(
-            f"mesh refinement stopped after {len(history)} passes without the objective settling "
-            f"to {solver_opts.mesh_tolerance:g} relative; not reported as converged")
-        status += "; mesh not converged"
-    tr = _trajectory(st, sol, converged=mesh_converged, status=status, iterations=total_iter,
-                     wall_s=0.0, notes=notes)
-    notes_timing = f"IPOPT time {ipopt_s:.2f} s over {len(history)} mesh passes"
-    tr.notes.append(notes_timing)
-    if verify:
-        from climbopt.verify import resimulate
-
-        say("re-simulating the optimal controls", None)
-        tr.verification = resimulate(tr, scenario, model)
-        if not tr.verification["ok"]:
-            tr.notes.append("re-simulation check FAILED: " + tr.verification["message"])
-    tr.wall_s = _time.perf_counter() - wall0
-    return tr
+    notes.append(f"IPOPT time {ipopt_s:.2f} s over {len(history)} mesh passes")
+    return _trajectory(st, sol, converged=True, status=sol.status, iterations=total_iter,
+                       wall_s=_time.perf_counter() - wall0, notes=notes)

@@ -9,9 +9,10 @@ Definitions (energy-state method; Rutowski, J. Aeronautical Sciences 21(3), 1954
   (from :meth:`climbopt.aircraft.AircraftModel.evaluate`);
 * fuel-specific energy ``fs = Ps / fuel flow`` [m/kg] (Rutowski 1954; energy height gained per
   kilogram of fuel);
-* feasibility: lift coefficient at load factor ``n`` not above CLmax(M) (stall or buffet),
-  dynamic pressure, Mach and CAS limits, the CAS restriction below an altitude, the altitude
-  limits, and the data domain of the aircraft tables (the model is never used outside it).
+* feasibility: every limit of the flight envelope (:mod:`climbopt.envelope`, one boundary rule
+  for all of climbopt): lift coefficient at load factor ``n`` against CLmax(M), dynamic pressure,
+  Mach and CAS limits, the CAS restriction below an altitude, the altitude limits, the load
+  factor, and the data domain of the aircraft tables (the model is never used outside it).
 
 Everything is vectorised numpy. Grids are evaluated with the altitude as a column vector, so the
 atmosphere is evaluated once per altitude row. Altitude is geometric [m]; CAS is from the
@@ -32,12 +33,12 @@ import numpy as np
 
 from climbopt.airspeed import cas_from_mach
 from climbopt.atmosphere import energy_height_m
+from climbopt.envelope import Envelope, FlightQuantities
 from climbopt.scenario import Limits, Scenario
 
 __all__ = [
     "EnergyFields",
     "EnergyMap",
-    "LIMIT_NAMES",
     "best_climb_speed",
     "build_energy_map",
     "energy_fields",
@@ -45,16 +46,6 @@ __all__ = [
     "maximise_on_lines",
 ]
 
-#: Names of the feasibility tests, in the order they are reported.
-LIMIT_NAMES = (
-    "data",  # inside the aircraft tables' data (model.in_domain)
-    "altitude",  # limits.min_altitude_m <= h <= limits.max_altitude_m
-    "stall",  # CL = n m g0 / (q S) <= CLmax(M)
-    "dynamic_pressure",  # q <= limits.max_dynamic_pressure_pa
-    "mach",  # M <= limits.max_mach
-    "cas",  # CAS <= limits.max_cas_m_s
-    "cas_restriction",  # CAS <= limit below the restriction altitude
-)
 
 
 class EnergyFields:
@@ -65,9 +56,10 @@ class EnergyFields:
     (CLmax(M) where CL comes within 10% of the model's lowest CLmax; elsewhere that lowest
     value, which is all the stall test needs),
     ``thrust_n``, ``drag_n``, ``ps_m_s``, ``fuel_flow_kg_s``, ``feasible`` (bool) and
-    ``limits`` (dict: limit name -> bool array, True where that limit is met). Outside the data
+    ``limits`` (dict: limit name of :mod:`climbopt.envelope` -> bool array, True where that
+    limit is met). Outside the data
     domain the aerodynamic and engine values are those of the nearest fit point and meaningless:
-    use ``feasible`` (or ``limits["data"]``). ``cas_m_s`` and ``fuel_specific_energy_m_kg`` are
+    use ``feasible`` (or ``limits["table_mach"]`` and ``limits["altitude"]``). ``cas_m_s`` and ``fuel_specific_energy_m_kg`` are
     computed on first access.
     """
 
@@ -106,7 +98,7 @@ class EnergyFields:
             return np.where(self.fuel_flow_kg_s > 0.0, self.ps_m_s / self.fuel_flow_kg_s, np.nan)
 
 
-def energy_fields(model, altitude_m, tas_m_s, mass_kg, *, limits: Limits | None = None,
+def energy_fields(model, altitude_m, tas_m_s, mass_kg, *, limits=None,
                   load_factor: float = 1.0, throttle: float = 1.0,
                   rating: str | None = None) -> EnergyFields:
     """Energy-state quantities and the feasibility mask at flight points.
@@ -120,8 +112,9 @@ def energy_fields(model, altitude_m, tas_m_s, mass_kg, *, limits: Limits | None 
         a column for a grid: the atmosphere is then evaluated once per row).
     mass_kg : float or array_like
         Aircraft mass [kg] (broadcasts too).
-    limits : climbopt.scenario.Limits, optional
-        Envelope limits; ``None`` applies only the data domain, positive speed and CLmax.
+    limits : climbopt.envelope.Envelope or climbopt.scenario.Limits, optional
+        The flight envelope (:mod:`climbopt.envelope`; a ``Limits`` record is wrapped in one with
+        this model's table ranges). ``None`` applies only the table data and CLmax.
     load_factor : float
         Lift over weight n [-] (1 for climbing flight; > 1 in turns).
     throttle : float
@@ -135,32 +128,22 @@ def energy_fields(model, altitude_m, tas_m_s, mass_kg, *, limits: Limits | None 
     atm = model.atmosphere(h)
     mach = v / atm.speed_of_sound_m_s
     perf = model.evaluate(h, v, mass_kg, load_factor, throttle, rating, check=False)
-    cl_max = _cl_max_where_needed(model, mach, perf.cl)
-    lim = {"data": model.in_domain(h, mach) & (v > 0.0)}
+    env = _as_envelope(limits, model)
+    cl_max = _cl_max_where_needed(model, mach, perf.cl * env.buffet_load_factor)
+    fq = FlightQuantities(h, mach, atm.pressure_pa, perf.dynamic_pressure_pa, perf.cl, cl_max,
+                          np.asarray(load_factor, dtype=float))
+    lim = env.inside(fq)
+    lim["table_mach"] = lim["table_mach"] & (v > 0.0)
+    return EnergyFields(h, v, mach, atm.pressure_pa, perf, cl_max, lim, shape)
+
+
+def _as_envelope(limits, model) -> Envelope:
+    """The envelope to apply: as given, built from a Limits record, or the tables alone."""
+    if isinstance(limits, Envelope):
+        return limits
     if limits is None:
-        limits = Limits(min_altitude_m=-np.inf)
-    alt_ok = h >= limits.min_altitude_m
-    if limits.max_altitude_m is not None:
-        alt_ok = alt_ok & (h <= limits.max_altitude_m)
-    lim["altitude"] = alt_ok
-    with np.errstate(invalid="ignore"):
-        lim["stall"] = perf.cl <= cl_max
-    if limits.max_dynamic_pressure_pa is not None:
-        lim["dynamic_pressure"] = perf.dynamic_pressure_pa <= limits.max_dynamic_pressure_pa
-    if limits.max_mach is not None:
-        lim["mach"] = mach <= limits.max_mach
-    cas = None
-    if limits.max_cas_m_s is not None or limits.cas_restriction is not None:
-        cas = cas_from_mach(mach, atm.pressure_pa)
-        if limits.max_cas_m_s is not None:
-            lim["cas"] = cas <= limits.max_cas_m_s
-        if limits.cas_restriction is not None:
-            max_cas, below_m = limits.cas_restriction
-            lim["cas_restriction"] = (cas <= max_cas) | (h >= below_m)
-    fields = EnergyFields(h, v, mach, atm.pressure_pa, perf, cl_max, lim, shape)
-    if cas is not None:
-        fields.cas_m_s = np.broadcast_to(cas, shape)  # reuse (cached_property slot)
-    return fields
+        limits = Limits(min_altitude_m=-np.inf, max_load_factor=np.inf)
+    return Envelope(limits, model)
 
 
 _CL_MAX_FLOOR: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
@@ -263,20 +246,10 @@ class EnergyMap:
         return (self.altitude_m.size, self.speed.size)
 
 
-def _model_and_limits(source, limits):
-    """(model, limits, rating) from a Scenario or an AircraftModel."""
-    if isinstance(source, Scenario):
-        from climbopt.aircraft import build_model
-
-        model = build_model(source)
-        return model, (source.limits if limits is None else limits), source.mission.rating
-    return source, limits, None
-
-
 def build_energy_map(source, *, altitude_m=None, speed=None, speed_kind: str = "tas",
                      mass_kg: float | None = None, load_factor: float = 1.0,
                      throttle: float | None = None, rating: str | None = None,
-                     limits: Limits | None = None, shape: tuple[int, int] | None = None,
+                     limits=None, shape: tuple[int, int] | None = None,
                      model=None) -> EnergyMap:
     """Build an :class:`EnergyMap` over altitude x TAS (``speed_kind="tas"``) or altitude x Mach.
 
@@ -284,7 +257,8 @@ def build_energy_map(source, *, altitude_m=None, speed=None, speed_kind: str = "
     ----------
     source : Scenario or AircraftModel
         With a scenario the model is built (unless ``model`` is given) and the scenario's
-        limits, rating and grid size are used by default.
+        envelope (without the climb profile's path rules), rating and grid size are used by
+        default.
     altitude_m, speed : array_like, optional
         Row and column axes [m], [m/s or -]. Default: the model's data domain in altitude
         (cut to the altitude limits), and speeds from 0 to its highest Mach at the warmest
@@ -295,28 +269,36 @@ def build_energy_map(source, *, altitude_m=None, speed=None, speed_kind: str = "
         n = L / W [-].
     throttle : float, optional
         Fraction of the rating; default the model's maximum throttle.
+    limits : Envelope or Limits, optional
+        Overrides the scenario's envelope.
     """
+    from climbopt.envelope import envelope_for
+
     if speed_kind not in ("tas", "mach"):
         raise ValueError(f"speed_kind must be 'tas' or 'mach', got {speed_kind!r}")
+    scen = source if isinstance(source, Scenario) else None
     if model is None:
-        model, limits, scen_rating = _model_and_limits(source, limits)
-    else:
-        scen_rating = source.mission.rating if isinstance(source, Scenario) else None
-        if limits is None and isinstance(source, Scenario):
-            limits = source.limits
+        if scen is None:
+            model = source
+        else:
+            from climbopt.aircraft import build_model
+
+            model = build_model(scen)
+    if limits is None and scen is not None:
+        limits = envelope_for(scen, model, path=False)
+    limits = _as_envelope(limits, model) if limits is not None else None
+    scen_rating = scen.mission.rating if scen is not None else None
     rating = rating or scen_rating or model.default_rating
     if shape is None:
-        if isinstance(source, Scenario):
-            shape = (source.solver.grid_altitude_points, source.solver.grid_speed_points)
+        if scen is not None:
+            shape = (scen.solver.grid_altitude_points, scen.solver.grid_speed_points)
         else:
             shape = (400, 400)
     d = model.domain
     if altitude_m is None:
         lo, hi = d.altitude_min_m, d.altitude_max_m
         if limits is not None:
-            lo = max(lo, limits.min_altitude_m)
-            if limits.max_altitude_m is not None:
-                hi = min(hi, limits.max_altitude_m)
+            lo, hi = max(lo, limits.altitude_min_m), min(hi, limits.altitude_max_m)
         altitude_m = np.linspace(lo, hi, shape[0])
     altitude_m = np.asarray(altitude_m, dtype=float).ravel()
     if speed is None:

@@ -78,8 +78,9 @@ import numpy as np
 
 from climbopt.airspeed import cas_from_mach
 from climbopt.atmosphere import G0, energy_height_m
-from climbopt.energy import LIMIT_NAMES, energy_fields, maximise_on_lines
-from climbopt.results import COLUMNS, Trajectory, Zoom
+from climbopt.energy import energy_fields, maximise_on_lines
+from climbopt.envelope import FlightQuantities, envelope_for
+from climbopt.results import COLUMNS, Method, Trajectory, Zoom, derive_segments
 
 __all__ = ["InfeasibleMission", "solve_energy_state"]
 
@@ -136,7 +137,7 @@ class _Problem:
     """Everything fixed during one solve."""
 
     model: object
-    limits: object
+    limits: object  # climbopt.envelope.Envelope
     rating: str
     throttle: float
     h_bottom_m: float
@@ -144,6 +145,7 @@ class _Problem:
     points: int
     refine: bool
     rounds: int = 6
+    monotone: bool = False  # procedure profile: altitude never decreases
 
 
 def _m_ft(x_m: float) -> str:
@@ -153,9 +155,11 @@ def _m_ft(x_m: float) -> str:
 # ------------------------------------------------------------------------------------ levels
 
 
-def _line_bounds(prob: _Problem, he: np.ndarray):
-    """Speed range [m/s] of each constant-energy line inside the altitude bounds."""
-    v_hi = np.sqrt(2.0 * G0 * np.maximum(he - prob.h_bottom_m, 0.0))
+def _line_bounds(prob: _Problem, he: np.ndarray, h_floor=None):
+    """Speed range [m/s] of each constant-energy line inside the altitude bounds (and above
+    ``h_floor`` [m], the altitude already reached, for the procedure profile)."""
+    low = prob.h_bottom_m if h_floor is None else np.maximum(prob.h_bottom_m, h_floor)
+    v_hi = np.sqrt(2.0 * G0 * np.maximum(he - low, 0.0))
     v_lo = np.sqrt(2.0 * G0 * np.maximum(he - prob.h_top_m, 0.0))
     v_lo = np.maximum(v_lo, 1e-3 * v_hi)
     return v_lo, v_hi
@@ -183,11 +187,14 @@ def _value(f, cost: _Cost | None, dash: bool):
 
 
 def _optimise_levels(prob: _Problem, he, mass, cost: _Cost | None, dash: bool,
-                     points: int | None = None):
-    """Best speed on each energy level; returns (tas, value, used_plain_fallback mask)."""
+                     points: int | None = None, h_floor=None):
+    """Best speed on each energy level (at or above ``h_floor`` [m] when given); returns (tas,
+    value, used_plain_fallback mask)."""
     he = np.atleast_1d(np.asarray(he, dtype=float))
     mass = np.broadcast_to(np.asarray(mass, dtype=float), he.shape)
-    v_lo, v_hi = _line_bounds(prob, he)
+    if h_floor is not None:
+        h_floor = np.broadcast_to(np.asarray(h_floor, dtype=float), he.shape)
+    v_lo, v_hi = _line_bounds(prob, he, h_floor)
     n = points or prob.points
 
     def objective_for(use_dash, rows):
@@ -211,6 +218,31 @@ def _optimise_levels(prob: _Problem, he, mass, cost: _Cost | None, dash: bool,
             val[rows] = val2
             fallback[rows] = np.isfinite(val2)
     return v, val, fallback
+
+
+def _hold_altitude(prob: _Problem, he, mass, cost: _Cost | None, dash: bool, v, val, fallback):
+    """Procedure profile: make the locus's altitude non-decreasing from level to level.
+
+    Each level whose best point lies below the highest altitude reached on the levels before
+    it is solved again with that altitude as its floor (at constant energy, a point above the
+    floor or the floor itself: holding altitude means accelerating level). Repeated until no
+    level descends (each pass fixes at least the first descending level). Arrays are updated in
+    place; returns the number of levels re-solved.
+    """
+    resolved = set()
+    for _ in range(he.size):
+        h = he - v**2 / (2.0 * G0)
+        ok = np.isfinite(val)
+        reached = np.maximum.accumulate(np.where(ok, h, -np.inf))
+        floor = np.concatenate([[-np.inf], reached[:-1]])
+        bad = np.flatnonzero(ok & (h < floor - 1e-3))
+        if bad.size == 0:
+            break
+        v2, val2, fb2 = _optimise_levels(prob, he[bad], mass[bad], cost, dash,
+                                         h_floor=floor[bad])
+        v[bad], val[bad], fallback[bad] = v2, val2, fb2
+        resolved.update(bad.tolist())
+    return len(resolved)
 
 
 def _ceiling(prob: _Problem, he_ok: float, he_bad: float, mass: float):
@@ -286,9 +318,11 @@ def _locate_jumps(prob, he_levels, v, mass_fn, cost, dash):
     hi = he_levels[cand + 1].copy()
     v_a = v[cand].copy()
     v_b = v[cand + 1].copy()
+    # procedure profile: between two levels the floor is the altitude of the lower one
+    floor = h[cand] if prob.monotone else None
     for _ in range(_JUMP_BISECTIONS):
         mid = 0.5 * (lo + hi)
-        vm, _, _ = _optimise_levels(prob, mid, mass_fn(mid), cost, dash)
+        vm, _, _ = _optimise_levels(prob, mid, mass_fn(mid), cost, dash, h_floor=floor)
         h_m = mid - vm**2 / (2.0 * G0)
         h_a = lo - v_a**2 / (2.0 * G0)
         h_b = hi - v_b**2 / (2.0 * G0)
@@ -457,6 +491,8 @@ def _solve_climb(prob, he_levels, start_mass, cost, dash_info, he_target, progre
             passes += 1
             mass_fn = _mass_function(he_levels, used)
             v, val, fallback = _optimise_levels(grid_prob, he_levels, used, cost_now, dash)
+            if grid_prob.monotone:
+                _hold_altitude(grid_prob, he_levels, used, cost_now, dash, v, val, fallback)
             bad = np.flatnonzero(~np.isfinite(val))
             if bad.size and bad[0] == 0:
                 _raise_ceiling(grid_prob, he_levels, val, used, he_target)
@@ -538,14 +574,12 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
         from climbopt.aircraft import build_model
 
         model = build_model(scenario)
-    lim = scenario.limits
+    env = envelope_for(scenario, model)
     rating = scenario.mission.rating or model.default_rating
-    d = model.domain
-    h_bottom = max(d.altitude_min_m, lim.min_altitude_m)
-    h_top = d.altitude_max_m if lim.max_altitude_m is None else min(d.altitude_max_m,
-                                                                      lim.max_altitude_m)
-    prob = _Problem(model, lim, rating, float(model.throttle_max), h_bottom, h_top,
-                    max(3, int(scenario.solver.grid_speed_points)), refine)
+    monotone = env.profile == "procedure"
+    prob = _Problem(model, env, rating, float(model.throttle_max), env.altitude_min_m,
+                    env.altitude_max_m, max(3, int(scenario.solver.grid_speed_points)), refine,
+                    monotone=monotone)
     n_levels = max(2, int(scenario.solver.grid_altitude_points))
     start, target = scenario.mission.start, scenario.mission.target
     start_mass = float(model.mass_kg)
@@ -553,17 +587,17 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
     hef = float(energy_height_m(target.altitude_m, target.tas_m_s))
     notes: list[str] = []
 
-    fs = energy_fields(model, start.altitude_m, start.tas_m_s, start_mass, limits=lim,
+    fs = energy_fields(model, start.altitude_m, start.tas_m_s, start_mass, limits=env,
                        throttle=prob.throttle, rating=rating)
     if not bool(fs.feasible):
-        broken = [n for n in LIMIT_NAMES if n in fs.limits and not bool(fs.limits[n])]
+        broken = [n for n in env.names if n in fs.limits and not bool(fs.limits[n])]
         notes.append(f"the start point lies outside the flight envelope ({', '.join(broken)} "
                      "limit(s) not met); the energy-state path leaves it by a zoom")
     # the target must be a feasible flight point (1 g, full rating)
-    ft = energy_fields(model, target.altitude_m, target.tas_m_s, start_mass, limits=lim,
+    ft = energy_fields(model, target.altitude_m, target.tas_m_s, start_mass, limits=env,
                        throttle=prob.throttle, rating=rating)
     if not bool(ft.feasible):
-        broken = [n for n in LIMIT_NAMES if n in ft.limits and not bool(ft.limits[n])]
+        broken = [n for n in env.names if n in ft.limits and not bool(ft.limits[n])]
         raise InfeasibleMission(
             f"the target point (altitude {_m_ft(target.altitude_m)}, Mach {float(ft.mach):.2f}) "
             f"lies outside the flight envelope: {', '.join(broken)} limit(s) not met",
@@ -646,17 +680,14 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
                 f"{dash['throttle'][0]:.3f} (thrust = drag)")
 
     notes += _notes(prob, scenario, path, integ, passes, n_levels, objective, w)
-    fuel_cap = getattr(model, "fuel_capacity_kg", None)
-    if fuel_cap is not None and table["fuel_used_kg"][-1] > fuel_cap:
-        notes.append(f"fuel burnt {table['fuel_used_kg'][-1]:,.0f} kg exceeds the fuel capacity "
-                     f"{fuel_cap:,.0f} kg")
     if progress:
         progress(f"energy-state {objective}: done", 1.0)
     status = (f"energy-state path: {n_levels} levels x {prob.points} speeds, {passes} mass "
               f"passes, {len(zooms)} zooms")
-    return Trajectory("energy-state", objective, table, converged=True, status=status,
+    return Trajectory(Method.ENERGY_STATE, objective, table, converged=True, status=status,
                       iterations=0, wall_s=_time.perf_counter() - t_wall, zooms=zooms,
-                      notes=notes)
+                      segments=derive_segments(table, zooms), notes=notes,
+                      profile=env.profile)
 
 
 def _gamma_along(path: _Path, ps, tas):
@@ -735,11 +766,18 @@ def _table(prob, path, integ, start, target):
 
 
 def _finish_columns(model, cols):
-    """Add Mach and CAS from altitude and TAS (model atmosphere; compressible pitot formulas)."""
+    """Add Mach, CAS, dynamic pressure and the 1 g lift coefficient from altitude, TAS and mass
+    (model atmosphere; compressible pitot formulas; L = m g0, the energy-state assumption)."""
     atm = model.atmosphere(cols["altitude_m"])
-    mach = cols["tas_m_s"] / atm.speed_of_sound_m_s
+    v = np.asarray(cols["tas_m_s"], dtype=float)
+    mach = v / atm.speed_of_sound_m_s
     cols["mach"] = mach
     cols["cas_m_s"] = np.asarray(cas_from_mach(mach, atm.pressure_pa), dtype=float)
+    q = 0.5 * np.asarray(atm.density_kg_m3, dtype=float) * v * v
+    cols["dynamic_pressure_pa"] = q
+    cols["load_factor"] = np.ones_like(q)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        cols["lift_coefficient"] = np.asarray(cols["mass_kg"]) * G0 / (q * model.reference_area_m2)
     return {k: np.asarray(cols[k], dtype=float) for k in COLUMNS}
 
 
@@ -781,31 +819,17 @@ def _notes(prob, scenario, path, integ, passes, n_levels, objective, w):
 
 
 def _active_limits(prob, path, integ):
-    """Say which limits the locus rides (the optimum sits on their boundary)."""
+    """Say which limits the locus rides (the optimum sits on their boundary;
+    :meth:`climbopt.envelope.Envelope.riding`)."""
     f = integ["fields"]
-    lim = prob.limits
-    d = prob.model.domain
-    h = path.altitude
-    tight = {}
-    rel = 2e-4
-    tight["stall (CLmax)"] = np.asarray(f.cl) >= (1 - rel) * np.asarray(f.cl_max)
-    if lim.max_dynamic_pressure_pa is not None:
-        tight["dynamic pressure"] = f.dynamic_pressure_pa >= (1 - rel) * lim.max_dynamic_pressure_pa
-    if lim.max_mach is not None:
-        tight["Mach"] = f.mach >= (1 - rel) * lim.max_mach
-    if lim.max_cas_m_s is not None:
-        tight["CAS"] = f.cas_m_s >= (1 - rel) * lim.max_cas_m_s
-    if lim.cas_restriction is not None:
-        c, below = lim.cas_restriction
-        tight["CAS restriction"] = (f.cas_m_s >= (1 - rel) * c) & (h < below)
-    tight["minimum altitude"] = h <= prob.h_bottom_m + 1.0
-    tight["maximum altitude"] = h >= prob.h_top_m - 1.0
-    tight["table Mach range"] = (f.mach >= d.mach_max * (1 - rel)) | (f.mach <= d.mach_min + 1e-6)
+    fq = FlightQuantities(f.altitude_m, f.mach, f._pressure_pa, f.dynamic_pressure_pa, f.cl,
+                          f.cl_max, 1.0)
     out = []
-    for name, m in tight.items():
+    for name, m in prob.limits.riding(fq).items():
         m = np.asarray(m, dtype=bool)
         if m.any():
             he = path.he[m]
-            out.append(f"path rides the {name} limit on {int(m.sum())} of {m.size} points "
+            words = prob.limits.row(name).words
+            out.append(f"path rides the {words} limit on {int(m.sum())} of {m.size} points "
                        f"(energy height {he.min():,.0f} to {he.max():,.0f} m)")
     return out

@@ -163,6 +163,22 @@ class Mission:
     target: FlightPoint
     dash_distance_m: float | None = None
     rating: str | None = None
+    profile: str = "free"
+    acceleration_share: float = 0.5
+
+
+@dataclass(frozen=True)
+class ScheduleSpec:
+    """A named climb schedule to fly: ``cas_below_restriction_m_s`` below the CAS restriction's
+    altitude (None: no restriction segment), then ``cas_m_s``, then ``mach`` above the crossover
+    (None: CAS all the way). ``acceleration_share``: fraction of the specific excess power given
+    to speed while changing speed between segments (1 = level acceleration)."""
+
+    name: str
+    cas_m_s: float
+    mach: float | None = None
+    cas_below_restriction_m_s: float | None = None
+    acceleration_share: float = 0.5
 
 
 @dataclass(frozen=True)
@@ -217,6 +233,7 @@ class Scenario:
     limits: Limits
     solver: SolverOptions
     display_units: dict[str, str] = field(default_factory=dict)
+    schedules: tuple[ScheduleSpec, ...] = ()
 
 
 # ============================================================================================

@@ -26,22 +26,28 @@ Reported:
   energy height, between the simulated and the trajectory's state at the end of any interval,
   and ``departure_time_s``: where it first exceeded ``FINAL_MISS_TOLERANCE`` (None if never),
   so that a failed check says where the controls stop reproducing the path;
-* ``path_violations``: the largest excess over each limit along the simulated path (all
-  integrator steps), relative to the limit (altitude: metres over the final energy height);
-  ``max_path_violation`` the largest of them;
-* ``ok``: ``final_miss_relative <= FINAL_MISS_TOLERANCE`` and ``max_path_violation <=
-  PATH_VIOLATION_TOLERANCE`` and the integration stayed inside the model's tables.
+* ``limit_excess``: the largest margin of each row of the flight envelope
+  (:mod:`climbopt.envelope`, the same rows and boundary rule the solvers use, including the
+  procedure profile's altitude window and no-descent row) along the simulated path (all
+  integrator steps), clipped at 0; ``worst_limit`` the row that exceeds its tolerance most;
+* ``ok``: ``final_miss_relative <= FINAL_MISS_TOLERANCE``, every row's excess within that row's
+  tolerance (1 % of the limit for ratio rows, :data:`PATH_VIOLATION_TOLERANCE`; 20 m for
+  altitude; 0.01 rad for no-descent) and the integration stayed inside the model's tables.
+
+The result is a :class:`climbopt.results.Verification`.
 """
 
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 from scipy.integrate import solve_ivp
 
-from climbopt.airspeed import impact_pressure_from_cas, impact_pressure_pa
 from climbopt.atmosphere import G0, energy_height_m
+from climbopt.envelope import RATIO_TOLERANCE, envelope_for, flight_quantities
+from climbopt.results import StateValues, Verification
 
 __all__ = ["resimulate", "FINAL_MISS_TOLERANCE", "PATH_VIOLATION_TOLERANCE", "RTOL"]
 
@@ -52,7 +58,7 @@ FINAL_MISS_TOLERANCE = 1.0e-3
 #: between collocation points an open-loop re-simulation may drift slightly over a limit the
 #: optimum rides, and where the optimum leaves a limit inside an interval the interpolated
 #: controls may cross it a little before the next point.
-PATH_VIOLATION_TOLERANCE = 1.0e-2
+PATH_VIOLATION_TOLERANCE = RATIO_TOLERANCE
 #: Relative tolerance of the integration.
 RTOL = 1.0e-10
 #: State scales for the absolute tolerances (h, V, gamma, m as fraction of start mass, x).
@@ -132,26 +138,21 @@ def _force_function(model, rating, body):
                        [ca.vertcat(mach, q, atm.pressure_pa, lift, drag, thrust, ff, alpha)])
 
 
-def resimulate(trajectory, scenario, model=None) -> dict:
+def resimulate(trajectory, scenario, model=None) -> Verification:
     """Integrate the trajectory's controls and compare (see the module docstring).
 
     Parameters
     ----------
     trajectory : Trajectory
-        Must carry ``controls`` with ``lift_coefficient`` and ``throttle`` at its points.
+        Must carry ``controls`` (lift coefficient and throttle at its points).
     scenario : Scenario
-        Supplies the limits and mission (rating).
+        Supplies the envelope (:func:`climbopt.envelope.envelope_for`) and mission (rating).
     model : AircraftModel, optional
         Built from the scenario when omitted.
 
     Returns
     -------
-    dict
-        ``ok`` (bool), ``message`` (str), ``final_state_miss`` (dict of per-state differences,
-        SI), ``final_miss_energy_m``, ``final_miss_relative``, ``final_energy_height_m``,
-        ``largest_departure_relative``, ``departure_time_s`` (float or None),
-        ``path_violations`` (dict, relative), ``max_path_violation``, ``tolerances`` (dict),
-        ``simulated_final_state`` (dict), ``steps`` (integrator steps).
+    Verification
 
     Raises
     ------
@@ -159,8 +160,6 @@ def resimulate(trajectory, scenario, model=None) -> dict:
         The trajectory has no stored controls (e.g. an energy-state path, whose zooms take no
         time and cannot be flown as such).
     """
-    from climbopt.fits import ModelDomainError
-
     if getattr(trajectory, "controls", None) is None:
         raise ValueError(f"the {trajectory.method} trajectory has no control histories to "
                          "re-simulate (only collocation results carry them)")
@@ -170,20 +169,116 @@ def resimulate(trajectory, scenario, model=None) -> dict:
         model = build_model(scenario)
     tb = trajectory.table
     t = np.asarray(tb["time_s"], float)
-    cl_all = np.asarray(trajectory.controls["lift_coefficient"], float)
-    th_all = np.asarray(trajectory.controls["throttle"], float)
+    planned = np.vstack([np.asarray(tb[k], float) for k in _STATE_KEYS])
+    he_f = float(energy_height_m(planned[0, -1], planned[1, -1]))
+    sim = _simulate(trajectory, scenario, model, t, planned, he_f)
+    final = planned[:, -1]
+    if sim.failure:
+        miss = StateValues(*([math.nan] * 5))
+        miss_e = math.inf
+    else:
+        d = sim.ys[-1] - final
+        miss = StateValues(*(float(x) for x in d))
+        miss_e = float(math.hypot(d[0], final[1] * d[1] / G0))
+    miss_rel = miss_e / abs(he_f) if he_f else math.inf
+    env = envelope_for(scenario, model)
+    excess = _limit_excess(env, model, sim.ys, sim.cls)
+    ratio = {k: v / env.row(k).tolerance for k, v in excess.items()}
+    worst = max(ratio, key=ratio.get) if ratio else ""
+    limits_ok = all(v <= 1.0 for v in ratio.values())
+    ok = not sim.failure and miss_rel <= FINAL_MISS_TOLERANCE and limits_ok
+    if sim.failure:
+        message = sim.failure
+    else:
+        worst_words = (f"{env.row(worst).words} {excess[worst]:.2e}, tolerance "
+                       f"{env.row(worst).tolerance:.0e}" if worst and excess[worst] > 0
+                       else "none")
+        message = (f"final miss {miss_e:.3g} m of energy height ({miss_rel:.2e} of "
+                   f"{he_f:.0f} m; tolerance {FINAL_MISS_TOLERANCE:.0e}); largest limit "
+                   f"excess: {worst_words}")
+        if sim.departure_t is not None:
+            message += (f"; the simulated path first leaves the trajectory by more than "
+                        f"{FINAL_MISS_TOLERANCE:.0e} of the final energy height near "
+                        f"t = {sim.departure_t:.1f} s")
+    return Verification(
+        ok=bool(ok), message=message, final_state_miss=miss,
+        simulated_final_state=StateValues(*(float(x) for x in sim.ys[-1])),
+        final_miss_energy_m=miss_e, final_miss_relative=miss_rel, final_energy_height_m=he_f,
+        largest_departure_relative=math.inf if sim.failure else float(sim.departure),
+        departure_time_s=sim.departure_t, limit_excess=excess,
+        worst_limit=worst if worst and excess[worst] > 0 else "",
+        final_miss_tolerance=FINAL_MISS_TOLERANCE, limit_tolerance=PATH_VIOLATION_TOLERANCE,
+        steps=sim.steps)
+
+
+_STATE_KEYS = ("altitude_m", "tas_m_s", "flight_path_angle_rad", "mass_kg", "distance_m")
+
+
+@dataclass
+class _Simulation:
+    """Simulated states at every integrator step, their lift coefficients, and how it went."""
+
+    ys: np.ndarray
+    cls: np.ndarray
+    steps: int
+    departure: float
+    departure_t: float | None
+    failure: str
+
+
+def _simulate(trajectory, scenario, model, t, planned, he_f) -> _Simulation:
+    """Fly the controls interval by interval (the controls have kinks at the nodes); phases
+    (e.g. climb and dash) are separated by a repeated time, where the controls may jump."""
+    from climbopt.fits import ModelDomainError
+
+    cl_all = np.asarray(trajectory.controls.lift_coefficient, float)
+    th_all = np.asarray(trajectory.controls.throttle, float)
     rating = scenario.mission.rating or model.default_rating
-    body = model.thrust_alignment == "body"
-    m0 = float(tb["mass_kg"][0])
+    m0 = float(planned[3, 0])
     scales = _SCALES * np.array([1, 1, 1, m0, 1])
+    rhs_for = _rhs_factory(model, rating, model.thrust_alignment == "body")
+    segments = np.split(np.arange(t.size), np.flatnonzero(np.diff(t) <= 0.0) + 1)
+    y = planned[:, 0].copy()
+    ys, cls = [y.copy()], [cl_all[0]]
+    steps, departure, departure_t, failure = 0, 0.0, None, ""
+    for seg in segments:
+        if seg.size < 2:
+            continue
+        quadratic = trajectory.method == "collocation" and seg.size % 2 == 1
+        for t0, t1, cl_c, th_c, k_end in _pieces(t[seg], cl_all[seg], th_all[seg], quadratic):
+            try:
+                sol = solve_ivp(rhs_for(t0, t1, cl_c, th_c), (t0, t1), y, method="DOP853",
+                                rtol=RTOL, atol=RTOL * scales)
+            except (ModelDomainError, ValueError) as exc:
+                failure = f"the simulated path left the model's tables near t = {t0:.1f} s: {exc}"
+                break
+            if not sol.success:
+                failure = f"integration failed near t = {t0:.1f} s: {sol.message}"
+                break
+            steps += sol.t.size - 1
+            ys.extend(sol.y[:, 1:].T)
+            s_ = (sol.t[1:] - t0) / (t1 - t0)
+            cls.extend(np.clip(cl_c[0] + s_ * (cl_c[1] + s_ * cl_c[2]), cl_c[3], cl_c[4]))
+            y = sol.y[:, -1].copy()
+            d = y - planned[:, seg[k_end]]
+            dep = math.hypot(d[0], planned[1, seg[k_end]] * d[1] / G0) / max(abs(he_f), 1e-9)
+            departure = max(departure, dep)
+            if departure_t is None and dep > FINAL_MISS_TOLERANCE:
+                departure_t = float(t1)
+        if failure:
+            break
+    return _Simulation(np.asarray(ys), np.asarray(cls), steps, departure, departure_t, failure)
+
+
+def _rhs_factory(model, rating, body):
+    """``rhs_for(t0, t1, cl_c, th_c)``: the right-hand side on one interval [t0, t1] with
+    polynomial controls c0 + s (c1 + s c2), s = (t - t0) / (t1 - t0), limited to [lo, hi]."""
+    from climbopt.fits import ModelDomainError
+
     forces = _fast(_force_function(model, rating, body))
     dom = model.fit_domain
-    # Phases (e.g. climb and dash) are separated by a repeated time; the controls may jump there.
-    segments = np.split(np.arange(t.size), np.flatnonzero(np.diff(t) <= 0.0) + 1)
 
-    def make_rhs(t0, t1, cl_c, th_c):
-        """Right-hand side on one interval [t0, t1] with polynomial controls c0 + s (c1 + s c2),
-        s = (t - t0) / (t1 - t0)."""
+    def rhs_for(t0, t1, cl_c, th_c):
         inv = 1.0 / (t1 - t0)
 
         def rhs(tt, y):
@@ -204,136 +299,12 @@ def resimulate(trajectory, scenario, model=None) -> dict:
                 v * math.cos(gam),
             ]
         return rhs
-
-    planned = np.vstack([np.asarray(tb[k], float) for k in
-                         ("altitude_m", "tas_m_s", "flight_path_angle_rad", "mass_kg",
-                          "distance_m")])
-    he_f = float(energy_height_m(planned[0, -1], planned[1, -1]))
-    y = planned[:, 0].copy()
-    ts, ys, cls = [t[0]], [y.copy()], [cl_all[0]]
-    failure = ""
-    steps = 0
-    # Departure from the trajectory at the end of every interval, as energy height.
-    departure = 0.0
-    departure_t = None
-    for seg in segments:
-        if seg.size < 2:
-            continue
-        quadratic = trajectory.method == "collocation" and seg.size % 2 == 1
-        pieces = _pieces(t[seg], cl_all[seg], th_all[seg], quadratic)
-        for t0, t1, cl_c, th_c, k_end in pieces:
-            try:
-                sol = solve_ivp(make_rhs(t0, t1, cl_c, th_c), (t0, t1), y, method="DOP853",
-                                rtol=RTOL, atol=RTOL * scales)
-            except (ModelDomainError, ValueError) as exc:
-                failure = f"the simulated path left the model's tables near t = {t0:.1f} s: {exc}"
-                break
-            if not sol.success:
-                failure = f"integration failed near t = {t0:.1f} s: {sol.message}"
-                break
-            steps += sol.t.size - 1
-            ts.extend(sol.t[1:])
-            ys.extend(sol.y[:, 1:].T)
-            s_ = (sol.t[1:] - t0) / (t1 - t0)
-            cls.extend(np.clip(cl_c[0] + s_ * (cl_c[1] + s_ * cl_c[2]), cl_c[3], cl_c[4]))
-            y = sol.y[:, -1].copy()
-            d = y - planned[:, seg[k_end]]
-            dep = math.hypot(d[0], planned[1, seg[k_end]] * d[1] / G0) / max(abs(he_f), 1e-9)
-            departure = max(departure, dep)
-            if departure_t is None and dep > FINAL_MISS_TOLERANCE:
-                departure_t = float(t1)
-        if failure:
-            break
-    ts = np.asarray(ts)
-    ys = np.asarray(ys)
-    cls = np.asarray(cls)
-
-    final = planned[:, -1]
-    names = ("altitude_m", "tas_m_s", "flight_path_angle_rad", "mass_kg", "distance_m")
-    if failure:
-        miss = {k: float("nan") for k in names}
-        miss_e = float("inf")
-    else:
-        d = ys[-1] - final
-        miss = {k: float(v) for k, v in zip(names, d)}
-        miss_e = float(math.hypot(d[0], final[1] * d[1] / G0))
-    miss_rel = miss_e / abs(he_f) if he_f else float("inf")
-
-    h_plan = np.interp(ts, t, np.asarray(tb["altitude_m"], float))
-    violations = _path_violations(model, scenario, ys, cls, he_f, h_plan)
-    max_viol = max(violations.values()) if violations else 0.0
-    ok = (not failure and miss_rel <= FINAL_MISS_TOLERANCE
-          and max_viol <= PATH_VIOLATION_TOLERANCE)
-    if failure:
-        message = failure
-    else:
-        worst = max(violations, key=violations.get) if violations else "none"
-        message = (f"final miss {miss_e:.3g} m of energy height ({miss_rel:.2e} of "
-                   f"{he_f:.0f} m; tolerance {FINAL_MISS_TOLERANCE:.0e}); largest path-limit "
-                   f"excess {max_viol:.2e} ({worst}; tolerance {PATH_VIOLATION_TOLERANCE:.0e})")
-        if departure_t is not None:
-            message += (f"; the simulated path first leaves the trajectory by more than "
-                        f"{FINAL_MISS_TOLERANCE:.0e} of the final energy height near "
-                        f"t = {departure_t:.1f} s")
-    return {
-        "ok": bool(ok),
-        "message": message,
-        "final_state_miss": miss,
-        "final_miss_energy_m": miss_e,
-        "final_miss_relative": miss_rel,
-        "final_energy_height_m": he_f,
-        "path_violations": violations,
-        "max_path_violation": float(max_viol),
-        "tolerances": {"final_miss_relative": FINAL_MISS_TOLERANCE,
-                       "path_violation": PATH_VIOLATION_TOLERANCE, "rtol": RTOL},
-        "largest_departure_relative": float(departure) if not failure else float("inf"),
-        "departure_time_s": departure_t,
-        "simulated_final_state": {k: float(v) for k, v in zip(names, ys[-1])},
-        "steps": int(steps),
-    }
+    return rhs_for
 
 
-def _path_violations(model, scenario, ys, cl, he_f, h_plan) -> dict:
-    """Largest relative excess over each scenario limit along the simulated points (>= 0).
-
-    The CAS restriction applies where the trajectory itself is at or below the restriction
-    altitude (``h_plan``, the trajectory's altitude at the same times): a simulated path a few
-    metres lower than planned where the speed-up begins is an altitude drift (counted in the
-    final miss), not a speed violation."""
-    lim = scenario.limits
-    h, v, m = ys[:, 0], ys[:, 1], ys[:, 3]
-    atm = model.atmosphere(np.clip(h, model.atmosphere.altitude_min_m,
-                                   model.atmosphere.altitude_max_m))
-    a = np.asarray(atm.speed_of_sound_m_s, float)
-    p = np.asarray(atm.pressure_pa, float)
-    mach = v / a
-    q = 0.5 * np.asarray(atm.density_kg_m3, float) * v * v
-    out = {}
-
-    def excess(value, limit):
-        return float(max(0.0, np.max(value / limit - 1.0)))
-
-    h_lo = max(lim.min_altitude_m, model.domain.altitude_min_m)
-    h_hi = model.domain.altitude_max_m
-    if lim.max_altitude_m is not None:
-        h_hi = min(h_hi, lim.max_altitude_m)
-    out["altitude"] = float(max(0.0, np.max(h_lo - h), np.max(h - h_hi)) / abs(he_f))
-    mach_cap = model.domain.mach_max if lim.max_mach is None else min(lim.max_mach,
-                                                                       model.domain.mach_max)
-    out["mach"] = excess(mach, mach_cap)
-    if lim.max_dynamic_pressure_pa is not None:
-        out["dynamic_pressure"] = excess(q, lim.max_dynamic_pressure_pa)
-    qc = np.asarray(impact_pressure_pa(np.maximum(mach, 0.0), p), float)
-    if lim.max_cas_m_s is not None:
-        out["cas"] = excess(qc, float(impact_pressure_from_cas(lim.max_cas_m_s)))
-    if lim.cas_restriction is not None:
-        cas_r, h_r = lim.cas_restriction
-        below = h_plan <= h_r
-        out["cas_restriction"] = (excess(qc[below], float(impact_pressure_from_cas(cas_r)))
-                                  if below.any() else 0.0)
-    mc = np.clip(mach, model.fit_domain.mach_min, model.fit_domain.mach_max)
-    clmax = np.asarray(model.cl_max(mc, check=False), float)
-    out["cl_max"] = excess(np.abs(cl), clmax)
-    n_load = q * model.reference_area_m2 * cl / (m * G0)
-    out["load_factor"] = excess(np.abs(n_load), lim.max_load_factor)
-    return out
+def _limit_excess(env, model, ys, cl) -> dict:
+    """Largest margin of each envelope row along the simulated points, clipped at 0 (one
+    boundary rule: :mod:`climbopt.envelope`)."""
+    h, v, gam, m = ys[:, 0], ys[:, 1], ys[:, 2], ys[:, 3]
+    fq = flight_quantities(model, h, v, m, lift_coefficient=cl, flight_path_angle_rad=gam)
+    return {k: float(max(0.0, np.max(mg))) for k, mg in env.margins(fq).items()}

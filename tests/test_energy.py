@@ -154,8 +154,8 @@ def test_feasibility_mask_limits(bizjet, bizjet_scenario):
     assert ok(14900.0, 200.0, which="altitude") and not ok(15100.0, 200.0, which="altitude")
     # the tables stop at Mach 2.0 (scenario file): beyond it the model is not used
     a40 = float(ambiance.Atmosphere(40000 * FT).speed_of_sound[0])
-    assert ok(40000 * FT, 1.99 * a40, which="data")
-    assert not ok(40000 * FT, 2.01 * a40, which="data")
+    assert ok(40000 * FT, 1.99 * a40, which="table_mach")
+    assert not ok(40000 * FT, 2.01 * a40, which="table_mach")
 
 
 def test_energy_map_tas_and_mach_views(bizjet):
