@@ -3,8 +3,8 @@
 
 from __future__ import annotations
 
+import contextlib
 import sys
-import time
 from pathlib import Path
 
 import click
@@ -59,6 +59,8 @@ def check(scenario_file: str, check_units: str):
 # (run and map: solve, report, write the output folder atomically; only this module prints)
 
 EXIT_OK, EXIT_BAD_INPUT, EXIT_INFEASIBLE, EXIT_SOLVER_FAILURE = 0, 2, 3, 4
+#: Stopped by Ctrl-C (128 + SIGINT) or by SIGTERM (128 + SIGTERM), as shells report them.
+EXIT_INTERRUPTED, EXIT_TERMINATED = 130, 143
 
 
 def _fail(message: str, code: int) -> None:
@@ -91,6 +93,7 @@ class _Progress:
     def __init__(self, enabled: bool):
         self.enabled = enabled
         self._bar = None
+        self._label = None
 
     def callback(self, label: str):
         if not self.enabled:
@@ -99,7 +102,10 @@ class _Progress:
         def progress(message: str, fraction: float | None = None):
             from tqdm import tqdm
 
+            if self._bar is not None and self._label != label:
+                self.done()
             if self._bar is None:
+                self._label = label
                 import shutil
 
                 # a terminal reporting 0 rows/columns would hide the bar: fall back to 100 x 40
@@ -137,90 +143,64 @@ def _default_out(scenario_file: str, suffix: str = "") -> Path:
     return Path("out") / (Path(scenario_file).stem + suffix)
 
 
-def _check_out_dir(out: Path, marker: str) -> None:
-    """Refuse to replace a folder that is not an earlier climbopt output (the whole folder is
-    swapped out): it must be missing, empty, or hold ``marker`` (summary.json / map.json)."""
-    resolved = out.resolve()
-    cwd = Path.cwd().resolve()
-    if resolved == cwd or resolved in cwd.parents:
-        _fail(f"--out {out}: refusing to replace the current folder or one above it; "
-              "give a folder for the results", EXIT_BAD_INPUT)
-    if out.is_dir() and any(out.iterdir()) and not (out / marker).is_file():
-        _fail(f"--out {out}: the folder exists and is not a climbopt output folder (no {marker}); "
-              "it would be replaced as a whole, so choose another folder or empty it",
-              EXIT_BAD_INPUT)
+def _check_out_dir(out: Path) -> None:
+    """Refuse an unusable output folder before any work (exit 2)."""
+    from climbopt.report import OutputFolderError, check_output_folder
+
+    try:
+        check_output_folder(out)
+    except OutputFolderError as exc:
+        _fail(str(exc), EXIT_BAD_INPUT)
 
 
-def _solve_all(scenario, model, method: str, objectives: list[str], bar: _Progress):
-    """Run the solvers. Returns (results, errors, exit_code). Raises InfeasibleMission."""
-    from climbopt.report import FailedRun
-    from climbopt.rutowski import solve_energy_state
-
-    results, errors = [], []
-    energy = {}
-    for obj in objectives:
-        energy[obj] = solve_energy_state(scenario, obj, model=model,
-                                         progress=bar.callback(f"energy-state, minimum {obj}"))
-        bar.done()
-        if method in ("energy", "both"):
-            results.append(energy[obj])
-    code = EXIT_OK
-    if method in ("collocation", "both"):
-        from climbopt.collocation import SolverFailure, solve_collocation
-        from climbopt.verify import resimulate
-
-        for obj in objectives:
-            t0 = time.perf_counter()
-            try:
-                traj = solve_collocation(scenario, obj, model=model, guess=energy[obj],
-                                         progress=bar.callback(f"collocation, minimum {obj}"))
-                bar.done()
-                if traj.verification is None:
-                    traj.verification = resimulate(traj, scenario, model=model)
-                results.append(traj)
-            except SolverFailure as exc:
-                bar.done()
-                code = EXIT_SOLVER_FAILURE
-                status = str(getattr(exc, "status", "") or "failed")
-                iterations = int(getattr(exc, "iterations", 0) or 0)
-                errors.append(f"collocation, minimum {obj}: not converged ({status}, "
-                              f"{iterations} iterations): {exc}")
-                iterate = getattr(exc, "trajectory", None)
-                if iterate is not None:
-                    iterate.converged = False
-                    iterate.notes = list(iterate.notes) + [
-                        "NOT CONVERGED: last iterate of a failed solve, not an optimum"]
-                    results.append(iterate)
-                else:
-                    results.append(FailedRun("collocation", obj, status=status, message=str(exc),
-                                             iterations=iterations,
-                                             wall_s=time.perf_counter() - t0))
-                if method == "collocation":
-                    fallback = energy[obj]
-                    fallback.notes = list(fallback.notes) + [
-                        "energy-state result reported because the collocation solve failed"]
-                    results.append(fallback)
-    return results, errors, code
+class _Terminated(BaseException):
+    """SIGTERM arrived (raised by the handler :func:`_stoppable` installs)."""
 
 
-def _write_run_folder(folder: Path, scenario, scenario_file, results, records, errors, code,
-                      units, model, bar):
+@contextlib.contextmanager
+def _stoppable(out: Path):
+    """Ctrl-C (exit 130) and SIGTERM (exit 143) stop the command cleanly: nothing is written, an
+    older output folder is left as it was, no temporary folder stays behind (the output folder
+    is written atomically and swapped in with both signals held back)."""
+    import signal
+
+    def on_term(signum, frame):
+        raise _Terminated()
+
+    try:
+        old = signal.signal(signal.SIGTERM, on_term)
+    except ValueError:  # not the main thread (e.g. a test runner's worker): leave as it is
+        old = None
+    try:
+        yield
+    except KeyboardInterrupt:
+        click.echo(f"\ninterrupted: nothing was written; {out} is as it was", err=True)
+        raise SystemExit(EXIT_INTERRUPTED) from None
+    except _Terminated:
+        click.echo(f"terminated: nothing was written; {out} is as it was", err=True)
+        raise SystemExit(EXIT_TERMINATED) from None
+    finally:
+        if old is not None:
+            signal.signal(signal.SIGTERM, old)
+
+
+def _write_run_folder(folder: Path, scenario, scenario_file, run, records, code, units, model,
+                      bar):
     """Write every output of ``run`` into ``folder`` (a temporary folder); return the summary
-    document and the report text."""
+    document and the crew schedules."""
     from climbopt import plots, report
     from climbopt.energy import build_energy_map
-    from climbopt.results import Trajectory
     from climbopt.schedule import climb_schedule, default_step_m
 
-    trajs = [r for r in results if isinstance(r, Trajectory)]
+    trajs = run.trajectories()
     schedules, files = {}, {}
     dt = scenario.atmosphere.temperature_offset_k
     restriction = scenario.limits.cas_restriction
     for traj in trajs:
-        stem = report.result_stem(traj.method, traj.objective)
+        stem = report.result_stem(traj.method, traj.objective, traj.name)
         report.write_trajectory_csv(folder / f"{stem}.csv", traj, units, scenario.name)
         files[stem] = [f"{stem}.csv"]
-        if traj.converged:
+        if traj.ranked:
             sched = climb_schedule(traj, default_step_m(units), temperature_offset_k=dt,
                                    fit_above_m=restriction[1] if restriction else None)
             schedules[stem] = sched
@@ -243,14 +223,19 @@ def _write_run_folder(folder: Path, scenario, scenario_file, results, records, e
         figures += plots.save_figure(axes[0].figure, folder / "time_histories")
     bar.done()
 
+    costs = report.format_procedure_costs(run.procedure_costs, units)
     text = [f"climbopt {__version__}: {scenario.name}", "", report.format_table(records, units)]
+    if costs:
+        text += ["", costs]
     for sched in schedules.values():
         text += ["", report.format_schedule(sched, units)]
-    text += [""] + [f"error: {e}" for e in errors] + [f"Caution: {CAUTION}"]
+    text += [""] + [f"error: {e}" for e in run.errors] + [f"warning: {w}" for w in run.warnings]
+    text += [f"Caution: {CAUTION}"]
     report.write_text_atomic(folder / "report.txt", "\n".join(text) + "\n")
     doc = report.summary_document(
         records, scenario_name=scenario.name, scenario_path=scenario_file, units=units,
-        schedules=schedules, files=files, exit_code=code, errors=errors)
+        files=files, exit_code=code, errors=run.errors, warnings=run.warnings,
+        procedure_costs=run.procedure_costs)
     doc["figures"] = sorted(p.name for p in figures)
     report.write_summary_json(folder / "summary.json", doc)
     return doc, schedules
@@ -275,48 +260,61 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
 
     Writes summary.json, comparison.csv, report.txt, a per-point CSV and a climb schedule CSV for
     each result, and the plots (PNG and SVG). Exit codes: 0 ok, 2 bad input, 3 infeasible
-    mission, 4 solver failure (the energy-state results are still written).
+    mission, 4 solver failure (an unconverged, unverified or over-capacity optimisation; the
+    results are still written and labelled), 130 interrupted (Ctrl-C), 143 terminated.
     """
     from climbopt import report
     from climbopt.aircraft import build_model
+    from climbopt.pipeline import TimeLimitExceeded, run_mission
     from climbopt.rutowski import InfeasibleMission
 
     scenario = _load_for_command(scenario_file)
     out = Path(out_dir) if out_dir else _default_out(scenario_file)
-    _check_out_dir(out, "summary.json")
+    _check_out_dir(out)
     objectives = ["time", "fuel"] if objective == "both" else [objective]
     bar = _Progress(_progress_enabled(quiet or as_json))
-    try:
-        model = build_model(scenario)
-    except ValueError as exc:
-        _fail(f"{scenario_file}: the aircraft model cannot be built: {exc}", EXIT_BAD_INPUT)
-    try:
-        results, errors, code = _solve_all(scenario, model, method, objectives, bar)
-    except InfeasibleMission as exc:
-        bar.done()
-        _fail(f"{scenario_file}: infeasible mission: {exc}", EXIT_INFEASIBLE)
-    records = report.comparison(results)
-    with report.atomic_output_dir(out) as folder:
-        doc, schedules = _write_run_folder(folder, scenario, scenario_file, results, records,
-                                           errors, code, units, model, bar)
+    with _stoppable(out):
+        try:
+            model = build_model(scenario)
+        except ValueError as exc:
+            _fail(f"{scenario_file}: the aircraft model cannot be built: {exc}", EXIT_BAD_INPUT)
+        try:
+            result = run_mission(scenario, model, method=method, objectives=objectives,
+                                 schedules=False, progress=bar.callback)
+        except InfeasibleMission as exc:
+            bar.done()
+            _fail(f"{scenario_file}: infeasible mission: {exc}", EXIT_INFEASIBLE)
+        except TimeLimitExceeded as exc:
+            bar.done()
+            _fail(f"{scenario_file}: {exc}", EXIT_SOLVER_FAILURE)
+        finally:
+            bar.done()
+        code = EXIT_SOLVER_FAILURE if result.solver_failure else EXIT_OK
+        records = report.comparison(list(result.results))
+        with report.atomic_output_dir(out, "climbopt run") as folder:
+            doc, schedules = _write_run_folder(folder, scenario, scenario_file, result, records,
+                                               code, units, model, bar)
     if as_json:
         click.echo(report.dumps_summary(doc))
     else:
         click.echo(f"{scenario.name} ({units.upper()} units)")
         click.echo("")
         click.echo(report.format_table(records, units))
-        click.echo("")
-        for sched in schedules.values():
-            click.echo(f"{sched.method}, minimum {sched.objective}: "
-                       f"{report.schedule_summary(sched, units)}")
+        costs = report.format_procedure_costs(result.procedure_costs, units)
+        if costs:
+            click.echo("")
+            click.echo(costs)
         if not quiet:
             click.echo(f"\nWrote {out}/: summary.json, comparison.csv, report.txt, schedules "
                        f"(*_schedule.csv), per-point tables, plots ({len(doc['figures'])} files)")
-    for e in errors:
+    for w in result.warnings:
+        click.echo(f"warning: {w}", err=True)
+    for e in result.errors:
         click.echo(f"error: {e}", err=True)
     if code == EXIT_SOLVER_FAILURE:
-        click.echo("error: the energy-state results were still written and are labelled as "
-                   "such; unconverged rows are marked and not ranked.", err=True)
+        bad = [r.label for r in result.results if not r.ranked and r.method != "schedule"]
+        click.echo(f"error: not ranked (see the notes in summary.json): {', '.join(bad)}; the "
+                   "other results were still written and are labelled as such.", err=True)
     if not as_json:
         click.echo(f"Caution: {CAUTION}")
     if code:
@@ -341,7 +339,7 @@ def map_command(scenario_file, out_dir, units, quiet):
 
     scenario = _load_for_command(scenario_file)
     out = Path(out_dir) if out_dir else _default_out(scenario_file, "-map")
-    _check_out_dir(out, "map.json")
+    _check_out_dir(out)
     bar = _Progress(_progress_enabled(quiet))
     try:
         model = build_model(scenario)
@@ -349,7 +347,7 @@ def map_command(scenario_file, out_dir, units, quiet):
     except ValueError as exc:
         _fail(f"{scenario_file}: the energy map cannot be built: {exc}", EXIT_BAD_INPUT)
     f = emap.fields
-    with report.atomic_output_dir(out) as folder:
+    with report.atomic_output_dir(out, "climbopt map") as folder:
         bar.step("energy map")
         arrays = {
             "altitude_m": emap.altitude_m, "tas_m_s": np.asarray(emap.tas_m_s),

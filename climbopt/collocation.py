@@ -69,6 +69,7 @@ last iterate, labelled as not converged.
 
 from __future__ import annotations
 
+import contextlib
 import math
 import time as _time
 from dataclasses import dataclass
@@ -705,6 +706,43 @@ def _unpack(st: _Setup, zpart: np.ndarray, tau: np.ndarray) -> _Phase:
                   float(zpart[-1] * TIME_SCALE_S))
 
 
+@contextlib.contextmanager
+def _signals_surface():
+    """Make Ctrl-C (SIGINT) and SIGTERM during IPOPT stop the run, not fail the solve.
+
+    CasADi checks for signals during IPOPT, catches the exception the Python handler raises and
+    reports a failed solve ("NonIpopt_Exception_Thrown"), which would read as a solver failure.
+    Inside this block such a signal is recorded (and stops IPOPT); once IPOPT has returned it is
+    delivered again through the previous handler (KeyboardInterrupt for SIGINT). Only the main
+    thread can set handlers; elsewhere the block does nothing.
+    """
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    caught, previous = [], {}
+
+    def recorder(signum, frame):
+        caught.append(signum)
+        raise KeyboardInterrupt
+
+    for sig in (signal.SIGINT, signal.SIGTERM):
+        old = signal.getsignal(sig)
+        if callable(old):  # a Python handler (default SIGINT, or the command line's SIGTERM)
+            previous[sig] = old
+            signal.signal(sig, recorder)
+    try:
+        yield
+    finally:
+        for sig, old in previous.items():
+            signal.signal(sig, old)
+    if caught:
+        previous[caught[0]](caught[0], None)
+        raise KeyboardInterrupt
+
+
 def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init: tuple, ipopt_opts: dict,
                 report=None) -> _Solution:
     """Transcribe on ``mesh`` (climb-phase node taus from 0 to 1), solve, return the solution.
@@ -784,10 +822,12 @@ def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init: tuple, ipopt_opts: dict,
     solver = ca.nlpsol("climb", "ipopt", {"x": z, "f": J, "g": g}, opts)
     t_build = _time.perf_counter() - t0
     t0 = _time.perf_counter()
-    if mult is not None:
-        res = solver(x0=z0, lbx=lbz, ubx=ubz, lbg=lbg, ubg=ubg, lam_x0=mult[0], lam_g0=mult[1])
-    else:
-        res = solver(x0=z0, lbx=lbz, ubx=ubz, lbg=lbg, ubg=ubg)
+    with _signals_surface():
+        if mult is not None:
+            res = solver(x0=z0, lbx=lbz, ubx=ubz, lbg=lbg, ubg=ubg, lam_x0=mult[0],
+                         lam_g0=mult[1])
+        else:
+            res = solver(x0=z0, lbx=lbz, ubx=ubz, lbg=lbg, ubg=ubg)
     t_solve = _time.perf_counter() - t0
     stats = solver.stats()
     # IPOPT relaxes bounds by 1e-8 relative (bound_relax_factor); report values inside them.

@@ -17,37 +17,19 @@ import math
 import os
 import shutil
 import tempfile
-from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
 
 from climbopt import CAUTION, __version__
-from climbopt.results import COLUMNS, Trajectory
+from climbopt.results import COLUMNS, FailedRun, Method, Result, Trajectory
 from climbopt.units import kg_to_lb, m_s_to_kt, m_to_ft, m_to_nmi
 
 if TYPE_CHECKING:  # pragma: no cover
     from climbopt.schedule import ClimbSchedule
 
 UNIT_SYSTEMS = ("si", "us")
-
-
-@dataclass
-class FailedRun:
-    """A solve that produced no usable trajectory (kept so the table can show the failure).
-
-    ``status`` is the solver's status text, ``message`` the error message.
-    """
-
-    method: str
-    objective: str
-    status: str
-    message: str
-    iterations: int = 0
-    wall_s: float = 0.0
-    notes: list[str] = field(default_factory=list)
-    converged: bool = False
 
 
 # ------------------------------------------------------------------------------------------
@@ -70,6 +52,7 @@ DISPLAY_UNITS: dict[str, dict[str, tuple[str, object]]] = {
     "mass": {"si": ("kg", _identity), "us": ("lb", kg_to_lb)},
     "rate": {"si": ("m/s", _identity), "us": ("ft/min", _per_min(m_to_ft))},
     "angle": {"si": ("rad", _identity), "us": ("deg", np.degrees)},
+    "pressure": {"si": ("Pa", _identity), "us": ("psf", lambda x: x / 47.88025898033584)},
     "none": {"si": ("-", _identity), "us": ("-", _identity)},
 }
 
@@ -87,6 +70,9 @@ COLUMN_KINDS: dict[str, str] = {
     "fuel_used_kg": "mass",
     "distance_m": "distance",
     "throttle": "none",
+    "lift_coefficient": "none",
+    "load_factor": "none",
+    "dynamic_pressure_pa": "pressure",
 }
 
 
@@ -127,46 +113,38 @@ def column_header(key: str, units: str) -> str:
 # ------------------------------------------------------------------------------------------
 # comparison
 
-def verification_miss(verification: dict | None) -> float | None:
-    """The headline re-simulation miss of a verification record (:func:`climbopt.verify.resimulate`):
-    ``final_miss_relative``, the final-state miss expressed as energy height over the final
-    energy height (a fraction), or ``None``."""
-    if not verification:
-        return None
-    for key in ("final_miss_relative",):
-        value = verification.get(key)
-        if isinstance(value, (int, float)) and math.isfinite(value):
-            return float(value)
-    return None
-
-
-def comparison(results: list[Trajectory | FailedRun]) -> list[dict]:
-    """One record per result (SI), with the differences to the best converged row.
+def comparison(results: list[Result]) -> list[dict]:
+    """One record per result (SI), with the differences to the best ranked row.
 
     Each record holds the :meth:`Trajectory.summary` keys plus ``time_diff_pct`` and
-    ``fuel_diff_pct`` (percent above the least time and least fuel among *converged* rows;
-    ``None`` for unconverged rows, which are never ranked), ``best_time`` / ``best_fuel`` flags,
-    ``verification_miss`` and ``has_trajectory``.
+    ``fuel_diff_pct`` (percent above the least time and least fuel among *ranked* rows --
+    converged and free of issues; ``None`` for the others, which are never ranked),
+    ``best_time`` / ``best_fuel`` flags, ``verification_miss`` (the re-simulation's final miss
+    as a fraction of the final energy height, or None), ``label`` and ``has_trajectory``.
     """
     records = []
     for r in results:
         if isinstance(r, Trajectory):
             rec = r.summary()
             rec["has_trajectory"] = True
+            rec["verification_miss"] = (None if r.verification is None
+                                        else r.verification.final_miss_relative)
         else:
             rec = {
-                "method": r.method, "objective": r.objective, "time_s": None, "fuel_kg": None,
-                "distance_m": None, "final_mass_kg": None, "converged": False, "status": r.status,
+                "method": str(r.method), "objective": str(r.objective), "name": r.name,
+                "profile": "", "time_s": None, "fuel_kg": None, "distance_m": None,
+                "final_mass_kg": None, "converged": False, "ranked": False, "status": r.status,
                 "iterations": int(r.iterations), "wall_s": float(r.wall_s), "verification": None,
-                "zooms": 0, "notes": list(r.notes) + [r.message], "has_trajectory": False,
+                "zooms": 0, "notes": list(r.notes), "issues": [r.message],
+                "has_trajectory": False, "verification_miss": None,
             }
-        rec["verification_miss"] = verification_miss(rec.get("verification"))
+        rec["label"] = r.label
         records.append(rec)
-    ranked = [rec for rec in records if rec["converged"] and rec["time_s"] is not None]
+    ranked = [rec for rec in records if rec["ranked"]]
     best_time = min((rec["time_s"] for rec in ranked), default=None)
     best_fuel = min((rec["fuel_kg"] for rec in ranked), default=None)
     for rec in records:
-        if any(rec is x for x in ranked):
+        if rec["ranked"]:
             rec["time_diff_pct"] = _pct(rec["time_s"], best_time)
             rec["fuel_diff_pct"] = _pct(rec["fuel_kg"], best_fuel)
             rec["best_time"] = rec["time_s"] == best_time
@@ -198,7 +176,7 @@ def comparison_columns(units: str) -> list[tuple[str, str]]:
     m = DISPLAY_UNITS["mass"][units][0]
     d = DISPLAY_UNITS["distance"][units][0]
     return [
-        ("method", "method"), ("objective", "objective"), ("time_s", "time [s]"),
+        ("label", "result"), ("time_s", "time [s]"),
         ("fuel_kg", f"fuel [{m}]"), ("distance_m", f"distance [{d}]"),
         ("final_mass_kg", f"final mass [{m}]"), ("time_diff_pct", "time vs best [%]"),
         ("fuel_diff_pct", "fuel vs best [%]"), ("converged", "converged"),
@@ -234,20 +212,20 @@ def format_table(records: list[dict], units: str = "si") -> str:
         row = []
         for key, header in cols:
             v = disp[header]
-            if key in ("method", "objective"):
+            if key == "label":
                 row.append(str(v))
             elif key == "converged":
                 row.append("yes" if v else "NO")
             elif key == "iterations":
                 row.append(str(v))
             elif key in ("time_diff_pct", "fuel_diff_pct"):
-                if not rec["converged"]:
+                if not rec["ranked"]:
                     row.append("not ranked")
                 else:
                     best = rec["best_time"] if key == "time_diff_pct" else rec["best_fuel"]
                     row.append("best" if best else f"+{_fmt(v, 1)}")
             elif key == "verification_miss":
-                flag = "" if (rec.get("verification") or {}).get("ok", True) else " (FAILED)"
+                flag = "" if (rec.get("verification") or {}).get("ok", True) else " FAILED"
                 row.append(_fmt(v, 3) + flag)
             elif key == "wall_s":
                 row.append(_fmt(v, 2))
@@ -257,23 +235,32 @@ def format_table(records: list[dict], units: str = "si") -> str:
     widths = [max(len(r[i]) for r in lines) for i in range(len(cols))]
     text = []
     for j, r in enumerate(lines):
-        cells = [c.ljust(widths[i]) if i < 2 else c.rjust(widths[i]) for i, c in enumerate(r)]
+        cells = [c.ljust(widths[i]) if i < 1 else c.rjust(widths[i]) for i, c in enumerate(r)]
         text.append("  ".join(cells).rstrip())
         if j == 0:
             text.append("  ".join("-" * w for w in widths))
     if any(not rec["converged"] for rec in records):
         text.append("NO = not converged: shown for information, never ranked as optimal.")
     if any(not (rec.get("verification") or {}).get("ok", True) for rec in records):
-        text.append("FAILED = the re-simulation of the controls misses the path by more than "
-                    "the stated tolerance (see summary.json, verification).")
+        text.append("FAILED = the re-simulation of the controls misses the path or breaks a "
+                    "limit by more than the stated tolerance (see summary.json, verification).")
+    for rec in records:
+        if not rec["ranked"] and rec["issues"]:
+            text.append(f"not ranked: {rec['label']}: {'; '.join(rec['issues'])}")
     return "\n".join(text)
 
 
 # ------------------------------------------------------------------------------------------
 # files
 
-def result_stem(method: str, objective: str) -> str:
-    """File-name stem of one result, e.g. ``energy-state_time``."""
+def result_stem(method: str, objective: str, name: str = "") -> str:
+    """File-name stem of one result, e.g. ``energy-state_time``, ``best-schedule_fuel`` or
+    ``schedule_250-290-M0.74`` (a named schedule: its name with anything but letters, digits,
+    '.', '-' and '_' replaced by '-')."""
+    if str(method) == str(Method.SCHEDULE):
+        slug = "".join(c if (c.isascii() and (c.isalnum() or c in "._-")) else "-"
+                       for c in name)[:60].strip("-.") or "unnamed"
+        return f"schedule_{slug}"
     return f"{method}_{objective}".replace(" ", "-")
 
 
@@ -391,27 +378,46 @@ def write_comparison_csv(path, records: list[dict], units: str = "si",
                [h for _, h in cols], rows)
 
 
+def procedure_cost_records(costs) -> list[dict]:
+    """``summary.json`` records of what the procedure profile costs against the free optimum
+    (:class:`climbopt.pipeline.ProcedureCost`; energy-state solutions, SI)."""
+    return [{"objective": str(c.objective), "method": "energy-state",
+             "free_time_s": c.free.time_s, "free_fuel_kg": c.free.fuel_kg,
+             "procedure_time_s": c.procedure.time_s, "procedure_fuel_kg": c.procedure.fuel_kg,
+             "time_cost_s": c.time_s, "fuel_cost_kg": c.fuel_kg} for c in costs]
+
+
+def format_procedure_costs(costs, units: str = "si") -> str:
+    """What the procedure profile costs, one line per objective (empty without costs)."""
+    lines = []
+    for c in costs:
+        m_u = DISPLAY_UNITS["mass"][units][0]
+        f_free, f_proc, f_diff = (to_display("mass", x, units)[0]
+                                  for x in (c.free.fuel_kg, c.procedure.fuel_kg, c.fuel_kg))
+        lines.append(
+            f"procedure profile, minimum {c.objective} (energy-state): {c.procedure.time_s:,.1f} s "
+            f"and {f_proc:,.1f} {m_u} against {c.free.time_s:,.1f} s and {f_free:,.1f} {m_u} "
+            f"for the free profile (dives and overshoots allowed): the procedure costs "
+            f"{c.time_s:+,.1f} s ({_pct(c.procedure.time_s, c.free.time_s):+.2f} %) and "
+            f"{f_diff:+,.1f} {m_u} ({_pct(c.procedure.fuel_kg, c.free.fuel_kg):+.2f} %)")
+    return "\n".join(lines)
+
+
 def summary_document(records: list[dict], *, scenario_name: str, scenario_path: str,
-                     units: str = "si", schedules: dict | None = None,
-                     files: dict | None = None, exit_code: int = 0,
-                     errors: list[str] | None = None) -> dict:
+                     units: str = "si", files: dict | None = None, extra: dict | None = None,
+                     exit_code: int = 0, errors=(), warnings=(), procedure_costs=()) -> dict:
     """The ``summary.json`` document: SI keys per result (stable), display values in ``units``,
-    schedule summaries, files written, and the caution."""
+    files written per result, ``extra`` fields per result stem (e.g. its schedule), the errors
+    and warnings, what the procedure profile costs, and the caution."""
     _check_units(units)
-    schedules = schedules or {}
     files = files or {}
+    extra = extra or {}
     results = []
     for rec in records:
         out = {k: v for k, v in rec.items()}
-        stem = result_stem(rec["method"], rec["objective"])
+        stem = result_stem(rec["method"], rec["objective"], rec.get("name", ""))
         out["display"] = display_record(rec, units)
-        sched = schedules.get(stem)
-        if sched is not None:
-            out["schedule"] = {
-                "climb_cas_m_s": sched.climb_cas_m_s, "climb_mach": sched.climb_mach,
-                "crossover_altitude_m": sched.crossover_altitude_m,
-                "text": schedule_summary(sched, units),
-            }
+        out.update(extra.get(stem, {}))
         out["files"] = files.get(stem, [])
         results.append(out)
     return {
@@ -419,8 +425,10 @@ def summary_document(records: list[dict], *, scenario_name: str, scenario_path: 
         "scenario": {"name": scenario_name, "path": str(scenario_path)},
         "units": units,
         "results": results,
+        "procedure_cost": procedure_cost_records(procedure_costs),
         "exit_code": int(exit_code),
-        "errors": list(errors or []),
+        "errors": list(errors),
+        "warnings": list(warnings),
         "caution": CAUTION,
     }
 
@@ -456,6 +464,56 @@ def write_summary_json(path, document: dict) -> None:
     Path(path).write_text(dumps_summary(document) + "\n", encoding="utf-8")
 
 
+#: Marker file of a climbopt output folder: only a folder holding it (or an empty or missing
+#: one) is ever replaced by ``run`` or ``map``.
+OUTPUT_MARKER = ".climbopt-output"
+
+
+class OutputFolderError(ValueError):
+    """The output folder cannot be used (the message says why and what to do)."""
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+def _chmod_default(path: Path, directory: bool) -> None:
+    """Give ``path`` the permissions a plain create would (0o777 / 0o666 minus the umask);
+    temporary files and folders are created private (0o700 / 0o600) otherwise."""
+    with contextlib.suppress(OSError):
+        os.chmod(path, (0o777 if directory else 0o666) & ~_umask())
+
+
+def check_output_folder(out_dir) -> None:
+    """Refuse, before any work, an output folder that cannot or must not be replaced.
+
+    It must not be the current folder or above it; an existing folder must be empty or a
+    climbopt output folder (holding :data:`OUTPUT_MARKER`); its parent (the nearest existing
+    ancestor) must be writable. Raises :class:`OutputFolderError`.
+    """
+    out = Path(out_dir)
+    resolved = out.resolve()
+    cwd = Path.cwd().resolve()
+    if resolved == cwd or resolved in cwd.parents:
+        raise OutputFolderError(f"--out {out}: refusing to replace the current folder or one "
+                                "above it; give a folder for the results")
+    if out.exists() and not out.is_dir():
+        raise OutputFolderError(f"--out {out}: exists and is not a folder")
+    if out.is_dir() and any(out.iterdir()) and not (out / OUTPUT_MARKER).is_file():
+        raise OutputFolderError(
+            f"--out {out}: the folder exists and is not a climbopt output folder (no "
+            f"{OUTPUT_MARKER} file); it would be replaced as a whole, so choose another folder "
+            "or empty it")
+    parent = resolved.parent
+    while not parent.exists():
+        parent = parent.parent
+    if not parent.is_dir() or not os.access(parent, os.W_OK | os.X_OK):
+        raise OutputFolderError(f"--out {out}: cannot write in {parent} (permission denied); "
+                                "choose a folder you can write to")
+
+
 def write_text_atomic(path, text: str) -> None:
     """Write one file atomically: a temporary file in the same folder, then a rename."""
     path = Path(path)
@@ -463,6 +521,7 @@ def write_text_atomic(path, text: str) -> None:
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
             fh.write(text)
+        _chmod_default(Path(tmp), directory=False)
         os.replace(tmp, path)
     except BaseException:
         with contextlib.suppress(OSError):
@@ -471,22 +530,51 @@ def write_text_atomic(path, text: str) -> None:
 
 
 @contextlib.contextmanager
-def atomic_output_dir(out_dir):
-    """Context manager yielding a temporary sibling folder to write into; on success the folder
-    replaces ``out_dir`` by renames, on any exception it is deleted and ``out_dir`` is untouched.
+def _signals_blocked():
+    """Hold SIGINT and SIGTERM back while folders are swapped (delivered afterwards)."""
+    import signal
 
-    The swap renames an existing ``out_dir`` aside, renames the new folder into place, then
-    deletes the old one; if the second rename fails the old folder is renamed back. An existing
-    folder is therefore never left half-overwritten.
+    sigs = {signal.SIGINT, signal.SIGTERM}
+    try:
+        old = signal.pthread_sigmask(signal.SIG_BLOCK, sigs)
+    except (AttributeError, ValueError, OSError):  # pragma: no cover - no POSIX signals
+        yield
+        return
+    try:
+        yield
+    finally:
+        signal.pthread_sigmask(signal.SIG_SETMASK, old)
+
+
+@contextlib.contextmanager
+def atomic_output_dir(out_dir, what: str = "output"):
+    """Context manager yielding a temporary sibling folder to write into; on success the folder
+    replaces ``out_dir`` by renames, on any exception (an interrupt included) it is deleted and
+    ``out_dir`` is untouched.
+
+    The new folder gets the :data:`OUTPUT_MARKER` file (``what`` wrote it) and the permissions
+    of a plainly created folder (the user's umask). The swap renames an existing ``out_dir``
+    aside, renames the new folder into place, then deletes the old one, with SIGINT and SIGTERM
+    held back; if the second rename fails the old folder is renamed back. An existing folder is
+    therefore never left half-overwritten, and no temporary folder is left behind.
     """
     out_dir = Path(out_dir)
     out_dir.parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.new-", dir=out_dir.parent))
     try:
+        _chmod_default(tmp, directory=True)
+        (tmp / OUTPUT_MARKER).write_text(
+            json.dumps({"written_by": f"climbopt {__version__}", "what": what}) + "\n",
+            encoding="utf-8")
         yield tmp
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
+    with _signals_blocked():
+        _swap(tmp, out_dir)
+
+
+def _swap(tmp: Path, out_dir: Path) -> None:
     old = None
     try:
         if out_dir.exists():

@@ -431,11 +431,10 @@ def _classify(exc: BaseException) -> str:
         return "infeasible"
     if isinstance(exc, (ScenarioError, ModelDomainError, UnitError)):
         return "bad-input"
-    try:
-        from climbopt.collocation import SolverFailure
-    except ImportError:  # pragma: no cover - collocation not installed
-        SolverFailure = ()
-    if SolverFailure and isinstance(exc, SolverFailure):
+    from climbopt.collocation import SolverFailure
+    from climbopt.pipeline import TimeLimitExceeded
+
+    if isinstance(exc, (SolverFailure, TimeLimitExceeded)):
         return "solver-failure"
     return "error"
 
@@ -446,14 +445,10 @@ def _error_text(exc: BaseException, status: str) -> str:
 
 
 def _solve(scenario: Scenario, method: str, objective: str):
-    # Looked up at call time, so that tests can count solver calls by patching the module.
-    if method == "energy":
-        from climbopt import rutowski
+    """The case's result through the one pipeline (:func:`climbopt.pipeline.solve_case`)."""
+    from climbopt.pipeline import solve_case
 
-        return rutowski.solve_energy_state(scenario, objective)
-    from climbopt import collocation
-
-    return collocation.solve_collocation(scenario, objective)
+    return solve_case(scenario, method, objective)
 
 
 def run_case(scenario: Scenario, case: Case) -> dict:
@@ -468,8 +463,9 @@ def run_case(scenario: Scenario, case: Case) -> dict:
         traj = _solve(apply_case(scenario, case.values), case.method, case.objective)
         out.update(time_s=traj.time_s, fuel_kg=traj.fuel_kg, distance_m=traj.distance_m,
                    final_mass_kg=traj.final_mass_kg)
-        if not traj.converged:
-            out.update(status="solver-failure", error=f"not converged: {traj.status}")
+        if not traj.ranked:
+            out.update(status="solver-failure",
+                       error="; ".join(traj.issues) or f"not converged: {traj.status}")
     except Exception as exc:  # a failing case is a result, not a crash
         status = _classify(exc)
         out.update(status=status, error=_error_text(exc, status))

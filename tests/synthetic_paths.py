@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from climbopt.results import Trajectory, Zoom
+from climbopt.results import StateValues, Trajectory, Verification, Zoom
 
 G0 = 9.80665
 
@@ -48,6 +48,7 @@ def straight_climb(method="energy-state", objective="time", *, top_m=11000.0, ca
         "flight_path_angle_rad": gamma, "mass_kg": mass0_kg - fuel, "fuel_used_kg": fuel,
         "distance_m": dist, "throttle": np.ones_like(h),
     }
+    table.update(_lift_columns(h, v, mass0_kg - fuel, temperature_offset_k))
     return Trajectory(method=method, objective=objective, table=table, converged=converged,
                       status="optimal" if converged else "max iterations", iterations=0 if
                       method == "energy-state" else 25, wall_s=0.1)
@@ -65,7 +66,18 @@ def simple_table(n=50, *, top_m=5000.0, tas_m_s=120.0, duration_s=300.0, fuel_kg
         "energy_height_m": h + v**2 / (2 * G0), "ps_m_s": np.full(n, top_m / duration_s),
         "flight_path_angle_rad": np.full(n, 0.1), "mass_kg": mass0_kg - fuel,
         "fuel_used_kg": fuel, "distance_m": v * t, "throttle": np.ones(n),
+        "lift_coefficient": np.full(n, 0.5), "load_factor": np.ones(n),
+        "dynamic_pressure_pa": np.full(n, 8000.0),
     }
+
+
+def _lift_columns(h, v, mass_kg, temperature_offset_k, area_m2=120.0):
+    """Dynamic pressure, 1 g lift coefficient (wing area ``area_m2``) and load factor 1."""
+    from climbopt.atmosphere import standard_atmosphere
+
+    q = 0.5 * standard_atmosphere(h, temperature_offset_k).density_kg_m3 * v * v
+    return {"dynamic_pressure_pa": q, "lift_coefficient": mass_kg * G0 / (q * area_m2),
+            "load_factor": np.ones_like(h)}
 
 
 def with_zoom(traj: Trajectory) -> Trajectory:
@@ -77,5 +89,15 @@ def with_zoom(traj: Trajectory) -> Trajectory:
                 from_tas_m_s=float(tb["tas_m_s"][i]) - 20.0,
                 to_altitude_m=float(tb["altitude_m"][i]), to_tas_m_s=float(tb["tas_m_s"][i]),
                 kind="dive", reason="branch jump", index=i)
-    return Trajectory(method=traj.method, objective=traj.objective, table=dict(tb),
-                      converged=traj.converged, zooms=[zoom])
+    return traj.with_(zooms=(zoom,))
+
+
+def verification(final_miss_relative: float, ok: bool) -> Verification:
+    """A re-simulation record with a given final miss (fraction) and verdict (no simulation)."""
+    zero = StateValues(0.0, 0.0, 0.0, 0.0, 0.0)
+    return Verification(ok=ok, message="synthetic", final_state_miss=zero,
+                        simulated_final_state=zero, final_miss_energy_m=final_miss_relative * 1e4,
+                        final_miss_relative=final_miss_relative, final_energy_height_m=1e4,
+                        largest_departure_relative=final_miss_relative, departure_time_s=None,
+                        limit_excess={}, worst_limit="", final_miss_tolerance=1e-3,
+                        limit_tolerance=1e-2, steps=0)

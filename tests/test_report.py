@@ -10,9 +10,8 @@ import pytest
 
 from climbopt import CAUTION
 from climbopt import report
-from climbopt.report import FailedRun
-from climbopt.results import COLUMNS, Trajectory
-from synthetic_paths import simple_table
+from climbopt.results import COLUMNS, FailedRun, Trajectory
+from synthetic_paths import simple_table, verification
 
 # Exact unit definitions (NIST SP 811, appendix B): 1 ft = 0.3048 m, 1 lb = 0.45359237 kg,
 # 1 nmi = 1852 m, 1 kt = 1852 m / 3600 s.
@@ -100,7 +99,7 @@ def test_comparison_csv_and_summary_json(tmp_path):
     """comparison.csv in US units holds the fuel in lb (hand conversion); summary.json keeps SI
     keys, has the caution, and writes NaN as null."""
     traj = _traj("energy-state", "time", 300.0, 500.0)
-    traj.verification = {"final_miss_relative": float("nan"), "ok": False}
+    traj = traj.with_(verification=verification(float("nan"), False))
     rows = report.comparison([traj])
     report.write_comparison_csv(tmp_path / "c.csv", rows, "us", "demo")
     header, body = report.read_csv(tmp_path / "c.csv")
@@ -130,7 +129,7 @@ def test_atomic_output_dir_replaces_whole_folder(tmp_path):
     with report.atomic_output_dir(out) as tmp:
         (tmp / "new.txt").write_text("new")
         assert not (out / "new.txt").exists()   # nothing visible before the swap
-    assert sorted(p.name for p in out.iterdir()) == ["new.txt"]
+    assert sorted(p.name for p in out.iterdir()) == [report.OUTPUT_MARKER, "new.txt"]
     assert sorted(p.name for p in tmp_path.iterdir()) == ["out"]
 
 
@@ -198,16 +197,18 @@ def test_column_headers_us():
 def test_verification_miss_in_table():
     """The re-simulation miss (fraction) is shown in percent; a failed check is flagged."""
     good = _traj("collocation", "time", 300.0, 500.0)
-    good.verification = {"final_miss_relative": 2.5e-4, "ok": True}
+    good = good.with_(verification=verification(2.5e-4, True))
     bad = _traj("collocation", "fuel", 320.0, 450.0)
-    bad.verification = {"final_miss_relative": 3.0e-2, "ok": False}
+    bad = bad.with_(verification=verification(3.0e-2, False)).with_issues("re-simulation FAILED")
     rows = report.comparison([good, bad])
     assert rows[0]["verification_miss"] == pytest.approx(2.5e-4)
+    assert rows[1]["ranked"] is False and rows[1]["fuel_diff_pct"] is None
     text = report.format_table(rows, "si")
     lines = text.splitlines()
     assert lines[2].endswith("0.025")
-    assert lines[3].endswith("3.000 (FAILED)")
+    assert lines[3].endswith("3.000 FAILED")
     assert "re-simulation" in text
+    assert "not ranked: collocation, minimum fuel: re-simulation FAILED" in text
     assert report.display_record(rows[1], "si")["re-sim miss [%]"] == pytest.approx(3.0)
 
 
