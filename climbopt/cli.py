@@ -546,10 +546,10 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
         if parquet:
             written.append(sw.write_parquet(table, folder / "sweep.parquet"))
         if not no_plots:
-            from climbopt.plots import save_figure
+            from climbopt import plots
 
-            for stem, fig in sw.sweep_figures(plan, result.rows).items():
-                written += [p for p in save_figure(fig, folder / stem) if p.suffix == ".png"]
+            for stem, fig in plots.sweep_figures(plan, result.rows).items():
+                written += [p for p in plots.save_figure(fig, folder / stem) if p.suffix == ".png"]
     except sw.SweepError as exc:
         _fail(str(exc), EXIT_BAD_INPUT)
     except Exception as exc:  # outputs after the table: report, keep the table

@@ -11,20 +11,19 @@ for minimum time, light ochre for minimum fuel) and marker shape, the two method
 
 from __future__ import annotations
 
+import math
+
 import matplotlib
+import numpy as np
+from matplotlib.colors import LinearSegmentedColormap
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.patches import Patch
 
-matplotlib.use("Agg")  # files only; must precede pyplot
-
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-from matplotlib.colors import LinearSegmentedColormap  # noqa: E402
-from matplotlib.lines import Line2D  # noqa: E402
-from matplotlib.patches import Patch  # noqa: E402
-
-from climbopt import CAUTION  # noqa: E402
-from climbopt.atmosphere import standard_atmosphere  # noqa: E402
-from climbopt.results import Trajectory  # noqa: E402
-from climbopt.units import kg_to_lb, m_s_to_kt, m_to_ft  # noqa: E402
+from climbopt import CAUTION
+from climbopt.atmosphere import standard_atmosphere
+from climbopt.results import Trajectory
+from climbopt.units import kg_to_lb, m_s_to_kt, m_to_ft
 
 __all__ = [
     "path_style",
@@ -68,6 +67,24 @@ LIMIT_LINESTYLES = {
     "data": ":", "altitude": "-", "stall": "-", "dynamic_pressure": "-.",
     "mach": (0, (8, 2, 2, 2)), "cas": (0, (4, 2)), "cas_restriction": (0, (1, 1)),
 }
+
+def _figure(**kwargs) -> Figure:
+    """A new figure outside pyplot's global state (nothing to close, the user's backend and
+    open figures untouched; saving picks the canvas for the file format)."""
+    return Figure(**kwargs)
+
+
+def _sweep():
+    from climbopt import sweep
+
+    return sweep
+
+
+def _from_si(value, unit):
+    from climbopt.units import from_si
+
+    return from_si(value, unit)
+
 
 def path_style(method: str, objective: str) -> dict:
     """Line properties of one result: colour by objective, line style and marker fill by method."""
@@ -155,7 +172,8 @@ def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str
         raise ValueError(f"x must be 'mach' or 'tas', got {x!r}")
     u = _axis_units(units)
     if ax is None:
-        fig, ax = plt.subplots(figsize=(10.0, 6.0))
+        fig = _figure(figsize=(10.0, 6.0))
+        ax = fig.subplots()
         # fixed margins (room for the legend on the right): saving needs no tight-bbox pass
         fig.subplots_adjust(left=0.07, right=0.74, bottom=0.1, top=0.93)
     alt_fn, alt_label = u["alt"]
@@ -315,7 +333,8 @@ def plot_time_histories(trajectories, *, units: str = "si", axes=None):
     """
     u = _axis_units(units)
     if axes is None:
-        fig, axes = plt.subplots(len(TIME_PANELS), 1, sharex=True, figsize=(8.0, 9.0))
+        fig = _figure(figsize=(8.0, 9.0))
+        axes = fig.subplots(len(TIME_PANELS), 1, sharex=True)
         fig.subplots_adjust(left=0.11, right=0.97, bottom=0.07, top=0.95, hspace=0.12)
     axes = np.asarray(axes).ravel()
     if axes.size != len(TIME_PANELS):
@@ -374,6 +393,126 @@ def save_figure(fig, path_stem, formats=("png", "svg"), dpi: int = 110,
         path = Path(f"{path_stem}.{fmt}")
         fig.savefig(path, dpi=dpi, bbox_inches="tight" if tight else None)
         written.append(path)
-    plt.close(fig)
     return written
 
+
+# ------------------------------------------------------------------------------------------
+# sweeps (climbopt.sweep)
+
+
+def _shown(value_si: float, unit: str) -> str:
+    return f"{_from_si(value_si, unit):g} {unit}".strip() if unit else f"{value_si:g}"
+
+
+def _display_units(plan) -> dict[str, str]:
+    """Plot unit of each varied input: the unit the user wrote, else SI."""
+    return {v.name: (v.unit or p.si_unit) for v, p in zip(plan.variations, plan.parameters)}
+
+
+def _group_label(others, values, units) -> str:
+    return ", ".join(f"{q.name} {_shown(v, units[q.name])}" for q, v in zip(others, values))
+
+
+def plot_parameter(plan, rows: list[dict], name: str, axes=None):
+    """Time [s] and fuel [kg] against the varied input ``name`` (in the unit the user wrote),
+    one line per combination of the other varied inputs; failed cases are crosses along the
+    bottom edge (``gid="failed"``). Only the rows of ``plan`` with its main objective are used.
+
+    ``axes``: two matplotlib axes (time, fuel) or None for a new figure. Returns the two axes.
+    """
+    params = {p.name: p for p in plan.parameters}
+    p = params[name]
+    others = [q for q in plan.parameters if q.name != name]
+    units = _display_units(plan)
+    keys = {c.key for c in plan.cases}
+    main = [r for r in rows if r["key"] in keys and r["objective"] == plan.objective]
+    if axes is None:
+        axes = _figure(figsize=(6.4, 6.0)).subplots(2, 1, sharex=True)
+    ax_t, ax_f = axes
+    groups = _sweep()._groups(main, [q.column for q in others])
+    palette = matplotlib.colormaps["viridis"]
+    failed_x: list[float] = []
+    for gi, (gvals, grows) in enumerate(groups):
+        grows = sorted(grows, key=lambda r: r[p.column])
+        x = [_from_si(r[p.column], units[name]) if units[name] else r[p.column] for r in grows]
+        ok = [r["status"] == "ok" for r in grows]
+        colour = palette(gi / max(1, len(groups) - 1)) if len(groups) > 1 else "#233d4d"
+        label = _group_label(others, gvals, units) or None
+        for ax, col in ((ax_t, "time_s"), (ax_f, "fuel_kg")):
+            y = [r[col] if good else math.nan for r, good in zip(grows, ok)]
+            ax.plot(x, y, "-o", color=colour, markersize=3.5, linewidth=1.2, gid="sweep",
+                    label=label if ax is ax_t else None)
+        failed_x += [xi for xi, good in zip(x, ok) if not good]
+    for ax in (ax_t, ax_f):
+        if failed_x:
+            ax.plot(failed_x, [0.03] * len(failed_x), "x", color="#b03a2e", markersize=6,
+                    transform=ax.get_xaxis_transform(), clip_on=False, gid="failed",
+                    label="failed case" if ax is ax_t else None)
+        ax.grid(True, color="#dddddd", linewidth=0.5)
+    ax_t.set_ylabel("time [s]")
+    ax_f.set_ylabel("fuel [kg]")
+    ax_f.set_xlabel(f"{p.label} [{units[name]}]" if units[name] else p.label)
+    if len(groups) <= 8 and (others or failed_x):
+        ax_t.legend(fontsize=7, loc="best")
+    n_bad = sum(r["status"] != "ok" for r in main)
+    ax_t.set_title(f"{plan.scenario.name}\n{_sweep().METHODS[plan.method]}, objective {plan.objective}"
+                   + (f" ({n_bad} failed case{'s' if n_bad != 1 else ''})" if n_bad else ""),
+                   fontsize=9)
+    return ax_t, ax_f
+
+
+def plot_tradeoff(plan, rows: list[dict], ax=None):
+    """Fuel [kg] against time [s] along the cost weight (the time-fuel trade-off curve,
+    ``gid="tradeoff"``), one curve per combination of the other varied inputs; non-dominated
+    points filled, dominated ones hollow; the minimum-time and minimum-fuel solutions marked
+    (``gid="min_time"``, ``gid="min_fuel"``). Returns the axes."""
+    if "cost_weight" not in [v.name for v in plan.variations]:
+        raise ValueError("the trade-off curve needs a sweep over cost_weight")
+    others = [q for q in plan.parameters if q.name != "cost_weight"]
+    units = _display_units(plan)
+    keys = {c.key for c in plan.cases}
+    groups = _sweep()._groups([r for r in rows if r["key"] in keys], [q.column for q in others])
+    if ax is None:
+        ax = _figure(figsize=(6.4, 5.0)).subplots()
+    palette = matplotlib.colormaps["viridis"]
+    for gi, (gvals, grows) in enumerate(groups):
+        curve = _sweep().tradeoff_curve(grows)
+        colour = (palette(gi / max(1, len(groups) - 1)) if len(groups) > 1
+                  else OBJECTIVE_COLOURS["weighted"])
+        label = _group_label(others, gvals, units) or "minimum fuel + w x time"
+        ax.plot(curve["time_s"], curve["fuel_kg"], "-", color=colour, linewidth=1.2,
+                label=label, gid="tradeoff")
+        front = set(curve["front"])
+        for i, (t, f) in enumerate(zip(curve["time_s"], curve["fuel_kg"])):
+            ax.plot(t, f, OBJECTIVE_MARKERS["weighted"], markersize=4, color=colour,
+                    markerfacecolor=colour if i in front else "white")
+        for obj, words in (("time", "minimum time"), ("fuel", "minimum fuel")):
+            a = curve[f"min_{obj}"]
+            if a is not None:
+                ax.plot(a["time_s"], a["fuel_kg"], OBJECTIVE_MARKERS[obj], markersize=9,
+                        color=OBJECTIVE_COLOURS[obj], markeredgecolor="black",
+                        label=words if gi == 0 else None, gid=f"min_{obj}")
+    ax.set_xlabel("time [s]")
+    ax.set_ylabel("fuel [kg]")
+    ax.grid(True, color="#dddddd", linewidth=0.5)
+    ax.legend(fontsize=7, loc="best")
+    ax.set_title(f"{plan.scenario.name}\ntime-fuel trade-off over the cost weight "
+                 f"({_sweep().METHODS[plan.method]}); hollow: dominated", fontsize=9)
+    return ax
+
+
+def sweep_figures(plan, rows: list[dict]) -> dict:
+    """All figures of a sweep by file stem: ``sweep_<name>`` for each varied input and
+    ``tradeoff`` when the cost weight is varied. Nothing is saved here."""
+    figures = {}
+    for p in plan.parameters:
+        fig = _figure(figsize=(6.4, 6.0))
+        axes = fig.subplots(2, 1, sharex=True)
+        plot_parameter(plan, rows, p.name, axes)
+        figures[f"sweep_{p.name}"] = fig
+    if "cost_weight" in [v.name for v in plan.variations]:
+        fig = _figure(figsize=(6.4, 5.0))
+        ax = fig.subplots()
+        plot_tradeoff(plan, rows, ax)
+        figures["tradeoff"] = fig
+    return figures

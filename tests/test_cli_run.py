@@ -33,7 +33,7 @@ def _no_traceback(result):
 
 
 def test_demos_found():
-    """The three demo scenarios of the foundation issue exist."""
+    """The three bundled demo scenarios (invented aircraft) exist."""
     assert len(DEMOS) >= 3
 
 

@@ -29,7 +29,7 @@ KT = 1852.0 / 3600.0  # m/s per knot
 G0 = 9.80665  # standard gravity [m/s^2]
 
 # Business jet of Anderson, Aircraft Performance and Design (1999), examples 5.16-5.18
-# (inputs from memory, see CHECK_VALUES.md and the header of tests/data/anderson_bizjet.toml).
+# (inputs from memory; see the header of tests/data/anderson_bizjet.toml).
 BJ_WEIGHT_N = 73000 * LB * G0
 BJ_AREA_M2 = 950 * FT**2
 BJ_CD0 = 0.015
@@ -48,7 +48,8 @@ def bizjet(bizjet_scenario):
 
 def _closed_form_max_climb(weight_n, area_m2, cd0, k, thrust_n, rho):
     """Anderson (1999) ch. 5: speed and value of the maximum rate of climb of a jet with a
-    parabolic polar and thrust independent of speed (formulas as in CHECK_VALUES.md)."""
+    parabolic polar and thrust independent of speed (Anderson 1999, sec. 5.3-5.4; formulas
+    from memory, they are standard)."""
     ld_max = 1.0 / (2.0 * np.sqrt(k * cd0))
     tw = thrust_n / weight_n
     ws = weight_n / area_m2

@@ -161,3 +161,16 @@ def test_time_histories_throttle_axis_full_range():
     lo, hi = axes[3].get_ylim()
     assert lo <= 0.0 and hi >= 1.0
     assert axes[3].yaxis.get_major_formatter().get_offset() == ""
+
+
+def test_import_keeps_the_users_backend():
+    """Importing climbopt.plots leaves the user's matplotlib backend alone (notebooks keep their
+    inline backend): checked in a fresh interpreter that chose the SVG backend first."""
+    import subprocess
+    import sys
+
+    code = ("import matplotlib; matplotlib.use('svg'); import climbopt.plots; "
+            "print(matplotlib.get_backend())")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True, env={"PATH": ""})
+    assert out.stdout.strip() == "svg"

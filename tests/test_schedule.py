@@ -18,8 +18,8 @@ KT = 1852.0 / 3600.0       # m/s, exact (NIST SP 811)
 
 
 @pytest.mark.parametrize("cas_kt, mach, expected_ft", [
-    # Standard-day crossover altitudes, common practice, no single source
-    # (shared/reference/CHECK_VALUES.md): 310 kt / M 0.78 at about 27,800 ft,
+    # Standard-day crossover altitudes, common practice, no single source (computed values):
+    # 310 kt / M 0.78 at about 27,800 ft,
     # 270 kt / M 0.70 at about 28,800 ft. Tolerance 100 ft: "about" plus the 0.13 % between the
     # geopotential pressure altitude crews quote and our geometric altitude.
     (310.0, 0.78, 27_800.0),
@@ -52,7 +52,7 @@ def test_default_step():
 
 def test_schedule_recovers_310_078():
     """A climb flown at 310 kt then M 0.78 is recognised as that schedule, crossover near
-    27,800 ft (CHECK_VALUES.md, common practice); rows at round 2,000 ft steps, CAS below the
+    27,800 ft (common practice, no source); rows at round 2,000 ft steps, CAS below the
     crossover and Mach above, time from start = altitude / rate by construction."""
     rate = 12.0
     traj = straight_climb(cas_m_s=310 * KT, mach=0.78, top_m=11_000.0, rate_m_s=rate, n=400)

@@ -20,6 +20,7 @@ from click.testing import CliRunner
 
 from climbopt import CAUTION
 from climbopt import rutowski
+from climbopt import plots
 from climbopt import sweep as sw
 from climbopt.cli import cli
 from climbopt.scenario import ScenarioError, load_scenario
@@ -293,9 +294,7 @@ def test_serial_table_is_in_case_order_with_physical_trends(serial_rows):
 
 
 def test_parameter_plots_show_groups_and_failed_cases(grid_plan, serial_rows):
-    from climbopt.plots import plt
-
-    figs = sw.sweep_figures(grid_plan, serial_rows)
+    figs = plots.sweep_figures(grid_plan, serial_rows)
     assert sorted(figs) == ["sweep_mass", "sweep_target_altitude"]
     ax_t, _ = figs["sweep_target_altitude"].axes
     lines = [ln for ln in ax_t.get_lines() if ln.get_gid() == "sweep"]
@@ -304,8 +303,6 @@ def test_parameter_plots_show_groups_and_failed_cases(grid_plan, serial_rows):
     assert math.isnan(lines[0].get_ydata()[2])  # the infeasible case leaves a gap
     (failed,) = [ln for ln in ax_t.get_lines() if ln.get_gid() == "failed"]
     assert list(failed.get_xdata()) == pytest.approx([45000, 45000])
-    for fig in figs.values():
-        plt.close(fig)
 
 
 def test_local_pool_gives_the_identical_table(grid_plan, serial_rows, tmp_path):
@@ -454,10 +451,10 @@ def test_tradeoff_ends_match_the_single_objective_solutions(tradeoff, intercepto
 
 
 def test_plots_of_a_sweep_and_the_tradeoff(tradeoff):
-    from climbopt.plots import plt, save_figure
+    from climbopt.plots import save_figure
 
     plan, res, folder = tradeoff
-    figs = sw.sweep_figures(plan, res.rows)
+    figs = plots.sweep_figures(plan, res.rows)
     assert sorted(figs) == ["sweep_cost_weight", "tradeoff"]
     ax = figs["tradeoff"].axes[0]
     by_gid = {}
@@ -477,7 +474,6 @@ def test_plots_of_a_sweep_and_the_tradeoff(tradeoff):
     assert list(line.get_xdata()) == [0, 1, 3, 10, 30, 100, 10000]  # kg/s as written
     assert ax_f.get_xlabel() == "cost weight (fuel per second of time) [kg/s]"
     written = save_figure(figs["tradeoff"], folder / "tradeoff")
-    plt.close(figs["sweep_cost_weight"])
     png = next(p for p in written if p.suffix == ".png").read_bytes()
     assert png[:8] == b"\x89PNG\r\n\x1a\n" and len(png) > 5000
 
