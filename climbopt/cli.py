@@ -331,8 +331,6 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
 def map_command(scenario_file, out_dir, units, quiet):
     """Write the energy-state fields of SCENARIO (Ps, fuel flow, Ps / fuel flow, envelope) at
     the start mass over altitude x true airspeed, as energy_map.npz and .csv, and their plots."""
-    import numpy as np
-
     from climbopt import plots, report
     from climbopt.aircraft import build_model
     from climbopt.energy import build_energy_map
@@ -346,39 +344,16 @@ def map_command(scenario_file, out_dir, units, quiet):
         emap = build_energy_map(scenario, model=model)
     except ValueError as exc:
         _fail(f"{scenario_file}: the energy map cannot be built: {exc}", EXIT_BAD_INPUT)
-    f = emap.fields
-    with report.atomic_output_dir(out, "climbopt map") as folder:
+    with _stoppable(out), report.atomic_output_dir(out, "climbopt map") as folder:
         bar.step("energy map")
-        arrays = {
-            "altitude_m": emap.altitude_m, "tas_m_s": np.asarray(emap.tas_m_s),
-            "mach": np.asarray(emap.mach), "energy_height_m": np.asarray(emap.energy_height_m),
-            "ps_m_s": np.asarray(f.ps_m_s), "fuel_flow_kg_s": np.asarray(f.fuel_flow_kg_s),
-            "fuel_specific_energy_m_kg": np.asarray(f.fuel_specific_energy_m_kg),
-            "feasible": np.asarray(emap.feasible),
-        }
-        arrays.update({f"limit_{k}": np.asarray(v) for k, v in f.limits.items()})
-        np.savez_compressed(folder / "energy_map.npz", **arrays)
-        _write_map_csv(folder / "energy_map.csv", emap, units, scenario.name)
+        doc = report.write_energy_map(folder, emap, units, scenario.name, scenario_file)
         figures = []
         for name, fn, x in (("ps_mach", plots.plot_ps_map, "mach"),
                             ("ps_tas", plots.plot_ps_map, "tas"),
                             ("fs_mach", plots.plot_fs_map, "mach")):
             ax = fn(emap, [], x=x, units=units)
             figures += plots.save_figure(ax.figure, folder / name)
-        feasible_ps = np.where(emap.feasible, f.ps_m_s, np.nan)
-        doc = {
-            "climbopt_version": __version__,
-            "scenario": {"name": scenario.name, "path": str(scenario_file)},
-            "units": units,
-            "mass_kg": emap.mass_kg, "load_factor": emap.load_factor,
-            "throttle": emap.throttle, "rating": emap.rating,
-            "temperature_offset_k": emap.temperature_offset_k,
-            "shape": list(emap.shape),
-            "max_ps_m_s": float(np.nanmax(feasible_ps)) if np.isfinite(feasible_ps).any() else None,
-            "feasible_fraction": float(np.mean(emap.feasible)),
-            "files": ["energy_map.npz", "energy_map.csv"] + sorted(p.name for p in figures),
-            "caution": CAUTION,
-        }
+        doc["files"] += sorted(p.name for p in figures)
         report.write_summary_json(folder / "map.json", doc)
         bar.done()
     click.echo(f"{scenario.name}: energy map {emap.shape[0]} altitudes x {emap.shape[1]} speeds "
@@ -387,37 +362,6 @@ def map_command(scenario_file, out_dir, units, quiet):
         click.echo(f"Wrote {out}/: map.json, energy_map.npz, energy_map.csv, plots "
                    f"({len(figures)} files)")
     click.echo(f"Caution: {CAUTION}")
-
-
-def _write_map_csv(path, emap, units, scenario_name):
-    """One row per grid point: altitude, TAS, Mach, Ps, fuel flow, Ps / fuel flow, feasible."""
-    import numpy as np
-
-    from climbopt import report
-
-    alt, alt_u = report.to_display("altitude", emap.altitude_m, units)
-    tas, spd_u = report.to_display("speed", np.asarray(emap.tas_m_s), units)
-    ps, ps_u = report.to_display("rate", np.asarray(emap.fields.ps_m_s), units)
-    ff, m_u = report.to_display("mass", np.asarray(emap.fields.fuel_flow_kg_s), units)
-    fs = np.asarray(emap.fields.fuel_specific_energy_m_kg)
-    fs_u = "m/kg"
-    if units == "us":
-        from climbopt.units import lb_to_kg, m_to_ft
-
-        fs, fs_u = m_to_ft(fs) * lb_to_kg(1.0), "ft/lb"
-    header = [f"altitude [{alt_u}]", f"TAS [{spd_u}]", "Mach", f"Ps [{ps_u}]",
-              f"fuel flow [{m_u}/s]", f"Ps / fuel flow [{fs_u}]", "feasible"]
-    feas = np.asarray(emap.feasible)
-    mach = np.asarray(emap.mach)
-    lines = [f"# climbopt {__version__}: energy map; scenario: {scenario_name}; units: {units}; "
-             f"mass {emap.mass_kg:.1f} kg, load factor {emap.load_factor:g}, rating {emap.rating}",
-             f"# caution: {CAUTION}", ",".join(header)]
-    nh, nv = emap.shape
-    for i in range(nh):
-        for j in range(nv):
-            lines.append(f"{alt[i]:.1f},{tas[i, j]:.2f},{mach[i, j]:.4f},{ps[i, j]:.3f},"
-                         f"{ff[i, j]:.5f},{fs[i, j]:.4f},{'true' if feas[i, j] else 'false'}")
-    Path(path).write_text("\n".join(lines) + "\n", encoding="utf-8")
 
 
 # ---- climbopt sweep (trade studies; the logic lives in climbopt/sweep.py) --------------------

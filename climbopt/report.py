@@ -464,6 +464,66 @@ def write_summary_json(path, document: dict) -> None:
     Path(path).write_text(dumps_summary(document) + "\n", encoding="utf-8")
 
 
+def write_energy_map(folder, emap, units: str, scenario_name: str, scenario_path) -> dict:
+    """Write an energy map's fields as ``energy_map.npz`` (SI arrays, one per field and limit)
+    and ``energy_map.csv`` (one row per grid point, in ``units``, written in one vectorised
+    pass); return the ``map.json`` document (conditions, files, caution)."""
+    folder = Path(folder)
+    f = emap.fields
+    arrays = {
+        "altitude_m": emap.altitude_m, "tas_m_s": np.asarray(emap.tas_m_s),
+        "mach": np.asarray(emap.mach), "energy_height_m": np.asarray(emap.energy_height_m),
+        "ps_m_s": np.asarray(f.ps_m_s), "fuel_flow_kg_s": np.asarray(f.fuel_flow_kg_s),
+        "fuel_specific_energy_m_kg": np.asarray(f.fuel_specific_energy_m_kg),
+        "feasible": np.asarray(emap.feasible),
+    }
+    arrays.update({f"limit_{k}": np.asarray(v) for k, v in f.limits.items()})
+    np.savez_compressed(folder / "energy_map.npz", **arrays)
+    _write_map_csv(folder / "energy_map.csv", emap, units, scenario_name)
+    feasible_ps = np.where(emap.feasible, f.ps_m_s, np.nan)
+    return {
+        "climbopt_version": __version__,
+        "scenario": {"name": scenario_name, "path": str(scenario_path)},
+        "units": units,
+        "mass_kg": emap.mass_kg, "load_factor": emap.load_factor,
+        "throttle": emap.throttle, "rating": emap.rating,
+        "temperature_offset_k": emap.temperature_offset_k,
+        "shape": list(emap.shape),
+        "max_ps_m_s": float(np.nanmax(feasible_ps)) if np.isfinite(feasible_ps).any() else None,
+        "feasible_fraction": float(np.mean(emap.feasible)),
+        "files": ["energy_map.npz", "energy_map.csv"],
+        "caution": CAUTION,
+    }
+
+
+def _write_map_csv(path, emap, units, scenario_name):
+    """One row per grid point: altitude, TAS, Mach, Ps, fuel flow, Ps / fuel flow, feasible."""
+    shape = emap.shape
+    alt, alt_u = to_display("altitude", np.broadcast_to(emap.altitude_m[:, None], shape), units)
+    tas, spd_u = to_display("speed", np.asarray(emap.tas_m_s), units)
+    ps, ps_u = to_display("rate", np.asarray(emap.fields.ps_m_s), units)
+    ff, m_u = to_display("mass", np.asarray(emap.fields.fuel_flow_kg_s), units)
+    fs = np.asarray(emap.fields.fuel_specific_energy_m_kg)
+    fs_u = "m/kg"
+    if units == "us":
+        from climbopt.units import lb_to_kg, m_to_ft
+
+        fs, fs_u = m_to_ft(fs) * lb_to_kg(1.0), "ft/lb"
+    header = [f"altitude [{alt_u}]", f"TAS [{spd_u}]", "Mach", f"Ps [{ps_u}]",
+              f"fuel flow [{m_u}/s]", f"Ps / fuel flow [{fs_u}]", "feasible"]
+    feas = np.broadcast_to(np.asarray(emap.feasible), shape)
+    cols = [np.broadcast_to(c, shape).ravel() for c in (alt, tas, emap.mach, ps, ff, fs)]
+    table = np.column_stack(cols + [feas.ravel().astype(float)])
+    buf = io.StringIO()
+    buf.write(f"# climbopt {__version__}: energy map; scenario: {scenario_name}; units: {units}; "
+              f"mass {emap.mass_kg:.1f} kg, load factor {emap.load_factor:g}, rating "
+              f"{emap.rating}\n# caution: {CAUTION}\n{','.join(header)}\n")
+    np.savetxt(buf, table, fmt=["%.1f", "%.2f", "%.4f", "%.3f", "%.5f", "%.4f", "%d"],
+               delimiter=",")
+    Path(path).write_text(buf.getvalue().replace(",1\n", ",true\n").replace(",0\n", ",false\n"),
+                          encoding="utf-8")
+
+
 #: Marker file of a climbopt output folder: only a folder holding it (or an empty or missing
 #: one) is ever replaced by ``run`` or ``map``.
 OUTPUT_MARKER = ".climbopt-output"
