@@ -576,37 +576,15 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
         model = build_model(scenario)
     env = envelope_for(scenario, model)
     rating = scenario.mission.rating or model.default_rating
-    monotone = env.profile == "procedure"
     prob = _Problem(model, env, rating, float(model.throttle_max), env.altitude_min_m,
                     env.altitude_max_m, max(3, int(scenario.solver.grid_speed_points)), refine,
-                    monotone=monotone)
+                    monotone=env.profile == "procedure")
     n_levels = max(2, int(scenario.solver.grid_altitude_points))
     start, target = scenario.mission.start, scenario.mission.target
     start_mass = float(model.mass_kg)
+    notes = _check_end_points(prob, start, target, start_mass)
     he0 = float(energy_height_m(start.altitude_m, start.tas_m_s))
     hef = float(energy_height_m(target.altitude_m, target.tas_m_s))
-    notes: list[str] = []
-
-    fs = energy_fields(model, start.altitude_m, start.tas_m_s, start_mass, limits=env,
-                       throttle=prob.throttle, rating=rating)
-    if not bool(fs.feasible):
-        broken = [n for n in env.names if n in fs.limits and not bool(fs.limits[n])]
-        notes.append(f"the start point lies outside the flight envelope ({', '.join(broken)} "
-                     "limit(s) not met); the energy-state path leaves it by a zoom")
-    # the target must be a feasible flight point (1 g, full rating)
-    ft = energy_fields(model, target.altitude_m, target.tas_m_s, start_mass, limits=env,
-                       throttle=prob.throttle, rating=rating)
-    if not bool(ft.feasible):
-        broken = [n for n in env.names if n in ft.limits and not bool(ft.limits[n])]
-        raise InfeasibleMission(
-            f"the target point (altitude {_m_ft(target.altitude_m)}, Mach {float(ft.mach):.2f}) "
-            f"lies outside the flight envelope: {', '.join(broken)} limit(s) not met",
-            math.nan, target.altitude_m, float(ft.mach))
-    if hef < he0 - 0.5:
-        raise InfeasibleMission(
-            f"the target energy height {_m_ft(hef)} is below the start's {_m_ft(he0)}: the "
-            f"energy-state climb solver only climbs (no descent model)", he0)
-
     w = scenario.solver.cost_weight_kg_per_s
     cost = _cost_for(objective, w)
     he_levels = np.linspace(he0, max(hef, he0 + 1e-6), n_levels)
@@ -614,56 +592,13 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
         progress(f"energy-state {objective}: {n_levels} energy levels x {prob.points} speeds", 0.0)
 
     dash_m = scenario.mission.dash_distance_m
-    dash_info = None
     if dash_m:
-        def dash_info(mass_kg):
-            thr, _, _, mach = _dash_throttle(prob, target.altitude_m, target.tas_m_s, mass_kg)
-            ff = float(model.fuel_flow_kg_s(target.altitude_m, mach,
-                                            min(max(thr, model.throttle_min), prob.throttle),
-                                            rating))
-            return cost.fuel_weight * ff + cost.time_weight
-
-        cost = replace(cost, dash_rate=dash_info(start_mass), dash_tas_m_s=target.tas_m_s)
-
-    variants = {}
-    if not dash_m or dash_climb in ("best", "plain"):
-        variants["plain"] = _solve_climb(prob, he_levels, start_mass, cost, None, hef, progress,
-                                         objective)
-    if dash_m and dash_climb in ("best", "range-aware"):
-        variants["range-aware"] = _solve_climb(prob, he_levels, start_mass, cost, dash_info, hef,
-                                               progress, objective + " (range-aware)")
-    variant = next(iter(variants))
-    if dash_m:
-        totals = {}
-        dashes = {}
-        for name, (_, integ, _, _) in variants.items():
-            x_c = integ["distance"][-1]
-            dash = dashes[name] = _dash(prob, target, start_mass - integ["fuel"][-1],
-                                        dash_m - x_c)
-            totals[name] = (integ["time"][-1] + dash["time"][-1],
-                            integ["fuel"][-1] + dash["fuel"][-1], x_c)
-        j = {k: cost.fuel_weight * v[1] + cost.time_weight * v[0] for k, v in totals.items()}
-        variant = min(j, key=j.get)
-        label = {"time": "time", "fuel": "fuel", "weighted": f"fuel + {w:g} kg/s x time"}[objective]
-        for name, (tt, ff, xc) in totals.items():
-            over = (" - more than the dash distance, so the range-aware premise (a dash after "
-                    "the climb) fails" if name == "range-aware" and xc > dash_m else "")
-            notes.append(
-                f"dash to {dash_m / 1000:.1f} km: {name} energy climb then dash: total time "
-                f"{tt:.1f} s, fuel {ff:.1f} kg (climb covers {xc / 1000:.1f} km{over})")
-        if len(variants) > 1:
-            notes.append(
-                f"dash: the {variant} climb is returned (lower {label}); the range-aware climb "
-                "maximises Ps / (r - r_d V / V_d) on each energy level (see climbopt.rutowski)")
-        aware = variants.get("range-aware")
-        if aware is not None and aware[0].fallback_levels:
-            notes.append(
-                f"dash: on {aware[0].fallback_levels} energy levels every climbing point covers "
-                "distance more cheaply than the dash itself (degenerate range-aware objective); "
-                "the plain objective was used there")
-    chosen = variants[variant]
-
-    path, integ, passes, cost_used = chosen
+        chosen, dash, dash_notes = _climb_and_dash(prob, he_levels, start_mass, cost, target,
+                                                   dash_m, dash_climb, progress, objective, w)
+        notes += dash_notes
+    else:
+        chosen = _solve_climb(prob, he_levels, start_mass, cost, None, hef, progress, objective)
+    path, integ, passes, _ = chosen
     table, zooms = _table(prob, path, integ, start, target)
     if dash_m:
         x_c = table["distance_m"][-1]
@@ -671,8 +606,7 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
             notes.append(
                 f"dash: the climb alone covers {x_c / 1000:.1f} km, more than the dash distance "
                 f"{dash_m / 1000:.1f} km; no dash leg is flown (the target is reached beyond it)")
-        else:
-            dash = dashes[variant]  # flown from the same end-of-climb mass and distance
+        else:  # flown from the same end-of-climb mass and distance
             table = _append_dash(prob, table, dash, target)
             notes.append(
                 f"dash: level flight at the target state for {(dash_m - x_c) / 1000:.1f} km, "
@@ -687,7 +621,84 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
     return Trajectory(Method.ENERGY_STATE, objective, table, converged=True, status=status,
                       iterations=0, wall_s=_time.perf_counter() - t_wall, zooms=zooms,
                       segments=derive_segments(table, zooms), notes=notes,
-                      profile=env.profile)
+                      profile=prob.limits.profile)
+
+
+def _check_end_points(prob: _Problem, start, target, mass_kg: float) -> list:
+    """Notes on the start point; InfeasibleMission when the target is outside the envelope (1 g,
+    full rating) or below the start energy."""
+    env, notes = prob.limits, []
+    fs = energy_fields(prob.model, start.altitude_m, start.tas_m_s, mass_kg, limits=env,
+                       throttle=prob.throttle, rating=prob.rating)
+    if not bool(fs.feasible):
+        broken = [n for n in env.names if n in fs.limits and not bool(fs.limits[n])]
+        notes.append(f"the start point lies outside the flight envelope ({', '.join(broken)} "
+                     "limit(s) not met); the energy-state path leaves it by a zoom")
+    ft = energy_fields(prob.model, target.altitude_m, target.tas_m_s, mass_kg, limits=env,
+                       throttle=prob.throttle, rating=prob.rating)
+    if not bool(ft.feasible):
+        broken = [n for n in env.names if n in ft.limits and not bool(ft.limits[n])]
+        raise InfeasibleMission(
+            f"the target point (altitude {_m_ft(target.altitude_m)}, Mach {float(ft.mach):.2f}) "
+            f"lies outside the flight envelope: {', '.join(broken)} limit(s) not met",
+            math.nan, target.altitude_m, float(ft.mach))
+    he0 = float(energy_height_m(start.altitude_m, start.tas_m_s))
+    hef = float(energy_height_m(target.altitude_m, target.tas_m_s))
+    if hef < he0 - 0.5:
+        raise InfeasibleMission(
+            f"the target energy height {_m_ft(hef)} is below the start's {_m_ft(he0)}: the "
+            f"energy-state climb solver only climbs (no descent model)", he0)
+    return notes
+
+
+def _climb_and_dash(prob, he_levels, start_mass, cost, target, dash_m, dash_climb, progress,
+                    objective, w):
+    """The climb variants for a dash mission (plain, range-aware or both), each completed by its
+    dash; returns (the cheaper variant's climb, its dash, notes comparing them)."""
+    model = prob.model
+    hef = he_levels[-1]
+
+    def dash_info(mass_kg):
+        thr, _, _, mach = _dash_throttle(prob, target.altitude_m, target.tas_m_s, mass_kg)
+        ff = float(model.fuel_flow_kg_s(target.altitude_m, mach,
+                                        min(max(thr, model.throttle_min), prob.throttle),
+                                        prob.rating))
+        return cost.fuel_weight * ff + cost.time_weight
+
+    cost = replace(cost, dash_rate=dash_info(start_mass), dash_tas_m_s=target.tas_m_s)
+    variants = {}
+    if dash_climb in ("best", "plain"):
+        variants["plain"] = _solve_climb(prob, he_levels, start_mass, cost, None, hef, progress,
+                                         objective)
+    if dash_climb in ("best", "range-aware"):
+        variants["range-aware"] = _solve_climb(prob, he_levels, start_mass, cost, dash_info, hef,
+                                               progress, objective + " (range-aware)")
+    totals, dashes, notes = {}, {}, []
+    for name, (_, integ, _, _) in variants.items():
+        x_c = integ["distance"][-1]
+        dash = dashes[name] = _dash(prob, target, start_mass - integ["fuel"][-1], dash_m - x_c)
+        totals[name] = (integ["time"][-1] + dash["time"][-1],
+                        integ["fuel"][-1] + dash["fuel"][-1], x_c)
+    j = {k: cost.fuel_weight * v[1] + cost.time_weight * v[0] for k, v in totals.items()}
+    variant = min(j, key=j.get)
+    label = {"time": "time", "fuel": "fuel", "weighted": f"fuel + {w:g} kg/s x time"}[objective]
+    for name, (tt, ff, xc) in totals.items():
+        over = (" - more than the dash distance, so the range-aware premise (a dash after "
+                "the climb) fails" if name == "range-aware" and xc > dash_m else "")
+        notes.append(
+            f"dash to {dash_m / 1000:.1f} km: {name} energy climb then dash: total time "
+            f"{tt:.1f} s, fuel {ff:.1f} kg (climb covers {xc / 1000:.1f} km{over})")
+    if len(variants) > 1:
+        notes.append(
+            f"dash: the {variant} climb is returned (lower {label}); the range-aware climb "
+            "maximises Ps / (r - r_d V / V_d) on each energy level (see climbopt.rutowski)")
+    aware = variants.get("range-aware")
+    if aware is not None and aware[0].fallback_levels:
+        notes.append(
+            f"dash: on {aware[0].fallback_levels} energy levels every climbing point covers "
+            "distance more cheaply than the dash itself (degenerate range-aware objective); "
+            "the plain objective was used there")
+    return variants[variant], dashes[variant], notes
 
 
 def _gamma_along(path: _Path, ps, tas):
