@@ -29,10 +29,39 @@ from numpy.polynomial import legendre
 
 from climbopt.aircraft import PointPerformance
 from climbopt.atmosphere import G0, standard_atmosphere
-from climbopt.flighttest import ReducedPoints, StandardReference
+from climbopt.flighttest import ReducedPoints, StandardReference, reduce_history
 
 __all__ = ["ClimbComparison", "MeasuredAircraftModel", "PsSurface", "compare_climbs",
-           "equivalent_cd0_change", "fit_surface"]
+           "equivalent_cd0_change", "fit_surface", "reduce_plan", "standard_reference"]
+
+
+def standard_reference(plan) -> StandardReference:
+    """The standard conditions and correction data of a test plan (:class:`climbopt.
+    flighttest_io.TestPlan`): its predicted scenario's aircraft on a standard day, or the stated
+    induced-drag factor with no thrust correction."""
+    if plan.predicted is None:
+        return StandardReference(plan.standard_mass_kg, plan.reference_area_m2, None,
+                                 plan.induced_drag_factor, None, [
+                                     f"no predicted model: weight correction with the stated "
+                                     f"induced-drag factor k = {plan.induced_drag_factor:g}; "
+                                     "thrust change for temperature taken as zero"])
+    from climbopt.aircraft import build_model
+
+    scenario = plan.predicted
+    standard_day = replace(scenario, atmosphere=replace(scenario.atmosphere,
+                                                        temperature_offset_k=0.0))
+    return StandardReference(plan.standard_mass_kg, plan.reference_area_m2,
+                             build_model(standard_day), None, plan.rating, [
+                                 f"weight and temperature corrections from the predicted model "
+                                 f"({scenario.name}, rating {plan.rating!r}): drag polar and "
+                                 "engine off-standard-day correction"])
+
+
+def reduce_plan(plan, reference: StandardReference | None = None):
+    """(reference, standardised points of every test point of ``plan``)."""
+    reference = reference or standard_reference(plan)
+    parts = [reduce_history(h, reference, plan.smoothing_window_s) for h in plan.histories]
+    return reference, ReducedPoints.concatenate(parts)
 
 
 @dataclass
