@@ -500,3 +500,4 @@ def write_history_csv(path, history: FlightHistory, comments: list[str]) -> None
         lines.append(",".join(f"{a[i]:.{digits[k]}f}" for k, a in zip(cols, arr)))
     Path(path).write_text("\n".join(lines) + "\n", encoding="utf-8")
 
+
