@@ -24,7 +24,7 @@ import numpy as np
 from climbopt.flighttest import FlightHistory
 from climbopt.units import UnitError, parse_quantity, ureg
 
-__all__ = ["COLUMNS", "KINDS", "FlightTestError", "TestPlan", "TestPoint", "load_test_plan",
+__all__ = ["COLUMNS", "KINDS", "FlightTestError", "FlightTestPlan", "PlannedPoint", "load_test_plan",
            "read_history", "write_history_csv"]
 
 #: Manoeuvre kinds of a test point.
@@ -62,7 +62,7 @@ class FlightTestError(ValueError):
 
 
 @dataclass(frozen=True)
-class TestPoint:
+class PlannedPoint:
     """One entry of ``[[test_point]]``: CSV path, manoeuvre kind, name, optional initial gross
     mass [kg] (for a ``fuel_used`` column)."""
 
@@ -73,7 +73,7 @@ class TestPoint:
 
 
 @dataclass
-class TestPlan:
+class FlightTestPlan:
     """A test plan in SI (see docs/flighttest-format.md); ``histories`` holds the data read."""
 
     path: str
@@ -92,7 +92,7 @@ class TestPlan:
     bootstrap: int
     climb_bootstrap: int
     seed: int
-    points: list[TestPoint]
+    points: list[PlannedPoint]
     predicted: object = None  # climbopt.scenario.Scenario
     histories: list[FlightHistory] = field(default_factory=list)
 
@@ -219,7 +219,7 @@ def _read_predicted(r: _Plan, node: dict):
     return path, scenario, rating
 
 
-def _read_points(r: _Plan, doc: dict) -> list[TestPoint]:
+def _read_points(r: _Plan, doc: dict) -> list[PlannedPoint]:
     raw = doc.get("test_point")
     if not isinstance(raw, list) or not raw or not all(isinstance(p, dict) for p in raw):
         r.problem("test_point", "missing or empty; expected one or more [[test_point]] tables "
@@ -234,14 +234,14 @@ def _read_points(r: _Plan, doc: dict) -> list[TestPoint]:
         name = r.string(node, "name", where, required=False)
         mass = r.quantity(node, "initial_gross_weight", where, "mass", required=False)
         if file is not None and kind is not None:
-            points.append(TestPoint(name or Path(file).stem, file, kind, mass))
+            points.append(PlannedPoint(name or Path(file).stem, file, kind, mass))
     names = [p.name for p in points]
     for n in sorted({n for n in names if names.count(n) > 1}):
         r.problem("test_point", f"the name {n!r} is used more than once")
     return points
 
 
-def load_test_plan(path) -> TestPlan:
+def load_test_plan(path) -> FlightTestPlan:
     """Read and validate a test plan and every CSV it names; SI values.
 
     Raises :class:`FlightTestError` listing every problem (plan fields, predicted scenario,
@@ -273,7 +273,7 @@ def load_test_plan(path) -> TestPlan:
     for k_, d in zip(("mach_degree", "altitude_degree"), degrees):
         if d is not None:
             r.integer(red, k_, "reduction", 0, 0, 6)
-    plan = TestPlan(
+    plan = FlightTestPlan(
         path, r.string(sec["test_plan"], "name", "test_plan", required=False) or Path(path).stem,
         r.string(sec["test_plan"], "description", "test_plan", required=False) or "",
         r.string(ac, "name", "aircraft", required=False) or "", area or math.nan,
@@ -396,7 +396,7 @@ def _capped(problems, file, where):
                                                    "bad lines")]
 
 
-def read_history(path, point: TestPoint, *, max_gap_s: float = 5.0, min_duration_s: float = 0.0):
+def read_history(path, point: PlannedPoint, *, max_gap_s: float = 5.0, min_duration_s: float = 0.0):
     """Read one test point's CSV into a :class:`FlightHistory` (SI).
 
     Returns ``(history or None, problems)``; problems name the file, the line and column."""
