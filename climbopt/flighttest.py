@@ -41,7 +41,8 @@ import numpy as np
 from scipy.signal import savgol_coeffs, savgol_filter
 
 from climbopt.airspeed import mach_from_cas
-from climbopt.atmosphere import G0, GAMMA_AIR, R_AIR, geometric_from_geopotential, standard_atmosphere
+from climbopt.atmosphere import (G0, GAMMA_AIR, R_AIR, geometric_from_geopotential,
+                                 standard_atmosphere)
 
 __all__ = [
     "POLYORDER",
@@ -207,7 +208,8 @@ class StandardReference:
     notes: list[str] = field(default_factory=list)
 
     def drag_coefficient_change(self, cl_from, cl_to, mach):
-        """CD(CL_to, M) - CD(CL_from, M) [-] from the predicted polar (or k (CL_to^2 - CL_from^2))."""
+        """CD(CL_to, M) - CD(CL_from, M) [-] from the predicted polar, or else
+        k (CL_to^2 - CL_from^2)."""
         if self.model is not None:
             return (self.model.drag_coefficient(cl_to, mach, check=False)
                     - self.model.drag_coefficient(cl_from, mach, check=False))
@@ -332,12 +334,14 @@ def reduce_history(history: FlightHistory, reference: StandardReference, window_
     mach = tas[keep] / np.sqrt(GAMMA_AIR * R_AIR * oat[keep])
     ps_std = standardise(ps_test[keep], alt, mach, oat[keep], mass[keep], n_load[keep], reference)
     k = keep.size
-    return ReducedPoints(np.full(k, history.name, dtype=object), np.full(k, history.kind, dtype=object),
+    return ReducedPoints(np.full(k, history.name, dtype=object),
+                         np.full(k, history.kind, dtype=object),
                          t[keep], hp[keep], alt, mach, tas[keep], oat[keep], mass[keep],
                          n_load[keep], ps_test[keep], ps_std, sigma[keep])
 
 
-def standardise(ps_test, altitude_m, mach, oat_k, mass_kg, load_factor, reference: StandardReference):
+def standardise(ps_test, altitude_m, mach, oat_k, mass_kg, load_factor,
+                reference: StandardReference):
     """Ps [m/s] at test conditions -> standard weight, standard day, 1 g at the same pressure
     altitude (model altitude [m]) and Mach, by :func:`correct_ps` with dD from the polar and dT
     from the engine's temperature correction (module docstring)."""

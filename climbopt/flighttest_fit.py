@@ -36,9 +36,9 @@ __all__ = ["ClimbComparison", "MeasuredAircraftModel", "PsSurface", "compare_cli
 
 
 def standard_reference(plan) -> StandardReference:
-    """The standard conditions and correction data of a test plan (:class:`climbopt.
-    flighttest_io.FlightTestPlan`): its predicted scenario's aircraft on a standard day, or the stated
-    induced-drag factor with no thrust correction."""
+    """The standard conditions and correction data of a test plan
+    (:class:`climbopt.flighttest_io.FlightTestPlan`): its predicted scenario's aircraft on a
+    standard day, or the stated induced-drag factor with no thrust correction."""
     if plan.predicted is None:
         return StandardReference(plan.standard_mass_kg, plan.reference_area_m2, None,
                                  plan.induced_drag_factor, None, [

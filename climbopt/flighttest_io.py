@@ -24,7 +24,8 @@ import numpy as np
 from climbopt.flighttest import FlightHistory
 from climbopt.units import UnitError, parse_quantity, ureg
 
-__all__ = ["COLUMNS", "KINDS", "FlightTestError", "FlightTestPlan", "PlannedPoint", "load_test_plan",
+__all__ = ["COLUMNS", "KINDS", "FlightTestError", "FlightTestPlan", "PlannedPoint",
+           "load_test_plan",
            "read_history", "write_history_csv"]
 
 #: Manoeuvre kinds of a test point.
@@ -260,8 +261,8 @@ def load_test_plan(path) -> FlightTestPlan:
         k = None
     pred_path, scenario, rating = _read_predicted(r, sec["predicted"])
     if not sec["predicted"] and k is None:
-        r.problem("aircraft.induced_drag_factor", "missing; without a [predicted] scenario the "
-                                                  "weight correction needs the induced-drag factor k")
+        r.problem("aircraft.induced_drag_factor", "missing; without a [predicted] scenario "
+                  "the weight correction needs the induced-drag factor k")
     if scenario is not None and area is not None:
         s_pred = scenario.aircraft.reference_area_m2
         if abs(area - s_pred) > 1e-3 * s_pred:
@@ -269,10 +270,8 @@ def load_test_plan(path) -> FlightTestPlan:
                                                  f"scenario's {s_pred:.4g} m^2")
     window = r.quantity(red, "smoothing_window", "reduction", "time", required=False) or 20.0
     gap = r.quantity(red, "max_gap", "reduction", "time", required=False) or 5.0
-    degrees = [red[k_] if k_ in red else None for k_ in ("mach_degree", "altitude_degree")]
-    for k_, d in zip(("mach_degree", "altitude_degree"), degrees):
-        if d is not None:
-            r.integer(red, k_, "reduction", 0, 0, 6)
+    degrees = [r.integer(red, k_, "reduction", None, 0, 6) if k_ in red else None
+               for k_ in ("mach_degree", "altitude_degree")]
     plan = FlightTestPlan(
         path, r.string(sec["test_plan"], "name", "test_plan", required=False) or Path(path).stem,
         r.string(sec["test_plan"], "description", "test_plan", required=False) or "",
@@ -317,7 +316,7 @@ def _parse_header(names: list[str], file: str):
             columns[qty] = (i, name, _converter(COLUMNS[qty][0], name[len(qty) + 1:], name))
         except UnitError as exc:
             problems.append((file, f"column {name}", exc.message))
-    for qty, (dim, required, _, words) in COLUMNS.items():
+    for qty, (_, required, _, words) in COLUMNS.items():
         if required and qty not in seen:
             problems.append((file, "header", f"missing column {qty}_<unit> ({words})"))
     for a, b in (("cas", "mach"), ("gross_weight", "fuel_used")):
@@ -497,7 +496,7 @@ def write_history_csv(path, history: FlightHistory, comments: list[str]) -> None
     lines = [f"# {c}" for c in comments] + [",".join(cols)]
     arr = [np.asarray(v, dtype=float) for v in cols.values()]
     for i in range(arr[0].size):
-        lines.append(",".join(f"{a[i]:.{digits[k]}f}" for k, a in zip(cols, arr)))
+        lines.append(",".join(f"{a[i]:.{digits[k]}f}" for k, a in zip(cols, arr, strict=True)))
     Path(path).write_text("\n".join(lines) + "\n", encoding="utf-8")
 
 

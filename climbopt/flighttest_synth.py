@@ -28,7 +28,8 @@ __all__ = ["NoiseLevels", "add_noise", "modified_scenario", "simulate_level_acce
            "simulate_sawtooth_climb"]
 
 
-def modified_scenario(scenario, *, cd0_factor: float = 1.0, temperature_offset_k: float | None = None):
+def modified_scenario(scenario, *, cd0_factor: float = 1.0,
+                      temperature_offset_k: float | None = None):
     """The scenario with its zero-lift drag CD0(M) scaled by ``cd0_factor`` (parabolic polars)
     and, if given, another day temperature offset [K]."""
     drag = scenario.aircraft.drag
@@ -134,7 +135,7 @@ def simulate_sawtooth_climb(model, from_pressure_altitude_m: float, to_pressure_
     z = geometric_from_geopotential(hp)
     atm = model.atmosphere(z)
     mach = np.asarray(mach_from_cas(cas_m_s, atm.pressure_pa))
-    n = np.array([rates(h, mm)[2] for h, mm in zip(hp, m)])
+    n = np.array([rates(h, mm)[2] for h, mm in zip(hp, m, strict=True)])
     return FlightHistory(name or "sawtooth climb", "sawtooth_climb", t, hp,
                          np.asarray(atm.temperature_k, dtype=float), m,
                          cas_m_s=np.full(t.size, cas_m_s), mach=mach, load_factor=n,
@@ -156,7 +157,8 @@ class NoiseLevels:
         self.heading_rad = heading_rad
 
 
-def add_noise(history: FlightHistory, noise: NoiseLevels, rng: np.random.Generator) -> FlightHistory:
+def add_noise(history: FlightHistory, noise: NoiseLevels,
+              rng: np.random.Generator) -> FlightHistory:
     """The history with independent Gaussian noise of ``noise`` added to every recorded channel
     (time is exact)."""
     changes = {}

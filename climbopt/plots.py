@@ -472,7 +472,7 @@ def plot_predicted_vs_measured(surface, points, *, units: str = "si", ax=None):
     sel = points.kind == "level_acceleration"
     names = list(dict.fromkeys(points.source[sel]))
     shades = matplotlib.colormaps["copper"](np.linspace(0.1, 0.75, max(len(names), 1)))
-    for name, colour in zip(names, shades):
+    for name, colour in zip(names, shades, strict=False):
         p = points.source == name
         h = float(np.mean(points.altitude_m[p]))
         mach = np.linspace(points.mach[p].min() - 0.02, points.mach[p].max() + 0.02, 60)
@@ -535,7 +535,7 @@ def plot_climb_comparison(comparison, surface, *, units: str = "si", axes=None):
     axes[1].set_title("Ps along the paths", fontsize=9)
     axes[2].set_title(f"time to altitude; to the target {comparison.time_difference_s:+.1f} s "
                       f"(1 sigma {comparison.time_sigma_s:.1f} s)", fontsize=9)
-    for ax, xlabel in zip(axes, ("Mach number", u["ps"][1], "time difference [s]")):
+    for ax, xlabel in zip(axes, ("Mach number", u["ps"][1], "time difference [s]"), strict=True):
         ax.set_xlabel(xlabel)
         ax.set_ylabel(u["alt"][1])
         ax.legend(fontsize=7)

@@ -139,7 +139,8 @@ kind = "sawtooth_climb"
     text = str(err.value)
     assert "aircraft.wing_span: unknown key" in text
     assert "aircraft.standard_weight: missing" in text
-    assert "test_point[1].kind: got 'level_acceleraton' (did you mean 'level_acceleration'?)" in text
+    assert ("test_point[1].kind: got 'level_acceleraton' (did you mean "
+            "'level_acceleration'?)") in text
     assert "missing.csv: no such file" in text
     assert "predicted.scenario (nowhere.toml): file: no such file" in text
 
