@@ -280,7 +280,7 @@ def load_test_plan(path) -> FlightTestPlan:
         r.integer(red, "bootstrap", "reduction", 400, 20, 100_000),
         r.integer(red, "climb_bootstrap", "reduction", 40, 0, 10_000),
         r.integer(red, "seed", "reduction", 0, 0, 2**32 - 1), _read_points(r, doc), scenario)
-    folder = os.path.dirname(os.path.abspath(path))
+    folder = os.path.dirname(path)  # file names in messages as the user would type them
     for p in plan.points:
         csv_path = os.path.join(folder, p.file)
         history, problems = read_history(csv_path, p, max_gap_s=gap, min_duration_s=window)
