@@ -746,6 +746,8 @@ def reduce_command(plan_file, out_dir, units, schedule, quiet):
                                             bootstrap=plan.climb_bootstrap)
         except InfeasibleMission as exc:
             _fail(f"{plan_file}: infeasible mission: {exc}", EXIT_INFEASIBLE)
+        except ValueError as exc:
+            _fail(f"{plan_file}: the climbs cannot be solved: {exc}", EXIT_BAD_INPUT)
     with report.atomic_output_dir(out) as folder:
         lines, doc = _write_reduce_folder(folder, plan, points, surface, comparison, units)
     for line in lines:

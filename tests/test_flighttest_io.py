@@ -202,3 +202,15 @@ def test_cli_reduce_demo_with_schedule(tmp_path):
     assert abs(res["measured_time_s"] - truth.table["time_s"][-1]) < 3.0 * res["time_sigma_s"]
     assert res["measured_time_s"] > res["predicted_time_s"]
     assert CAUTION in (out / "points.csv").read_text()
+
+
+def test_fuel_used_column_needs_initial_weight(tmp_path):
+    """A fuel_used column gives mass = initial gross weight - fuel used; without the initial
+    weight in the plan it is an error naming the column."""
+    path = _csv(tmp_path / "a.csv", HEADER.replace("gross_weight_lb", "fuel_used_kg"),
+                edit=lambda i, f: f[:4] + [f"{0.5 * i:.1f}"] + f[5:])
+    hist, problems = read_history(path, PlannedPoint("p", "a.csv", "level_acceleration", 60_000.0))
+    assert problems == []
+    assert hist.mass_kg[10] == pytest.approx(60_000.0 - 5.0)
+    _, problems = _problems(path)
+    assert any("column fuel_used_kg" in p and "initial_gross_weight" in p for p in problems)
