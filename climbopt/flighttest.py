@@ -55,7 +55,10 @@ __all__ = [
     "ps_at_test",
     "reduce_history",
     "smooth_and_differentiate",
+    "standardise",
     "tapeline_rate",
+    "thrust_at_temperature",
+    "uniform_time",
     "window_samples",
 ]
 

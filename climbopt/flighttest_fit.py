@@ -119,6 +119,13 @@ class PsSurface:
         return perf.ps_m_s, v * perf.dynamic_pressure_pa * ref.reference_area_m2 / (
             ref.standard_mass_kg * G0)
 
+    def predicted_ps_std(self, altitude_m, mach):
+        """The predicted model's standard-day Ps [m/s] at standard weight, 1 g (NaN without a
+        predicted model)."""
+        if not self.difference:
+            return np.full(np.broadcast(altitude_m, mach).shape, np.nan)
+        return self._baseline_scale(altitude_m, mach)[0]
+
     def delta_coefficient(self, altitude_m, mach, coefficients=None):
         """Fitted excess-thrust coefficient change dC = d(T - D) / (q S) [-] (difference fits)."""
         c = self.coefficients if coefficients is None else coefficients

@@ -35,8 +35,7 @@ def _write_rows(path, comments, header, rows) -> None:
 def write_points_csv(path, points, surface, units: str, plan_name: str) -> None:
     """The standardised points with the fit, its residual and the predicted standard Ps."""
     fit = surface.ps_std(points.altitude_m, points.mach)
-    pred = (surface._baseline_scale(points.altitude_m, points.mach)[0] if surface.difference
-            else np.full(len(points), np.nan))
+    pred = surface.predicted_ps_std(points.altitude_m, points.mach)
     alt_u = _display("altitude", 0.0, units)[1]
     spd_u, m_u, ps_u = (_display(k, 0.0, units)[1] for k in ("speed", "mass", "rate"))
     header = ["test point", "kind", "time [s]", f"pressure altitude [{alt_u}]",
@@ -65,9 +64,8 @@ def surface_grid(surface, points_per_axis: int = 41):
     alt = np.linspace(max(h0 - pad_h, 0.0), h1 + pad_h, points_per_axis)
     mach = np.linspace(max(m0 - pad_m, 0.05), m1 + pad_m, points_per_axis)
     hh, mm = np.meshgrid(alt, mach, indexing="ij")
-    pred = (surface._baseline_scale(hh, mm)[0] if surface.difference
-            else np.full(hh.shape, np.nan))
-    return alt, mach, surface.ps_std(hh, mm), surface.sigma(hh, mm), pred
+    return (alt, mach, surface.ps_std(hh, mm), surface.sigma(hh, mm),
+            surface.predicted_ps_std(hh, mm))
 
 
 def write_surface(folder, surface, units: str, plan_name: str) -> list[str]:

@@ -15,7 +15,7 @@ Integrated with scipy's ``solve_ivp`` (RK45, relative tolerance 1e-10).
 
 from __future__ import annotations
 
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy.integrate import solve_ivp
@@ -142,19 +142,18 @@ def simulate_sawtooth_climb(model, from_pressure_altitude_m: float, to_pressure_
                          heading_rad=np.full(t.size, heading_rad))
 
 
+@dataclass(frozen=True)
 class NoiseLevels:
     """One-sigma white sensor noise (SI): pressure altitude [m], CAS [m/s], Mach [-], static air
     temperature [K], mass [kg], load factor [-], heading [rad]."""
 
-    def __init__(self, pressure_altitude_m=0.0, cas_m_s=0.0, mach=0.0, oat_k=0.0, mass_kg=0.0,
-                 load_factor=0.0, heading_rad=0.0):
-        self.pressure_altitude_m = pressure_altitude_m
-        self.cas_m_s = cas_m_s
-        self.mach = mach
-        self.oat_k = oat_k
-        self.mass_kg = mass_kg
-        self.load_factor = load_factor
-        self.heading_rad = heading_rad
+    pressure_altitude_m: float = 0.0
+    cas_m_s: float = 0.0
+    mach: float = 0.0
+    oat_k: float = 0.0
+    mass_kg: float = 0.0
+    load_factor: float = 0.0
+    heading_rad: float = 0.0
 
 
 def add_noise(history: FlightHistory, noise: NoiseLevels,

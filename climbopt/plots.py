@@ -482,7 +482,7 @@ def plot_predicted_vs_measured(surface, points, *, units: str = "si", ax=None):
         where = f"{m_to_ft(h):,.0f} ft" if units == "us" else f"{h:,.0f} m"
         ax.plot(mach, fit, color=colour, linewidth=1.8, label=f"measured, {where}")
         if surface.difference:
-            ax.plot(mach, ps_fn(surface._baseline_scale(h, mach)[0]), color=colour,
+            ax.plot(mach, ps_fn(surface.predicted_ps_std(h, mach)), color=colour,
                     linewidth=1.2, linestyle=(0, (5, 3)))
         ax.plot(points.mach[p], ps_fn(points.ps_std_m_s[p]), "o", color=colour, ms=4)
     if surface.difference:

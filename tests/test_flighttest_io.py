@@ -214,3 +214,26 @@ def test_fuel_used_column_needs_initial_weight(tmp_path):
     assert hist.mass_kg[10] == pytest.approx(60_000.0 - 5.0)
     _, problems = _problems(path)
     assert any("column fuel_used_kg" in p and "initial_gross_weight" in p for p in problems)
+
+
+def test_cli_reduce_without_predicted_model(tmp_path):
+    """Without a [predicted] scenario the demo data reduce with the stated induced-drag factor
+    to a direct Ps surface (the outputs say the thrust change for temperature is taken as
+    zero); --schedule then exits 2."""
+    plan_dir = tmp_path / "ft"
+    shutil.copytree(DEMO, plan_dir)
+    text = (plan_dir / "demo_testplan.toml").read_text(encoding="utf-8")
+    text = text.replace('[predicted]\nscenario = "../transport_twinjet.toml"\nrating = "climb"\n',
+                        "").replace('standard_weight = "70000 kg"',
+                                    'standard_weight = "70000 kg"\ninduced_drag_factor = 0.043')
+    plan = plan_dir / "direct.toml"
+    plan.write_text(text, encoding="utf-8")
+    out = tmp_path / "out"
+    result = CliRunner().invoke(cli, ["reduce", str(plan), "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    assert "Ps fit (direct, Mach degree 3, altitude degree 2)" in result.output
+    assert "thrust change for temperature taken as zero" in (out / "report.txt").read_text()
+    assert (out / "measured_ps.png").is_file() and not (out / "predicted_vs_measured.png").exists()
+    result = CliRunner().invoke(cli, ["reduce", str(plan), "--out", str(out), "--schedule"])
+    assert result.exit_code == 2
+    assert "--schedule needs a [predicted] scenario" in result.output
