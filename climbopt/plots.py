@@ -516,3 +516,165 @@ def sweep_figures(plan, rows: list[dict]) -> dict:
         plot_tradeoff(plan, rows, ax)
         figures["tradeoff"] = fig
     return figures
+
+
+
+# ------------------------------------------------------------------------------------------
+# flight test: measured Ps (climbopt.flighttest, climbopt.flighttest_fit)
+
+#: Colour of the measured aircraft (burnt orange, grey value about 40 %), the predicted one
+#: keeps the minimum-time slate; test-point markers by manoeuvre kind.
+MEASURED_COLOUR = "#b5542d"
+KIND_MARKERS = {"level_acceleration": "o", "sawtooth_climb": "^"}
+KIND_LABELS = {"level_acceleration": "level acceleration", "sawtooth_climb": "sawtooth climb"}
+
+
+def _new_axes(figsize=(8.0, 5.5), ncols: int = 1):
+    """Axes on a new figure (no pyplot state, see :func:`_figure`)."""
+    fig = _figure(figsize=figsize)
+    axes = fig.subplots(1, ncols)
+    fig.subplots_adjust(bottom=0.13)
+    return axes
+
+
+def plot_measured_ps(surface, points, *, units: str = "si", ax=None):
+    """Contours of the fitted standard-day Ps over altitude vs Mach (the tested range padded by
+    10 %; outside the tested range hatched) with the standardised points on top, coloured on the
+    same scale and marked by manoeuvre kind. Returns the axes."""
+    from climbopt.flighttest_report import surface_grid
+
+    u = _axis_units(units)
+    ax = _new_axes() if ax is None else ax
+    alt, mach, ps, _, _ = surface_grid(surface, 81)
+    alt_fn, ps_fn = u["alt"][0], u["ps"][0]
+    disp = ps_fn(ps)
+    (h0, h1), (m0, m1) = surface.altitude_range_m, surface.mach_range
+    outside = ~((alt[:, None] >= h0) & (alt[:, None] <= h1) & (mach >= m0) & (mach <= m1))
+    tested = disp[~outside]  # colour scale of the tested range (extrapolated corners saturate)
+    levels = _nice_levels(float(np.nanmin(tested)), float(np.nanmax(tested)), 12)
+    cf = ax.contourf(mach, alt_fn(alt), disp, levels=levels, cmap=FIELD_CMAP, extend="both")
+    cs = ax.contour(mach, alt_fn(alt), disp, levels=levels, colors="#3a3a3a", linewidths=0.6)
+    ax.clabel(cs, levels[::2], fontsize=7, fmt="%g")
+    ax.contourf(mach, alt_fn(alt), outside.astype(float), levels=[0.5, 1.5],
+                colors="none", hatches=[ENVELOPE_HATCH])
+    for kind, marker in KIND_MARKERS.items():
+        sel = points.kind == kind
+        if sel.any():
+            ax.scatter(points.mach[sel], alt_fn(points.altitude_m[sel]),
+                       c=ps_fn(points.ps_std_m_s[sel]), cmap=FIELD_CMAP, norm=cf.norm,
+                       marker=marker, edgecolors="black", linewidths=0.6, s=30,
+                       label=f"{KIND_LABELS[kind]} (standardised)")
+    ax.figure.colorbar(cf, ax=ax, label=u["ps"][1])
+    ax.set_xlabel("Mach number")
+    ax.set_ylabel(u["alt"][1])
+    ax.set_title("Measured Ps, standard day, standard weight, 1 g (hatched: not tested)",
+                 fontsize=10)
+    ax.legend(fontsize=7, loc="upper center", bbox_to_anchor=(0.5, -0.11), ncol=2)
+    ax.figure.subplots_adjust(bottom=0.2)
+    return ax
+
+
+def plot_ps_residuals(surface, points, *, units: str = "si", ax=None):
+    """Residuals (standardised point minus fitted surface) over Mach, by manoeuvre kind, with
+    the two-sigma band of the points' own noise estimate. Returns the axes."""
+    u = _axis_units(units)
+    ax = _new_axes((8.0, 4.5)) if ax is None else ax
+    ps_fn = u["ps"][0]
+    resid = ps_fn(points.ps_std_m_s - surface.ps_std(points.altitude_m, points.mach))
+    for kind, marker in KIND_MARKERS.items():
+        sel = points.kind == kind
+        if sel.any():
+            ax.errorbar(points.mach[sel], resid[sel], yerr=2.0 * ps_fn(points.sigma_m_s[sel]),
+                        fmt=marker, color=MEASURED_COLOUR if kind == "sawtooth_climb"
+                        else OBJECTIVE_COLOURS["time"], ms=4, elinewidth=0.6, capsize=0,
+                        label=f"{KIND_LABELS[kind]} (bars: 2 sigma)")
+    rms = ps_fn(surface.residual_rms_m_s)
+    for s in (-2.0, 2.0):
+        ax.axhline(s * rms, color="#6b6b6b", linewidth=0.8, linestyle=(0, (4, 2)))
+    ax.axhline(0.0, color="black", linewidth=0.8)
+    ax.set_xlabel("Mach number")
+    ax.set_ylabel(f"residual, {u['ps'][1]}")
+    ax.set_title(f"Residuals of the Ps fit ({surface.points} points, dashed: +/- 2 x rms "
+                 f"{rms:.3g})", fontsize=10)
+    ax.legend(fontsize=7)
+    return ax
+
+
+def plot_predicted_vs_measured(surface, points, *, units: str = "si", ax=None):
+    """Standard-day Ps over Mach at the altitude of each level acceleration: predicted (dashed),
+    measured fit (solid) with its two-sigma bootstrap band, and the standardised points.
+    Returns the axes."""
+    u = _axis_units(units)
+    ax = _new_axes() if ax is None else ax
+    ps_fn = u["ps"][0]
+    sel = points.kind == "level_acceleration"
+    names = list(dict.fromkeys(points.source[sel]))
+    shades = matplotlib.colormaps["copper"](np.linspace(0.1, 0.75, max(len(names), 1)))
+    for name, colour in zip(names, shades, strict=False):
+        p = points.source == name
+        h = float(np.mean(points.altitude_m[p]))
+        mach = np.linspace(points.mach[p].min() - 0.02, points.mach[p].max() + 0.02, 60)
+        fit = ps_fn(surface.ps_std(h, mach))
+        band = ps_fn(2.0 * surface.sigma(h, mach))
+        ax.fill_between(mach, fit - band, fit + band, color=colour, alpha=0.25, linewidth=0)
+        where = f"{m_to_ft(h):,.0f} ft" if units == "us" else f"{h:,.0f} m"
+        ax.plot(mach, fit, color=colour, linewidth=1.8, label=f"measured, {where}")
+        if surface.difference:
+            ax.plot(mach, ps_fn(surface.predicted_ps_std(h, mach)), color=colour,
+                    linewidth=1.2, linestyle=(0, (5, 3)))
+        ax.plot(points.mach[p], ps_fn(points.ps_std_m_s[p]), "o", color=colour, ms=4)
+    if surface.difference:
+        ax.plot([], [], color="black", linestyle=(0, (5, 3)), label="predicted (dashed)")
+    ax.set_xlabel("Mach number")
+    ax.set_ylabel(u["ps"][1])
+    ax.set_title("Standard-day Ps at the level-acceleration altitudes: measured fit "
+                 "(band: 2 sigma) vs predicted", fontsize=10)
+    ax.legend(fontsize=7)
+    return ax
+
+
+def _time_to_altitude(table, altitude_m):
+    """Time [s] at which a path first reaches each altitude (NaN above its highest point)."""
+    top = np.maximum.accumulate(table["altitude_m"])
+    keep = np.concatenate([[True], np.diff(top) > 0])
+    return np.interp(altitude_m, top[keep], table["time_s"][keep], right=np.nan)
+
+
+def plot_climb_comparison(comparison, surface, *, units: str = "si", axes=None):
+    """Minimum-time climbs of the predicted and the measured aircraft: (a) altitude vs Mach,
+    (b) Ps along each path vs altitude (measured with its two-sigma bootstrap band), (c) the
+    difference in time to each altitude, measured minus predicted. Returns the three axes."""
+    u = _axis_units(units)
+    axes = _new_axes((13.0, 4.6), 3) if axes is None else axes
+    alt_fn, ps_fn = u["alt"][0], u["ps"][0]
+    runs = (("predicted", comparison.predicted, OBJECTIVE_COLOURS["time"], (0, (6, 3))),
+            ("measured", comparison.measured, MEASURED_COLOUR, "-"))
+    for label, traj, colour, ls in runs:
+        tb = traj.table
+        h = alt_fn(tb["altitude_m"])
+        axes[0].plot(tb["mach"], h, color=colour, linestyle=ls, linewidth=1.8, label=label)
+        axes[1].plot(ps_fn(tb["ps_m_s"]), h, color=colour, linestyle=ls, linewidth=1.8,
+                     label=label)
+    tb = comparison.measured.table
+    v_std = tb["mach"] * standard_atmosphere(tb["altitude_m"]).speed_of_sound_m_s
+    scale = (surface.reference.standard_mass_kg / tb["mass_kg"]) * (tb["tas_m_s"] / v_std)
+    band = ps_fn(2.0 * scale * surface.sigma(tb["altitude_m"], tb["mach"]))
+    axes[1].fill_betweenx(alt_fn(tb["altitude_m"]), ps_fn(tb["ps_m_s"]) - band,
+                          ps_fn(tb["ps_m_s"]) + band, color=MEASURED_COLOUR, alpha=0.2,
+                          linewidth=0, label="measured, 2 sigma")
+    tp = comparison.predicted.table
+    levels = np.linspace(tp["altitude_m"][0], min(tp["altitude_m"].max(), tb["altitude_m"].max()),
+                         200)
+    dt = _time_to_altitude(tb, levels) - _time_to_altitude(tp, levels)
+    axes[2].plot(dt, alt_fn(levels), color=MEASURED_COLOUR, linewidth=1.8,
+                 label="measured - predicted")
+    axes[2].axvline(0.0, color="black", linewidth=0.8)
+    axes[0].set_title("minimum-time paths (energy-state)", fontsize=9)
+    axes[1].set_title("Ps along the paths", fontsize=9)
+    axes[2].set_title(f"time to altitude; to the target {comparison.time_difference_s:+.1f} s "
+                      f"(1 sigma {comparison.time_sigma_s:.1f} s)", fontsize=9)
+    for ax, xlabel in zip(axes, ("Mach number", u["ps"][1], "time difference [s]"), strict=True):
+        ax.set_xlabel(xlabel)
+        ax.set_ylabel(u["alt"][1])
+        ax.legend(fontsize=7)
+    return axes
