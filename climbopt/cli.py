@@ -185,63 +185,6 @@ def _stoppable(out: Path):
             signal.signal(signal.SIGTERM, old)
 
 
-def _write_run_folder(folder: Path, scenario, scenario_file, run, records, code, units, model,
-                      bar):
-    """Write every output of ``run`` into ``folder`` (a temporary folder); return the summary
-    document and the crew schedules."""
-    from climbopt import plots, report
-    from climbopt.energy import build_energy_map
-    from climbopt.schedule import climb_schedule, default_step_m
-
-    trajs = run.trajectories()
-    schedules, files = {}, {}
-    dt = scenario.atmosphere.temperature_offset_k
-    restriction = scenario.limits.cas_restriction
-    for traj in trajs:
-        stem = report.result_stem(traj.method, traj.objective, traj.name)
-        report.write_trajectory_csv(folder / f"{stem}.csv", traj, units, scenario.name)
-        files[stem] = [f"{stem}.csv"]
-        if traj.ranked:
-            sched = climb_schedule(traj, default_step_m(units), temperature_offset_k=dt,
-                                   fit_above_m=restriction[1] if restriction else None)
-            schedules[stem] = sched
-            report.write_schedule_csv(folder / f"{stem}_schedule.csv", sched, units,
-                                      scenario.name)
-            files[stem].append(f"{stem}_schedule.csv")
-    report.write_comparison_csv(folder / "comparison.csv", records, units, scenario.name)
-
-    bar.step("plots")
-    figures = []
-    if trajs:
-        emap = build_energy_map(scenario, model=model, shape=(160, 160))
-        for name, fn, x in (("ps_mach", plots.plot_ps_map, "mach"),
-                            ("ps_tas", plots.plot_ps_map, "tas"),
-                            ("fs_mach", plots.plot_fs_map, "mach")):
-            ax = fn(emap, trajs, x=x, units=units)
-            figures += plots.save_figure(ax.figure, folder / name)
-        axes = plots.plot_time_histories(trajs, units=units)
-        axes[0].set_title(scenario.name, fontsize=10)
-        figures += plots.save_figure(axes[0].figure, folder / "time_histories")
-    bar.done()
-
-    costs = report.format_procedure_costs(run.procedure_costs, units)
-    text = [f"climbopt {__version__}: {scenario.name}", "", report.format_table(records, units)]
-    if costs:
-        text += ["", costs]
-    for sched in schedules.values():
-        text += ["", report.format_schedule(sched, units)]
-    text += [""] + [f"error: {e}" for e in run.errors] + [f"warning: {w}" for w in run.warnings]
-    text += [f"Caution: {CAUTION}"]
-    report.write_text_atomic(folder / "report.txt", "\n".join(text) + "\n")
-    doc = report.summary_document(
-        records, scenario_name=scenario.name, scenario_path=scenario_file, units=units,
-        files=files, exit_code=code, errors=run.errors, warnings=run.warnings,
-        procedure_costs=run.procedure_costs)
-    doc["figures"] = sorted(p.name for p in figures)
-    report.write_summary_json(folder / "summary.json", doc)
-    return doc, schedules
-
-
 @cli.command("run")
 @click.argument("scenario_file", metavar="SCENARIO")
 @click.option("--method", type=click.Choice(["energy", "collocation", "both"]), default="both",
@@ -266,6 +209,7 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
     """
     from climbopt import report
     from climbopt.aircraft import build_model
+    from climbopt.outputs import write_outputs
     from climbopt.pipeline import TimeLimitExceeded, run_mission
     from climbopt.rutowski import InfeasibleMission
 
@@ -291,10 +235,13 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
         finally:
             bar.done()
         code = EXIT_SOLVER_FAILURE if result.solver_failure else EXIT_OK
-        records = report.comparison(list(result.results))
-        with report.atomic_output_dir(out, "climbopt run") as folder:
-            doc, schedules = _write_run_folder(folder, scenario, scenario_file, result, records,
-                                               code, units, model, bar)
+        try:
+            doc = write_outputs(result, out, scenario, units=units, model=model,
+                                exit_code=code, progress=bar.step)
+        except report.OutputFolderError as exc:
+            _fail(str(exc), EXIT_BAD_INPUT)
+        bar.done()
+        records = doc["results"]
     if as_json:
         click.echo(report.dumps_summary(doc))
     else:
