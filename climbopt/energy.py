@@ -245,6 +245,37 @@ class EnergyMap:
         """(number of altitudes, number of speeds)."""
         return (self.altitude_m.size, self.speed.size)
 
+    def to_xarray(self):
+        """The fields as an xarray Dataset over ``altitude_m`` x ``tas_m_s`` (or ``mach``),
+        each variable with a ``units`` attribute; the conditions (mass, load factor, throttle,
+        rating, temperature offset) as attributes. ``.to_netcdf(path)`` writes it. Needs xarray.
+        """
+        try:
+            import xarray as xr
+        except ImportError:  # pragma: no cover - xarray is an optional dependency
+            raise ImportError("EnergyMap.to_xarray needs xarray: pip install xarray") from None
+        col = "tas_m_s" if self.speed_kind == "tas" else "mach"
+        dims = ("altitude_m", col)
+        f = self.fields
+        data = {
+            "tas_m_s": (self.tas_m_s, "m/s"), "mach": (self.mach, "1"),
+            "energy_height_m": (self.energy_height_m, "m"), "ps_m_s": (f.ps_m_s, "m/s"),
+            "fuel_flow_kg_s": (f.fuel_flow_kg_s, "kg/s"),
+            "fuel_specific_energy_m_kg": (f.fuel_specific_energy_m_kg, "m/kg"),
+            "feasible": (self.feasible, "1"),
+        }
+        data.update({f"limit_{k}": (v, "1") for k, v in f.limits.items()})
+        variables = {name: (dims, np.array(np.broadcast_to(v, self.shape)), {"units": u})
+                     for name, (v, u) in data.items() if name != col}
+        coords = {"altitude_m": ("altitude_m", self.altitude_m, {"units": "m"}),
+                  col: (col, self.speed, {"units": "m/s" if col == "tas_m_s" else "1"})}
+        return xr.Dataset(variables, coords=coords, attrs={
+            "mass_kg": self.mass_kg, "load_factor": self.load_factor,
+            "throttle": self.throttle, "rating": self.rating,
+            "temperature_offset_k": self.temperature_offset_k,
+            "note": "specific excess power and fuel fields of climbopt (SI); engineering "
+                    "estimate, not for operational use"})
+
 
 def build_energy_map(source, *, altitude_m=None, speed=None, speed_kind: str = "tas",
                      mass_kg: float | None = None, load_factor: float = 1.0,

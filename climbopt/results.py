@@ -413,6 +413,25 @@ class Trajectory:
             "issues": list(self.issues),
         }
 
+    def to_dataframe(self):
+        """The per-point table as a pandas DataFrame (SI columns of :data:`COLUMNS`, one row per
+        point, plus ``segment``: the kind of segment each point starts); ``df.attrs`` holds the
+        units, method, objective, name and profile. Needs pandas."""
+        try:
+            import pandas as pd
+        except ImportError:  # pragma: no cover - pandas is an optional dependency
+            raise ImportError("Trajectory.to_dataframe needs pandas: pip install pandas") from None
+        df = pd.DataFrame({k: np.array(self.table[k]) for k in COLUMNS})
+        kinds = np.full(self.table.size, "", dtype=object)
+        for seg in self.segments:
+            kinds[seg.start_index:seg.end_index] = seg.kind
+        if self.segments:
+            kinds[-1] = self.segments[-1].kind
+        df["segment"] = kinds
+        df.attrs.update(units=dict(COLUMNS), method=str(self.method),
+                        objective=str(self.objective), name=self.name, profile=self.profile)
+        return df
+
 
 @dataclass(frozen=True)
 class FailedRun:
