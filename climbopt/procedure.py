@@ -124,8 +124,8 @@ class ScheduleNotFlyable(ValueError):
     ----------
     schedule : str
         The schedule's name.
-    altitude_m, tas_m_s, cas_m_s, mach : float
-        Where it fails [m, m/s, m/s, -] (NaN when not applicable).
+    altitude_m, tas_m_s, cas_m_s, mach, mass_kg : float
+        Where it fails [m, m/s, m/s, -] and the mass there [kg] (NaN when not applicable).
     reason : str
         Why, in words.
     limit : str
@@ -140,8 +140,9 @@ class ScheduleNotFlyable(ValueError):
 
     def __init__(self, schedule: str, reason: str, *, altitude_m=math.nan, tas_m_s=math.nan,
                  cas_m_s=math.nan, mach=math.nan, limit: str = "", excess: float = 1.0,
-                 highest_altitude_m=math.nan):
+                 highest_altitude_m=math.nan, mass_kg=math.nan):
         self.schedule = schedule
+        self.mass_kg = float(mass_kg)
         self.altitude_m, self.tas_m_s = float(altitude_m), float(tas_m_s)
         self.cas_m_s, self.mach = float(cas_m_s), float(mach)
         self.reason, self.limit, self.excess = reason, limit, float(excess)
@@ -376,7 +377,8 @@ class _Flight:
         t0, h, v, m, x = self.state
         if not ev(h, value, m, thr, 0.0)[_PS] > 0.0:
             raise self._stopped("ps", h, v, m)
-        sol, what = self.integrate(rhs, [h, m, x], events, [_SCALE_H, self.scale_m, _SCALE_X])
+        sol, what = self.integrate(rhs, [h, m, x], events, [_SCALE_H, self.scale_m, _SCALE_X],
+                                   speed=lambda y: ev(y[0], value, y[1], thr, 0.0)[_V])
         y = np.vstack([sol.y[0], np.full(sol.t.size, np.nan), sol.y[1], sol.y[2]])
         if what == "altitude":
             y[0, -1] = ceiling
@@ -475,10 +477,11 @@ class _Flight:
         return float(self.model.mass_kg)
 
     # -------------------------------------------------------------- integration
-    def integrate(self, rhs, y0, events: dict, scales, t_end=None):
+    def integrate(self, rhs, y0, events: dict, scales, t_end=None, speed=None):
         """solve_ivp from the current time; returns (solution, name of the event that ended it
         or ""). Ps falling to zero, the fuel capacity, leaving the tables and running out of
-        time raise :class:`ScheduleNotFlyable`."""
+        time raise :class:`ScheduleNotFlyable`. ``speed(y)``: TAS [m/s] of a state (default:
+        its second component)."""
         t0 = self.state[0]
         names = list(events)
         evs = list(events.values())
@@ -497,17 +500,19 @@ class _Flight:
         self.steps += sol.t.size - 1
         what = next((n for n, te in zip(names, sol.t_events or []) if te.size), "")
         if sol.status < 0:
-            raise self.not_flyable(f"integration failed: {sol.message}", *self._last(sol, y0))
+            raise self.not_flyable(f"integration failed: {sol.message}",
+                                   *self._last(sol, speed))
         if what in ("ps", "drag", "fuel") or (t_end is None and not what):
-            raise self._stopped(what, *self._last(sol, y0))
+            raise self._stopped(what, *self._last(sol, speed))
         return sol, what
 
-    def _last(self, sol, y0):
-        """(h, V, m) at the end of a solution (V from the state or the current speed)."""
+    @staticmethod
+    def _last(sol, speed):
+        """(h, V, m) at the end of a solution."""
         y = sol.y[:, -1]
-        if len(y0) == 4:
+        if speed is None:
             return float(y[0]), float(y[1]), float(y[2])
-        return float(y[0]), self.state[2], float(y[1])
+        return float(y[0]), float(speed(y)), float(y[1])
 
     def _stopped(self, what, h, v, m):
         if what == "drag":
@@ -523,26 +528,31 @@ class _Flight:
                 f"specific excess power falls to zero before the target (highest altitude "
                 f"reached {_alt_words(h)})", h, v, m, limit="ps", excess=self._left(h))
         return self.not_flyable(
-            f"no useful climb: the flight takes more than {MAX_FLIGHT_S / 3600:g} h (highest "
-            f"altitude reached {_alt_words(h)})", h, v, m, limit="ps", excess=self._left(h))
+            f"specific excess power tends to zero below the target: the climb takes more than "
+            f"{MAX_FLIGHT_S / 3600:g} h (highest altitude reached {_alt_words(h)})", h, v, m,
+            limit="ps", excess=self._left(h))
 
     def _left(self, h: float) -> float:
         """Fraction of the climb not flown [-]."""
         h0 = float(self.pieces[0].y[0, 0]) if self.pieces else self.state[1]
         return max(0.0, (self.target[0] - h) / max(self.target[0] - h0, 1.0))
 
-    def not_flyable(self, reason, h, v, m, *, limit="", excess=1.0) -> ScheduleNotFlyable:
+    def not_flyable(self, reason, h, v, m, *, limit="", excess=1.0,
+                    highest=None) -> ScheduleNotFlyable:
+        """The error at (h, V, m) [m, m/s, kg]; ``highest`` [m] defaults to the highest altitude
+        flown so far."""
         cas = mach = math.nan
         if math.isfinite(h) and math.isfinite(v) and v > 0:
             atm = self.model.atmosphere(min(max(h, self.model.atmosphere.altitude_min_m),
                                             self.model.atmosphere.altitude_max_m))
             mach = v / float(atm.speed_of_sound_m_s)
             cas = float(cas_from_impact_pressure(impact_pressure_pa(mach, float(atm.pressure_pa))))
-        highest = max([h] + [float(np.max(p.y[0])) for p in self.pieces]) if math.isfinite(h) \
-            else math.nan
+        if highest is None:
+            highest = max([h] + [float(np.max(p.y[0])) for p in self.pieces]) \
+                if math.isfinite(h) else math.nan
         return ScheduleNotFlyable(self.name, reason, altitude_m=h, tas_m_s=v, cas_m_s=cas,
                                   mach=mach, limit=limit, excess=excess,
-                                  highest_altitude_m=highest)
+                                  highest_altitude_m=highest, mass_kg=m)
 
     # -------------------------------------------------------------- output points
     def add(self, piece: _Piece, sol, *, climbing: bool, step_s: float = LEVEL_STEP_S):
@@ -659,7 +669,8 @@ def _check_limits(flight: _Flight, cols: dict) -> None:
     else:
         reason = (f"beyond the {r.words} limit by {100.0 * margins[row][i]:.2g} % of the "
                   "limit")
-    raise flight.not_flyable(reason, h, v, m, limit=row, excess=worst)
+    raise flight.not_flyable(reason, h, v, m, limit=row, excess=worst,
+                             highest=float(np.max(cols["altitude_m"][: i + 1])))
 
 
 # ------------------------------------------------------------------------------ flying
