@@ -214,13 +214,18 @@ def _at(column: np.ndarray, fractional_index) -> float:
     return float(np.interp(fractional_index, np.arange(len(column)), column))
 
 
-def top_of_climb_index(trajectory: Trajectory, target_altitude_m: float | None = None) -> int:
-    """Index of the first point at the target altitude (within LEVEL_TOLERANCE_M, 0.5 m), the
-    top of climb; the target defaults to the path's highest altitude."""
+def top_of_climb_index(trajectory: Trajectory, target_altitude_m: float | None = None) -> float:
+    """Fractional point index of the top of climb: the first arrival at the target altitude
+    (defaults to the path's highest altitude). A path that comes within LEVEL_TOLERANCE_M
+    (0.5 m) of the target counts as arrived there; one that overshoots arrives where it
+    crosses the target."""
     h = np.asarray(trajectory.table["altitude_m"], float)
-    target = float(np.max(h)) if target_altitude_m is None else float(target_altitude_m)
-    hit = np.flatnonzero(h >= min(target, float(np.max(h))) - LEVEL_TOLERANCE_M)
-    return int(hit[0])
+    top = float(np.max(h)) if target_altitude_m is None else min(float(target_altitude_m),
+                                                                 float(np.max(h)))
+    i = int(np.flatnonzero(h >= top - LEVEL_TOLERANCE_M)[0])
+    if i > 0 and h[i] > top > h[i - 1]:
+        return (i - 1) + (top - h[i - 1]) / (h[i] - h[i - 1])
+    return float(i)
 
 
 def _segment_at(segments, index: float):
@@ -251,15 +256,16 @@ def climb_schedule(trajectory: Trajectory, step_m: float = STEP_SI_M, *,
     segments = trajectory.segments or derive_segments(t, trajectory.zooms)
     flown = trajectory.method in FLOWN_METHODS
     notes: list[str] = []
-    if np.any(np.diff(h[: toc + 1]) < -1.0):
+    if np.any(np.diff(h[: int(math.ceil(toc)) + 1]) < -1.0):
         notes.append("the path descends somewhere before the top of climb (a dive to gain speed); "
                      "rows give the first time each altitude is reached")
     first = math.floor(h[0] / step_m) * step_m + step_m
-    levels = np.arange(first, h[toc] - LEVEL_TOLERANCE_M, step_m)
-    marks = [(0.0, "start")] + [(float(i), "") for i in _first_passage(h[: toc + 1], levels)]
-    marks.append((float(toc), "top of climb"))
+    levels = np.arange(first, _at(h, toc) - LEVEL_TOLERANCE_M, step_m)
+    marks = [(0.0, "start")] + [(float(i), "") for i in
+                                _first_passage(h[: int(math.ceil(toc)) + 1], levels)]
+    marks.append((toc, "top of climb"))
     marks += [(float(s.end_index), f"end of {s.kind}") for s in segments
-              if s.kind in LEVEL_KINDS and s.end_index != toc]
+              if s.kind in LEVEL_KINDS and abs(s.end_index - toc) > 1e-9]
     last = h.size - 1
     if max(i for i, _ in marks) < last:
         marks.append((float(last), "end"))
@@ -472,7 +478,7 @@ def format_schedule(schedule: ClimbSchedule, units: str = "si") -> str:
     header, rows = schedule_records(schedule, units)
     cells = [header] + [[report._cell(v) for v in r] for r in rows]
     widths = [max(len(r[i]) for r in cells) for i in range(len(header))]
-    out = [f"{_title(schedule)}: {schedule_summary(schedule, units)}"]
+    out = [_title(schedule), schedule_summary(schedule, units)]
     if schedule.conditions is not None:
         out.append(conditions_text(schedule, units))
     for j, r in enumerate(cells):

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -18,24 +17,14 @@ from scipy.integrate import simpson
 from climbopt.aircraft import Domain, build_model
 from climbopt.atmosphere import A0_M_S, P0_PA, RHO0_KG_M3, T0_K, AtmosphereState
 from climbopt.collocation import solve_collocation
-from climbopt.procedure import (ScheduleNotFlyable, best_schedule, best_schedule_spec,
-                                fly_schedule)
+from climbopt.procedure import ScheduleNotFlyable, best_schedule_spec, fly_schedule
 from climbopt.results import Method, Objective
 from climbopt.rutowski import solve_energy_state
-from climbopt.scenario import FlightPoint, Limits, ScheduleSpec, load_scenario
+from climbopt.scenario import FlightPoint, Limits, ScheduleSpec
 from climbopt.schedule import crossover_altitude_m
 
 KT = 1852.0 / 3600.0  # m/s, exact (NIST SP 811)
 FT = 0.3048           # m, exact (NIST SP 811)
-DEMO = Path(__file__).resolve().parents[1] / "scenarios" / "transport_twinjet.toml"
-
-
-@pytest.fixture(scope="module")
-def transport():
-    """(scenario, model) of the demo transport, procedure climb profile."""
-    sc = load_scenario(DEMO)
-    sc = dataclasses.replace(sc, mission=dataclasses.replace(sc.mission, profile="procedure"))
-    return sc, build_model(sc)
 
 
 def _spec(name="250/290/M0.78", cas_kt=290.0, mach=0.78, below_kt=250.0, share=0.5):
