@@ -192,9 +192,9 @@ def _model_function(model, rating: str, law: str):
     """(CasADi Function, fast scalar call) of the quasi-steady point mass for one speed law.
 
     Inputs (h [m], u, m [kg], throttle [-], a [-]); ``u`` is the law's value (CAS [m/s] for
-    "cas", Mach for "mach", TAS [m/s] for "tas" and "free"); ``a`` is dh/dt over Ps for the
-    "free" law (ignored otherwise: the climb correction factor of the law is used; 1 for
-    "tas"). Output rows: see ``_V`` ... ``_ALPHA``. Built once per model, rating and law.
+    "cas", Mach for "mach") or the TAS [m/s] for "free" (the speed is a state); ``a`` is dh/dt
+    over Ps for "free" (ignored otherwise: the climb correction factor of the law is used).
+    Output rows: see ``_V`` ... ``_ALPHA``. Built once per model, rating and law.
     """
     per_model = _FUNCTIONS.setdefault(model, {})
     key = (rating, law)
@@ -213,10 +213,10 @@ def _build_function(model, rating: str, law: str, body: bool):
     sound = atm.speed_of_sound_m_s
     v = {"cas": lambda: mach_from_cas(u, atm.pressure_pa) * sound,
          "mach": lambda: u * sound}.get(law, lambda: u)()
-    if law in ("cas", "mach"):
-        share = 1.0 / (1.0 + v * ca.jacobian(v, h) / G0)  # climb correction factor
+    if law == "free":
+        share = a
     else:
-        share = ca.MX(1.0) if law == "tas" else a
+        share = 1.0 / (1.0 + v * ca.jacobian(v, h) / G0)  # climb correction factor
     mach = v / sound
     q = 0.5 * atm.density_kg_m3 * v * v
     q_s = q * model.reference_area_m2
@@ -247,17 +247,17 @@ class _Memo:
     """The last evaluation of a fast model call, reused by the events at the same state; also
     stops the integration where the state leaves the model's fitted tables."""
 
-    __slots__ = ("call", "key", "value", "domain")
+    __slots__ = ("call", "key", "value", "domain", "free")
 
-    def __init__(self, call, domain):
-        self.call, self.domain, self.key, self.value = call, domain, None, None
+    def __init__(self, call, domain, free: bool):
+        self.call, self.domain, self.free, self.key, self.value = call, domain, free, None, None
 
     def __call__(self, h, u, m, thr, a):
         key = (h, u, m, thr, a)
         if key != self.key:
             d = self.domain
             if not d.altitude_min_m <= h <= d.altitude_max_m:
-                raise _OutsideTables(h, u)
+                raise _OutsideTables(h, u if self.free else math.nan)
             out = self.call(h, u, m, thr, a)
             if not (d.mach_min <= out[_MACH] <= d.mach_max) or not out[_V] > 0.0:
                 raise _OutsideTables(h, out[_V])
@@ -340,7 +340,8 @@ class _Flight:
         return float(value)
 
     def memo(self, law: str) -> _Memo:
-        return _Memo(_model_function(self.model, self.rating, law)[1], self.model.fit_domain)
+        return _Memo(_model_function(self.model, self.rating, law)[1], self.model.fit_domain,
+                     law == "free")
 
     # -------------------------------------------------------------- the sequence
     def run(self):
@@ -450,7 +451,9 @@ class _Flight:
                  climbing=a != 0.0)
 
     def cruise(self, distance_m: float):
-        """Level flight at the target state, thrust = drag, over ``distance_m`` [m]."""
+        """Level flight at the target state, thrust = drag, over ``distance_m`` [m] (where the
+        drag is below the minimum throttle's thrust, fuel flow at the minimum throttle, the
+        surplus thrust ignored, as the energy-state dash does)."""
         ev = self.memo("free")
         t0, h, v, m, x = self.state
         o = ev(h, v, m, 1.0, 0.0)
@@ -458,7 +461,8 @@ class _Flight:
         if thr > self.model.throttle_max * (1.0 + 1e-9):
             raise self.not_flyable(
                 f"level flight at the target state needs throttle {thr:.3f}, more than the "
-                f"rating's {self.model.throttle_max:g}", h, v, m, limit="ps", excess=thr - 1.0)
+                f"rating's {self.model.throttle_max:g}", h, v, m, limit="ps",
+                excess=thr / self.model.throttle_max - 1.0)
 
         def rhs(t, y):
             o = ev(y[0], y[1], y[2], 1.0, 0.0)
@@ -797,7 +801,8 @@ def _notes(fl: _Flight, cols: dict, ranges, scenario) -> tuple[str, ...]:
     for k, (p, (a, b)) in enumerate(zip(fl.pieces, ranges), 1):
         where = (f"{_alt_words(h[a])} to {m_to_ft(h[b]):,.0f} ft" if h[b] - h[a] > 0.5
                  else f"at {_alt_words(h[a])}")
-        notes.append(f"segment {k}: {p.kind}, {p.hold}, {where}: {t[b] - t[a]:.1f} s, "
+        what = f"climb at {p.hold}" if p.kind == "climb" else p.hold
+        notes.append(f"segment {k}: {what}, {where}: {t[b] - t[a]:.1f} s, "
                      f"{fuel[b] - fuel[a]:.1f} kg, {(dist[b] - dist[a]) / 1000:.1f} km")
     dash = scenario.mission.dash_distance_m
     if dash and not any(p.kind == "cruise" for p in fl.pieces):

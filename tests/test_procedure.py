@@ -267,3 +267,20 @@ def test_share_and_level_segments(transport):
     assert cruise.kind == "cruise" and tr.distance_m == pytest.approx(400e3, rel=1e-9)
     assert np.max(np.abs(tr.table.ps_m_s[sl])) < 1e-6
     assert np.all((tr.table.throttle[sl] > m.throttle_min) & (tr.table.throttle[sl] < 1.0))
+
+
+def test_best_schedule_weighted(transport, optima):
+    """Minimum fuel + 2 kg/s x time: the best schedule costs no more than the minimum-time and
+    minimum-fuel schedules flown in the same scenario, and its climb CAS lies between theirs."""
+    sc, m = transport
+    w = 2.0
+    weighted = dataclasses.replace(sc, solver=dataclasses.replace(sc.solver,
+                                                                  cost_weight_kg_per_s=w))
+    spec, best = best_schedule_spec(weighted, m, "weighted")
+    assert best.objective is Objective.WEIGHTED
+    j = best.fuel_kg + w * best.time_s
+    for obj in ("time", "fuel"):
+        other = fly_schedule(weighted, m, optima[obj][1])
+        assert j <= other.fuel_kg + w * other.time_s + 1e-6 * j
+    lo, hi = sorted(optima[o][1].cas_m_s for o in ("time", "fuel"))
+    assert lo - 0.5 * KT <= spec.cas_m_s <= hi + 0.5 * KT
