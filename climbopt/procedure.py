@@ -527,14 +527,17 @@ class _Flight:
             return self.not_flyable(
                 f"the fuel capacity ({self.fuel_capacity_kg:,.0f} kg) is used up before the "
                 "end", h, v, m, limit="fuel", excess=1.0 + self._left(h))
-        if what == "ps":
+        how = ("falls to zero" if what == "ps" else
+               f"tends to zero (more than {MAX_FLIGHT_S / 3600:g} h of flight)")
+        if h >= self.target[0]:
+            v_t = self.target[1]
             return self.not_flyable(
-                f"specific excess power falls to zero before the target (highest altitude "
-                f"reached {_alt_words(h)})", h, v, m, limit="ps", excess=self._left(h))
+                f"at the target altitude the target speed cannot be reached in level flight: "
+                f"specific excess power {how} {100 * (v_t - v) / v_t:.1f} % short of it", h, v,
+                m, limit="ps", excess=abs(v_t - v) / v_t)
         return self.not_flyable(
-            f"specific excess power tends to zero below the target: the climb takes more than "
-            f"{MAX_FLIGHT_S / 3600:g} h (highest altitude reached {_alt_words(h)})", h, v, m,
-            limit="ps", excess=self._left(h))
+            f"specific excess power {how} below the target altitude (highest altitude reached "
+            f"{_alt_words(h)})", h, v, m, limit="ps", excess=self._left(h))
 
     def _left(self, h: float) -> float:
         """Fraction of the climb not flown [-]."""
@@ -842,6 +845,7 @@ class _Search:
     bounds: list  # [(lo, hi)] per scaled variable: restriction CAS [kt], climb CAS [kt], 100 M
     flights: int = 0
     scale: float = math.nan
+    closest: tuple | None = None  # (error, schedule) of the candidate that failed least
 
     def spec(self, x, name="candidate") -> ScheduleSpec:
         """The schedule of scaled variables ``x`` (restriction CAS, climb CAS, 100 Mach)."""
@@ -853,12 +857,28 @@ class _Search:
     def fly(self, x) -> tuple[float | None, float]:
         """(objective of the flight of ``x`` or None when it cannot be flown, excess)."""
         self.flights += 1
+        spec = self.spec(x)
         try:
-            fl, _, _ = _fly(self.scenario, self.model, self.spec(x), self.envelope, dense=False,
+            fl, _, _ = _fly(self.scenario, self.model, spec, self.envelope, dense=False,
                             rtol=SEARCH_RTOL)
         except ScheduleNotFlyable as exc:
+            if self.closest is None or exc.excess < self.closest[0].excess:
+                self.closest = (exc, spec)
             return None, min(exc.excess, 10.0)
         return self.cost(fl.state[0], self.model.mass_kg - fl.state[3]), 0.0
+
+    def nothing_flyable(self, what: str) -> ScheduleNotFlyable:
+        """The error when no candidate flies: the closest failure, where and why."""
+        reason = f"no {what} can be flown"
+        if self.closest is None:
+            return ScheduleNotFlyable(f"best {self.objective}", reason, limit="envelope")
+        c, spec = self.closest
+        return ScheduleNotFlyable(
+            f"best {self.objective}",
+            f"{reason}; the closest, {_schedule_name(spec)}, fails there: {c.reason}",
+            altitude_m=c.altitude_m, tas_m_s=c.tas_m_s, cas_m_s=c.cas_m_s, mach=c.mach,
+            limit=c.limit, excess=c.excess, highest_altitude_m=c.highest_altitude_m,
+            mass_kg=c.mass_kg)
 
     def value(self, x) -> float:
         """Objective of the flight of ``x``; an unflyable one costs (PENALTY + excess) times
@@ -954,8 +974,7 @@ def _flyable_start(search: _Search, x0: list) -> list:
             if j is not None and (best_j is None or j < best_j):
                 best, best_j = list(x), j
     if best_j is None:
-        raise ScheduleNotFlyable(f"best {search.objective}", "no constant schedule of the "
-                                 "search box can be flown", limit="envelope")
+        raise search.nothing_flyable("constant schedule of the search box")
     search.scale = abs(best_j)
     return best
 
@@ -975,8 +994,7 @@ def _rounded(search: _Search, x) -> tuple[list, int]:
         if j is not None and j < best_j:
             best, best_j = list(cand), j
     if best is None:
-        raise ScheduleNotFlyable(f"best {search.objective}", "no rounded neighbour of the best "
-                                 "schedule can be flown", limit="envelope")
+        raise search.nothing_flyable("whole-knot / 0.01-Mach neighbour of the best schedule")
     return best, n
 
 

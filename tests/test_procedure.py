@@ -216,8 +216,9 @@ def test_unflyable_restriction_and_malformed(transport):
 
 def test_unflyable_no_climb_and_fuel(transport):
     """At 45 % thrust the climb stalls below the target (the error gives the highest altitude
-    reached, where Ps is nearly zero); with 500 kg of fuel the capacity runs out where the
-    full flight has burnt 500 kg."""
+    reached, where Ps is nearly zero); at 62 % the target Mach cannot be reached level at the
+    target altitude; with 500 kg of fuel the capacity runs out where the full flight has burnt
+    500 kg."""
     sc, m = transport
     weak = dataclasses.replace(sc, propulsion=dataclasses.replace(sc.propulsion,
                                                                   thrust_scale=0.45))
@@ -231,6 +232,12 @@ def test_unflyable_no_climb_and_fuel(transport):
     ps0 = float(mw.evaluate(start.altitude_m, start.tas_m_s, mw.mass_kg, rating="climb").ps_m_s)
     assert e.cas_m_s == pytest.approx(290 * KT, rel=1e-6)  # in the 290 kt hold
     assert 0.0 < ps < 0.02 * ps0
+    weaker = dataclasses.replace(sc, propulsion=dataclasses.replace(sc.propulsion,
+                                                                    thrust_scale=0.62))
+    with pytest.raises(ScheduleNotFlyable, match="target speed cannot be reached") as err:
+        fly_schedule(weaker, build_model(weaker), _spec(cas_kt=250.0, mach=0.70))
+    assert err.value.altitude_m == pytest.approx(35_000 * FT, abs=0.5)
+    assert 0.70 < err.value.mach < 0.78
     full = fly_schedule(sc, m, _spec())
     h_500 = np.interp(500.0, full.table.fuel_used_kg, full.table.altitude_m)
     small = dataclasses.replace(sc, aircraft=dataclasses.replace(sc.aircraft,
