@@ -18,7 +18,7 @@ the optimum holds more nearly constant around that altitude.
 Everything is SI inside; :func:`schedule_records`, :func:`write_schedule_csv`,
 :func:`format_schedule` and :func:`schedule_summary` convert to the display units of
 :mod:`climbopt.report` (ft, kt, ft/min, lb, nmi for ``"us"``), speeds as flown: whole knots
-(or m/s), Mach to 0.01.
+(0.1 m/s in SI), Mach to 0.01.
 """
 
 from __future__ import annotations
