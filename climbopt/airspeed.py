@@ -70,10 +70,40 @@ def _rayleigh_ratio(mach, power=np.power):
     )
 
 
-def _log_rayleigh_ratio(mach):
+def _log_rayleigh_ratio(mach, log=np.log):
     """Natural logarithm of :func:`_rayleigh_ratio` (M >= 1), cheaper than the powers."""
     m2 = mach * mach
-    return _EXP * np.log(0.5 * (_G + 1.0) * m2) + np.log((_G + 1.0) / (2.0 * _G * m2 - (_G - 1.0))) / (_G - 1.0)
+    return _EXP * log(0.5 * (_G + 1.0) * m2) + log((_G + 1.0) / (2.0 * _G * m2 - (_G - 1.0))) / (_G - 1.0)
+
+
+def _newton_step_rayleigh(mach, log_ratio, log=np.log):
+    """One Newton step on ln(Rayleigh ratio)(M) = ``log_ratio`` (M >= 1), unclamped."""
+    m2 = mach * mach
+    # d ln(ratio) / dM of the Rayleigh formula
+    dlog = 2.0 * _EXP / mach - 2.0 / (_G - 1.0) * 2.0 * _G * mach / (2.0 * _G * m2 - (_G - 1.0))
+    return (_log_rayleigh_ratio(mach, log) - log_ratio) / dlog
+
+
+#: Large-M asymptote of the Rayleigh formula: ratio ~ _RAYLEIGH_SLOPE M^2 (gamma = 1.4).
+_RAYLEIGH_SLOPE = float(_rayleigh_ratio(10.0) / 100.0)
+#: Newton steps of the CasADi inversion: from the asymptote, 4 steps reach 2e-15 relative for
+#: 1 <= M <= 4 (measured); one more for margin.
+_CASADI_NEWTON_STEPS = 5
+
+
+def _mach_from_pitot_ratio_casadi(ratio):
+    """CasADi twin of :func:`_mach_from_pitot_ratio`: closed-form subsonic branch, a fixed
+    number of Newton steps on the supersonic branch; both branches evaluated at valid
+    arguments (the result is chosen with ``casadi.if_else``) so derivatives stay finite."""
+    import casadi as ca
+
+    sub = ca.sqrt(ca.fmax(2.0 / (_G - 1.0) * (ca.power(ratio, 1.0 / _EXP) - 1.0), 0.0))
+    r_sup = ca.fmax(ratio, _RATIO_AT_SONIC)
+    log_r = ca.log(r_sup)
+    m = ca.fmax(ca.sqrt(r_sup / _RAYLEIGH_SLOPE), 1.0)
+    for _ in range(_CASADI_NEWTON_STEPS):
+        m = ca.fmax(m - _newton_step_rayleigh(m, log_r, ca.log), 1.0)
+    return ca.if_else(ratio <= _RATIO_AT_SONIC, sub, m)
 
 
 def _as_nonnegative(value, name: str) -> np.ndarray:
@@ -141,13 +171,10 @@ def _mach_from_pitot_ratio(ratio: np.ndarray) -> np.ndarray:
     if np.any(~sub):
         r = ratio[~sub]
         # Large-M asymptote of the Rayleigh formula: ratio ~ 1.2876 M^2 (gamma = 1.4); start above 1.
-        m = np.maximum(np.sqrt(r / float(_rayleigh_ratio(10.0) / 100.0)), 1.0)
+        m = np.maximum(np.sqrt(r / _RAYLEIGH_SLOPE), 1.0)
         log_r = np.log(r)
         for _ in range(50):
-            m2 = m * m
-            # d ln(ratio) / dM of the Rayleigh formula
-            dlog = 2.0 * _EXP / m - 2.0 / (_G - 1.0) * 2.0 * _G * m / (2.0 * _G * m2 - (_G - 1.0))
-            step = (_log_rayleigh_ratio(m) - log_r) / dlog
+            step = _newton_step_rayleigh(m, log_r)
             m = np.maximum(m - step, 1.0)
             # Quadratic convergence: once the step is 1e-12 M the remaining error is at round-off.
             if np.all(np.abs(step) <= 1e-12 * m):
@@ -160,7 +187,10 @@ def _mach_from_pitot_ratio(ratio: np.ndarray) -> np.ndarray:
 
 def mach_from_impact_pressure(impact_pressure_pa_, pressure_pa):
     """Mach number from impact pressure qc [Pa] and static pressure p [Pa] (inverse of
-    :func:`impact_pressure_pa`, both branches)."""
+    :func:`impact_pressure_pa`, both branches). Numpy arrays/floats or CasADi symbols (the
+    supersonic branch then takes a fixed number of Newton steps, converged to rounding)."""
+    if _is_casadi(impact_pressure_pa_) or _is_casadi(pressure_pa):
+        return _mach_from_pitot_ratio_casadi(impact_pressure_pa_ / pressure_pa + 1.0)
     qc = _as_nonnegative(impact_pressure_pa_, "impact_pressure_pa")
     p = _as_positive(pressure_pa, "pressure_pa")
     return _out(_mach_from_pitot_ratio(qc / p + 1.0))
@@ -174,7 +204,10 @@ def cas_from_impact_pressure(impact_pressure_pa_):
 
 
 def impact_pressure_from_cas(cas_m_s):
-    """Impact pressure qc [Pa] that corresponds to calibrated airspeed ``cas_m_s`` [m/s]."""
+    """Impact pressure qc [Pa] that corresponds to calibrated airspeed ``cas_m_s`` [m/s]
+    (numpy or CasADi)."""
+    if _is_casadi(cas_m_s):
+        return impact_pressure_pa(cas_m_s / A0_M_S, P0_PA)
     cas = _as_nonnegative(cas_m_s, "cas_m_s")
     return impact_pressure_pa(cas / A0_M_S, P0_PA)
 
@@ -185,7 +218,8 @@ def cas_from_mach(mach, pressure_pa):
 
 
 def mach_from_cas(cas_m_s, pressure_pa):
-    """Mach number at calibrated airspeed ``cas_m_s`` [m/s] and static pressure ``pressure_pa`` [Pa]."""
+    """Mach number at calibrated airspeed ``cas_m_s`` [m/s] and static pressure ``pressure_pa`` [Pa]
+    (numpy or CasADi)."""
     return mach_from_impact_pressure(impact_pressure_from_cas(cas_m_s), pressure_pa)
 
 

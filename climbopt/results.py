@@ -102,6 +102,10 @@ class PointTable(Mapping):
     def __setattr__(self, name, value):
         raise AttributeError("PointTable is read-only")
 
+    def __reduce__(self):
+        """Pickle support (process pools): rebuilt from its columns."""
+        return (PointTable, (dict(self._cols),))
+
     @property
     def size(self) -> int:
         """Number of points."""
@@ -136,8 +140,8 @@ class Zoom:
 
 
 #: Segment kinds of a climb, in the words the crew tables use.
-SEGMENT_KINDS = ("climb", "accelerate", "level acceleration", "level deceleration", "level",
-                 "cruise", "dash", "descent", "zoom")
+SEGMENT_KINDS = ("climb", "accelerate", "decelerate", "level acceleration", "level deceleration",
+                 "level", "cruise", "dash", "descent", "zoom")
 
 #: Altitude change [m] and speed change [m/s] between two points below which a step counts as
 #: level flight, and as constant speed.
@@ -149,8 +153,8 @@ SPEED_TOLERANCE_M_S = 0.05
 class Segment:
     """A part of a trajectory flown one way, between two points of its table (inclusive).
 
-    ``kind``: "climb" (climbing at the scheduled or optimal speed), "accelerate" (climbing while
-    changing speed with a share of the excess power), "level acceleration" (level flight, speed
+    ``kind``: "climb" (climbing at the scheduled or optimal speed), "accelerate" / "decelerate"
+    (climbing while changing speed with a share of the excess power), "level acceleration" (level flight, speed
     changing, e.g. at the target altitude), "level" / "cruise" / "dash" (level flight at constant
     speed), "zoom" (an instantaneous energy-state exchange). ``hold``: what is held, e.g.
     "CAS 290 kt" in words chosen by the solver (SI values in ``cas_m_s`` / ``mach``).
@@ -281,6 +285,34 @@ class Verification:
 
 
 @dataclass(frozen=True)
+class ReferenceComparison:
+    """A result measured against a reference result (e.g. a best flyable schedule against the
+    collocation optimum of the same objective): differences are result minus reference.
+
+    ``reference``: the reference's label; ``objective``: the objective compared;
+    ``time_s`` / ``fuel_kg``: the reference's time [s] and fuel [kg]; ``time_difference_s`` [s],
+    ``fuel_difference_kg`` [kg]; ``objective_difference``: in the objective's unit (s for time,
+    kg for fuel and for the weighted fuel + w t); ``objective_difference_relative``: that over
+    the reference's objective value [-] (the penalty of the result).
+    """
+
+    reference: str
+    objective: Objective
+    time_s: float
+    fuel_kg: float
+    time_difference_s: float
+    fuel_difference_kg: float
+    objective_difference: float
+    objective_difference_relative: float
+
+    def as_dict(self) -> dict:
+        """JSON-ready record (SI)."""
+        d = dataclasses.asdict(self)
+        d["objective"] = str(self.objective)
+        return d
+
+
+@dataclass(frozen=True)
 class Trajectory:
     """One solution of one method for one objective, or one flown schedule.
 
@@ -316,6 +348,9 @@ class Trajectory:
         "procedure" or "free" (the climb profile the result obeys).
     name : str
         Name of a flown schedule ("" otherwise).
+    reference : ReferenceComparison or None
+        The comparison with a reference result (best flyable schedules against the
+        collocation optimum, when it was given).
     """
 
     method: Method
@@ -333,6 +368,7 @@ class Trajectory:
     controls: Controls | None = None
     profile: str = "free"
     name: str = ""
+    reference: ReferenceComparison | None = None
 
     def __post_init__(self):
         object.__setattr__(self, "method", Method(self.method))
@@ -468,4 +504,5 @@ class FailedRun:
 Result = Trajectory | FailedRun
 
 __all__ = ["COLUMNS", "Controls", "FailedRun", "Method", "Objective", "PointTable", "Result",
+           "ReferenceComparison",
            "SEGMENT_KINDS", "Segment", "derive_segments", "StateValues", "Trajectory", "Verification", "Zoom"]

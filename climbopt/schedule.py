@@ -1,25 +1,37 @@
-"""Crew-style climb schedules: the speed to fly at round altitudes, CAS below the crossover
-altitude and Mach above it, with the time, fuel and ground distance from the start.
+"""Crew-style climb schedules: what to fly at round altitudes, with the rate of climb and the
+time, fuel and ground distance from the start; as records, CSV and plain text.
 
-Crews and flight-management systems fly a climb as constant calibrated airspeed (CAS) until the
-Mach number reached at that CAS equals the planned climb Mach, then constant Mach (common
-practice, no source). The altitude where a CAS and a Mach number give the same speed is the
-*crossover altitude*. It depends only on the static pressure (the impact pressure is a function
-of CAS alone, and of Mach and static pressure), so on a non-standard day it is the same pressure
-altitude as on a standard day.
+Crews fly a climb as constant calibrated airspeed (CAS) until the Mach number reached at that
+CAS equals the planned climb Mach, then constant Mach (common practice, no source). The altitude
+where a CAS and a Mach number give the same speed is the *crossover altitude*. It depends only
+on the static pressure (the impact pressure is a function of CAS alone, and of Mach and static
+pressure), so on a non-standard day it is the same pressure altitude as on a standard day.
 
-Everything here is SI; conversion to feet and knots happens in :mod:`climbopt.report`.
+A table (:func:`climb_schedule`) has a row at the start, at every round altitude (first
+passage), at the **top of climb** (the *first* arrival at the target altitude), at the end of
+every level segment (level acceleration or deceleration, cruise) and at the end. For a flown
+schedule (:mod:`climbopt.procedure`) each row states the schedule's instruction for its segment
+("272 kt", "M 0.72", "accelerate to 272 kt", "level, accelerate to M 0.78"); for an optimal path
+(energy-state, collocation) the rows give the optimum's own speeds, as CAS or Mach, whichever
+the optimum holds more nearly constant around that altitude.
+
+Everything is SI inside; :func:`schedule_records`, :func:`write_schedule_csv`,
+:func:`format_schedule` and :func:`schedule_summary` convert to the display units of
+:mod:`climbopt.report` (ft, kt, ft/min, lb, nmi for ``"us"``), speeds as flown: whole knots
+(0.1 m/s in SI), Mach to 0.01.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+import math
+from dataclasses import asdict, dataclass, field, replace
+from pathlib import Path
 
 import numpy as np
 
-from climbopt.airspeed import impact_pressure_from_cas, impact_pressure_pa, tas_from_speed
-from climbopt.atmosphere import altitude_from_pressure, standard_atmosphere
-from climbopt.results import Trajectory
+from climbopt.airspeed import impact_pressure_from_cas, impact_pressure_pa
+from climbopt.atmosphere import altitude_from_pressure
+from climbopt.results import LEVEL_TOLERANCE_M, Method, Trajectory, derive_segments
 from climbopt.units import ft_to_m
 
 #: Row spacing of schedules printed in US units (2,000 ft) and in SI units (500 m).
@@ -65,58 +77,118 @@ def crossover_altitude_m(cas_m_s: float, mach: float) -> float:
             "outside the standard atmosphere") from None
 
 
+#: Segment kinds flown level; each gets a row of its own at its end.
+LEVEL_KINDS = ("level acceleration", "level deceleration", "level", "cruise", "dash")
+#: Schedules of these methods are flown schedules: their rows state the schedule.
+FLOWN_METHODS = (Method.SCHEDULE, Method.BEST_SCHEDULE)
+
+
+@dataclass(frozen=True)
+class Conditions:
+    """What a schedule was computed for (SI): start mass [kg], temperature deviation from the
+    standard day [K], engine rating, climb profile ("procedure" or "free"), target altitude [m]
+    and the limits: max CAS [m/s], max Mach, CAS restriction (CAS [m/s], below altitude [m]),
+    altitude range [m] (None: no limit)."""
+
+    mass_kg: float
+    temperature_offset_k: float
+    rating: str
+    profile: str
+    target_altitude_m: float
+    max_cas_m_s: float | None = None
+    max_mach: float | None = None
+    cas_restriction: tuple[float, float] | None = None
+    min_altitude_m: float | None = None
+    max_altitude_m: float | None = None
+
+
+def conditions_of(scenario, profile: str | None = None) -> Conditions:
+    """The :class:`Conditions` of ``scenario`` (``profile`` defaults to the mission's)."""
+    lim = scenario.limits
+    return Conditions(
+        mass_kg=float(scenario.aircraft.mass_kg),
+        temperature_offset_k=float(scenario.atmosphere.temperature_offset_k),
+        rating=scenario.mission.rating or scenario.propulsion.default_rating,
+        profile=profile or getattr(scenario.mission, "profile", "free"),
+        target_altitude_m=float(scenario.mission.target.altitude_m),
+        max_cas_m_s=lim.max_cas_m_s, max_mach=lim.max_mach, cas_restriction=lim.cas_restriction,
+        min_altitude_m=lim.min_altitude_m, max_altitude_m=lim.max_altitude_m)
+
+
 @dataclass(frozen=True)
 class ScheduleRow:
     """One row of a climb schedule (SI).
 
-    ``fly`` is "CAS" below the crossover altitude and "Mach" at or above it; ``point`` is
-    "start", "" (a round altitude), "top of climb" or "end" (end of a level leg after the climb).
-    ``time_s``, ``fuel_kg`` and ``distance_m`` are counted from the start of the trajectory.
+    ``altitude_m`` [m]; ``action``: the segment the row lies in ("climb", "accelerate",
+    "decelerate", "level acceleration", "level deceleration", "cruise", ..., "zoom");
+    ``fly``: the indication to hold, "CAS" or "Mach"; ``target_cas_m_s`` / ``target_mach``:
+    the schedule's speed for that segment (flown schedules; None for an optimum);
+    ``cas_m_s`` [m/s], ``mach``, ``tas_m_s`` [m/s], ``rate_of_climb_m_s`` [m/s] (V sin gamma)
+    as flown at the row; ``time_s`` [s], ``fuel_kg`` [kg], ``distance_m`` [m] from the start;
+    ``point``: "start", "" (a round altitude), "top of climb", "end of <level segment kind>"
+    or "end".
     """
 
     altitude_m: float
+    action: str
     fly: str
     cas_m_s: float
     mach: float
     tas_m_s: float
+    rate_of_climb_m_s: float
     time_s: float
     fuel_kg: float
     distance_m: float
     point: str = ""
+    target_cas_m_s: float | None = None
+    target_mach: float | None = None
 
 
 @dataclass
 class ClimbSchedule:
-    """A crew-style climb schedule derived from one trajectory.
+    """A crew-style climb schedule of one trajectory.
 
     Attributes
     ----------
-    method, objective : str
-        Copied from the trajectory.
+    method, objective, name : str
+        Copied from the trajectory (``name``: the flown schedule's name, "" otherwise).
     rows : list[ScheduleRow]
-        Start, every round altitude, top of climb (and end of a level leg, if any).
+        Start, round altitudes, top of climb, ends of level segments, end.
     step_m : float
         Spacing of the round altitudes [m].
-    climb_cas_m_s : float
-        The constant CAS [m/s] of the two-segment (CAS, then Mach) schedule closest to the
-        trajectory's own speeds.
-    climb_mach : float
-        The constant Mach number of that schedule.
-    crossover_altitude_m : float
-        Where ``climb_cas_m_s`` and ``climb_mach`` are the same speed [m]. At or above the top of
-        climb means "fly CAS all the way"; at or below the start means "Mach all the way".
+    flown : bool
+        True for a flown schedule (rows state the schedule), False for an optimum.
+    holds : list[tuple[str, float, float]]
+        Flown schedules: each climb hold in order as (indication "CAS"/"Mach", value [m/s or
+        -], altitude where it ends [m]); empty for an optimum.
+    crossover_altitude_m : float or None
+        Flown schedules: where the CAS hold gives way to the Mach hold [m] (None: CAS all the
+        way, or an optimum).
+    top_of_climb : ScheduleRow
+        The first arrival at the target altitude.
+    conditions : Conditions or None
+        What the schedule was computed for (None when no scenario was given).
     notes : list[str]
-        Caveats (descents inside the climb, CAS restrictions left out of the fit, ...).
+        Caveats (e.g. a path that descends before the top of climb).
     """
 
     method: str
     objective: str
+    name: str
     rows: list[ScheduleRow]
     step_m: float
-    climb_cas_m_s: float
-    climb_mach: float
-    crossover_altitude_m: float
+    flown: bool
+    holds: list
+    crossover_altitude_m: float | None
+    top_of_climb: ScheduleRow
+    conditions: Conditions | None = None
     notes: list[str] = field(default_factory=list)
+
+    def as_dict(self) -> dict:
+        """JSON-ready record (SI)."""
+        d = asdict(self)
+        d["method"], d["objective"] = str(self.method), str(self.objective)
+        return d
 
 
 def _first_passage(altitude_m: np.ndarray, levels_m: np.ndarray) -> np.ndarray:
@@ -137,99 +209,281 @@ def _first_passage(altitude_m: np.ndarray, levels_m: np.ndarray) -> np.ndarray:
     return out
 
 
-def _at(column: np.ndarray, fractional_index: np.ndarray) -> np.ndarray:
-    """Linear interpolation of a column at fractional indices."""
-    return np.interp(fractional_index, np.arange(len(column)), column)
+def _at(column: np.ndarray, fractional_index) -> float:
+    """Linear interpolation of a column at a fractional index."""
+    return float(np.interp(fractional_index, np.arange(len(column)), column))
 
 
-def fit_cas_mach(altitude_m, cas_m_s, mach, tas_m_s, temperature_offset_k: float = 0.0):
-    """Best two-segment crew schedule for a climb given as samples ascending in altitude.
+def top_of_climb_index(trajectory: Trajectory, target_altitude_m: float | None = None) -> float:
+    """Fractional point index of the top of climb: the first arrival at the target altitude
+    (defaults to the path's highest altitude). A path that comes within LEVEL_TOLERANCE_M
+    (0.5 m) of the target counts as arrived there; one that overshoots arrives where it
+    crosses the target."""
+    h = np.asarray(trajectory.table["altitude_m"], float)
+    top = float(np.max(h)) if target_altitude_m is None else min(float(target_altitude_m),
+                                                                 float(np.max(h)))
+    i = int(np.flatnonzero(h >= top - LEVEL_TOLERANCE_M)[0])
+    if i > 0 and h[i] > top > h[i - 1]:
+        return (i - 1) + (top - h[i - 1]) / (h[i] - h[i - 1])
+    return float(i)
 
-    Candidates are the trajectory's own (CAS, Mach) pairs at each sample altitude h_x: flying
-    that CAS below h_x and that Mach above it gives a continuous true airspeed. The candidate with
-    the least mean squared relative TAS difference to the samples is returned as
-    ``(cas_m_s, mach, crossover_altitude_m)``. (A least-squares fit of our own; common practice
-    is to pick the pair by hand from the optimal speeds.)
-    """
-    h = np.asarray(altitude_m, float)
-    cas = np.asarray(cas_m_s, float)
-    m = np.asarray(mach, float)
-    v = np.asarray(tas_m_s, float)
-    sound = standard_atmosphere(h, temperature_offset_k).speed_of_sound_m_s
-    best = (np.inf, 0)
-    for k in range(len(h)):
-        v_cas = np.asarray(tas_from_speed("cas", cas[k], h, temperature_offset_k), float)
-        v_mach = m[k] * sound
-        v_sched = np.where(h < h[k], v_cas, v_mach)
-        err = float(np.mean(((v_sched - v) / v) ** 2))
-        if err < best[0] - 1e-15:
-            best = (err, k)
-    k = best[1]
-    try:
-        h_x = crossover_altitude_m(cas[k], m[k])
-    except ValueError:
-        h_x = float(h[k])
-    return float(cas[k]), float(m[k]), h_x
+
+def _segment_at(segments, index: float):
+    """The segment holding (fractional) point ``index`` (the later one at a shared end)."""
+    inside = [s for s in segments if s.start_index <= index <= s.end_index]
+    if not inside:
+        return None
+    after = [s for s in inside if s.start_index <= index < s.end_index]
+    return (after or inside)[-1]
 
 
 def climb_schedule(trajectory: Trajectory, step_m: float = STEP_SI_M, *,
-                   temperature_offset_k: float = 0.0,
-                   fit_above_m: float | None = None) -> ClimbSchedule:
-    """Crew-style climb schedule of ``trajectory`` at round altitudes every ``step_m`` metres.
+                   scenario=None) -> ClimbSchedule:
+    """Crew-style climb schedule of ``trajectory`` with round altitudes every ``step_m`` [m].
 
-    Each row gives the trajectory's own speed where it first reaches that altitude, to be flown
-    as CAS below the crossover altitude and as Mach above it (see :func:`fit_cas_mach` for how
-    the crossover is chosen), and the time [s], fuel [kg] and ground distance [m] from the start.
-    ``fit_above_m`` leaves out of the fit the part of the climb below that altitude (e.g. a
-    250 kt restriction below 10,000 ft, flown separately).
+    Rows (see the module docstring): start, each round altitude at its first passage, the top
+    of climb (first arrival at the scenario's target altitude, or at the path's highest
+    altitude without a scenario), the end of every level segment and the end. ``scenario``
+    supplies the target altitude and the :class:`Conditions` of the header.
     """
     if not step_m > 0.0:
         raise ValueError(f"step_m must be positive, got {step_m}")
     t = trajectory.table
-    h = t["altitude_m"]
-    top = int(np.argmax(h))
-    h_start, h_top = float(h[0]), float(h[top])
+    h = np.asarray(t["altitude_m"], float)
+    conditions = None if scenario is None else conditions_of(scenario, trajectory.profile)
+    toc = top_of_climb_index(trajectory, None if conditions is None
+                             else conditions.target_altitude_m)
+    segments = trajectory.segments or derive_segments(t, trajectory.zooms)
+    flown = trajectory.method in FLOWN_METHODS
     notes: list[str] = []
-    if np.any(np.diff(h[: top + 1]) < -1.0):
+    if np.any(np.diff(h[: int(math.ceil(toc)) + 1]) < -1.0):
         notes.append("the path descends somewhere before the top of climb (a dive to gain speed); "
                      "rows give the first time each altitude is reached")
-
-    first = np.floor(h_start / step_m) * step_m + step_m
-    levels = np.arange(first, h_top - 1e-6, step_m) if h_top > first else np.empty(0)
-    fine_levels = np.linspace(h_start, h_top, 200) if h_top > h_start else np.array([h_start])
-    if fit_above_m is not None:
-        kept = fine_levels[fine_levels >= fit_above_m]
-        if kept.size >= 2:
-            fine_levels = kept
-            notes.append("crossover fitted above the speed-restriction altitude only")
-
-    idx_fine = _first_passage(h, fine_levels)
-    cas_x, mach_x, h_x = fit_cas_mach(
-        _at(h, idx_fine), _at(t["cas_m_s"], idx_fine), _at(t["mach"], idx_fine),
-        _at(t["tas_m_s"], idx_fine), temperature_offset_k)
-
-    def row(fidx: float, point: str) -> ScheduleRow:
-        fi = np.array([fidx])
-        alt = float(_at(h, fi)[0])
-        return ScheduleRow(
-            altitude_m=alt,
-            fly="CAS" if alt < h_x else "Mach",
-            cas_m_s=float(_at(t["cas_m_s"], fi)[0]),
-            mach=float(_at(t["mach"], fi)[0]),
-            tas_m_s=float(_at(t["tas_m_s"], fi)[0]),
-            time_s=float(_at(t["time_s"], fi)[0] - t["time_s"][0]),
-            fuel_kg=float(_at(t["fuel_used_kg"], fi)[0] - t["fuel_used_kg"][0]),
-            distance_m=float(_at(t["distance_m"], fi)[0] - t["distance_m"][0]),
-            point=point,
-        )
-
-    rows = [row(0.0, "start")]
-    rows += [row(fi, "") for fi in _first_passage(h, levels)]
-    if top > 0:
-        rows.append(row(float(top), "top of climb"))
-    last = len(h) - 1
-    if last > top:
-        rows.append(row(float(last), "end"))
+    first = math.floor(h[0] / step_m) * step_m + step_m
+    levels = np.arange(first, _at(h, toc) - LEVEL_TOLERANCE_M, step_m)
+    marks = [(0.0, "start")] + [(float(i), "") for i in
+                                _first_passage(h[: int(math.ceil(toc)) + 1], levels)]
+    marks.append((toc, "top of climb"))
+    marks += [(float(s.end_index), f"end of {s.kind}") for s in segments
+              if s.kind in LEVEL_KINDS and abs(s.end_index - toc) > 1e-9]
+    last = h.size - 1
+    if max(i for i, _ in marks) < last:
+        marks.append((float(last), "end"))
+    marks.sort(key=lambda m: m[0])
+    rows = [_row(t, i, point, _segment_at(segments, i), flown) for i, point in marks]
+    if not flown:
+        rows = _choose_indication(rows)
+    holds = _holds(t, segments) if flown else []
+    crossover = next((float(h[s.start_index]) for s in segments
+                      if s.kind == "climb" and s.mach is not None and s.cas_m_s is None), None)
+    if crossover is not None and abs(crossover - h[0]) < LEVEL_TOLERANCE_M:
+        crossover = None  # Mach from the start: no crossover on this climb
     return ClimbSchedule(
-        method=trajectory.method, objective=trajectory.objective, rows=rows, step_m=float(step_m),
-        climb_cas_m_s=cas_x, climb_mach=mach_x, crossover_altitude_m=h_x, notes=notes)
+        method=str(trajectory.method), objective=str(trajectory.objective), name=trajectory.name,
+        rows=rows, step_m=float(step_m), flown=flown, holds=holds,
+        crossover_altitude_m=crossover, top_of_climb=next(r for r in rows
+                                                          if r.point == "top of climb"),
+        conditions=conditions, notes=notes)
+
+
+def _row(t, i: float, point: str, segment, flown: bool) -> ScheduleRow:
+    """A row at fractional point index ``i`` (values interpolated along the table)."""
+    action = segment.kind if segment is not None else "climb"
+    target_cas = target_mach = None
+    fly = "CAS"
+    if flown and segment is not None:
+        target_cas, target_mach = segment.cas_m_s, segment.mach
+        fly = "Mach" if target_cas is None and target_mach is not None else "CAS"
+    gam = _at(t["flight_path_angle_rad"], i)
+    return ScheduleRow(
+        altitude_m=_at(t["altitude_m"], i), action=action, fly=fly,
+        cas_m_s=_at(t["cas_m_s"], i), mach=_at(t["mach"], i), tas_m_s=_at(t["tas_m_s"], i),
+        rate_of_climb_m_s=_at(t["tas_m_s"], i) * math.sin(gam),
+        time_s=_at(t["time_s"], i) - float(t["time_s"][0]),
+        fuel_kg=_at(t["fuel_used_kg"], i) - float(t["fuel_used_kg"][0]),
+        distance_m=_at(t["distance_m"], i) - float(t["distance_m"][0]), point=point,
+        target_cas_m_s=target_cas, target_mach=target_mach)
+
+
+def _choose_indication(rows: list[ScheduleRow]) -> list[ScheduleRow]:
+    """Optimal paths: at each row, fly CAS or Mach, whichever the optimum holds more nearly
+    constant between the neighbouring rows (smaller relative change per metre of altitude)."""
+    out = []
+    for k, r in enumerate(rows):
+        a, b = rows[max(k - 1, 0)], rows[min(k + 1, len(rows) - 1)]
+        dh = b.altitude_m - a.altitude_m
+        if abs(dh) <= LEVEL_TOLERANCE_M or min(a.cas_m_s, b.cas_m_s, a.mach, b.mach) <= 0.0:
+            fly = out[-1].fly if out else "CAS"
+        else:
+            d_cas = abs(math.log(b.cas_m_s / a.cas_m_s))
+            d_mach = abs(math.log(b.mach / a.mach))
+            fly = "CAS" if d_cas <= d_mach else "Mach"
+        out.append(replace(r, fly=fly))
+    return out
+
+
+def _holds(t, segments) -> list[tuple[str, float, float]]:
+    """Flown schedules: the climb holds in order, (indication, value, end altitude [m])."""
+    out = []
+    for s in segments:
+        if s.kind != "climb":
+            continue
+        fly, value = ("CAS", s.cas_m_s) if s.cas_m_s is not None else ("Mach", s.mach)
+        out.append((fly, float(value), float(t["altitude_m"][s.end_index])))
+    return out
+
+
+# ------------------------------------------------------------------------------ display
+# Display units and the CSV helpers are those of climbopt.report (imported where used:
+# report imports this module).
+
+def _units(units: str):
+    from climbopt import report
+
+    report._check_units(units)
+    return report
+
+
+def _speed_text(report, units: str, cas_m_s, mach, fly: str) -> str:
+    """A speed to fly: whole knots (0.1 m/s) for CAS, Mach to 0.01."""
+    if fly == "Mach" and mach is not None:
+        return f"M {mach:.2f}"
+    value, unit = report.to_display("speed", cas_m_s, units)
+    return f"{value:.0f} {unit}" if units == "us" else f"{value:.1f} {unit}"
+
+
+def _instruction(report, units: str, r: ScheduleRow, flown: bool) -> str:
+    """What the row says to fly: the schedule's instruction (flown) or the optimum's speed."""
+    if flown:
+        speed = _speed_text(report, units, r.target_cas_m_s, r.target_mach, r.fly)
+    else:
+        speed = _speed_text(report, units, r.cas_m_s, r.mach, r.fly)
+    words = {"climb": "{s}", "accelerate": "accelerate to {s}", "decelerate": "decelerate to {s}",
+             "level acceleration": "level, accelerate to {s}",
+             "level deceleration": "level, decelerate to {s}", "cruise": "cruise {s}",
+             "dash": "dash {s}", "level": "level {s}", "zoom": "zoom ({s})",
+             "descent": "descend ({s})"}.get(r.action, "{s}")
+    if not flown and r.action in ("level acceleration", "level deceleration"):
+        words = f"level, {r.action.split()[1].replace('ion', 'e')} ({{s}})"
+    return words.format(s=speed)
+
+
+def _min_s(seconds: float) -> str:
+    m, s = divmod(int(round(seconds)), 60)
+    return f"{m}:{s:02d}"
+
+
+def schedule_records(schedule: ClimbSchedule, units: str = "si") -> tuple[list[str], list[list]]:
+    """Header and rows of a climb schedule in ``units``: altitude, what to fly, CAS (whole
+    knots or m/s), Mach (0.01), TAS, rate of climb (ft/min or m/s), cumulative time in s and
+    min:s, fuel, ground distance, point."""
+    report = _units(units)
+    u = {k: report.DISPLAY_UNITS[k][units][0] for k in ("altitude", "speed", "mass", "distance",
+                                                           "rate")}
+    header = [f"altitude [{u['altitude']}]", "fly", f"CAS [{u['speed']}]", "Mach",
+              f"TAS [{u['speed']}]", f"rate of climb [{u['rate']}]", "time [s]", "time [min:s]",
+              f"fuel [{u['mass']}]", f"distance [{u['distance']}]", "point"]
+    rows = []
+    for r in schedule.rows:
+        def show(kind, value, digits):
+            v = round(float(report.to_display(kind, value, units)[0]), digits)
+            return int(v) if digits == 0 else v
+        fine = 0 if units == "us" else 1  # whole ft, kt, ft/min; m, 0.1 m/s
+        rows.append([
+            show("altitude", r.altitude_m, 0), _instruction(report, units, r, schedule.flown),
+            show("speed", r.cas_m_s, fine), round(r.mach, 2), show("speed", r.tas_m_s, fine),
+            show("rate", r.rate_of_climb_m_s, fine), round(r.time_s, 1),
+            _min_s(r.time_s), show("mass", r.fuel_kg, 0), show("distance", r.distance_m, 1),
+            r.point])
+    return header, rows
+
+
+def schedule_summary(schedule: ClimbSchedule, units: str = "si") -> str:
+    """One line: the schedule flown (holds and where each ends) or, for an optimum, that the
+    rows give its own speeds; then the top of climb (altitude, time, fuel, distance)."""
+    report = _units(units)
+    alt = report.DISPLAY_UNITS["altitude"][units][0]
+
+    def at(h):
+        return f"{report.to_display('altitude', h, units)[0]:,.0f} {alt}"
+
+    if schedule.flown:
+        holds = ", ".join(f"{_speed_text(report, units, v, v, fly)} to {at(h)}"
+                          for fly, v, h in schedule.holds)
+        what = f"schedule {schedule.name}: {holds}" if holds else f"schedule {schedule.name}"
+    else:
+        what = (f"{schedule.method}, minimum {schedule.objective}: the optimum's own speeds at "
+                "round altitudes")
+    top = schedule.top_of_climb
+    mass, mu = report.to_display("mass", top.fuel_kg, units)
+    dist, du = report.to_display("distance", top.distance_m, units)
+    return (f"{what}; top of climb {at(top.altitude_m)} at {_min_s(top.time_s)} "
+            f"({top.time_s:,.0f} s), fuel {mass:,.0f} {mu}, {dist:,.1f} {du}")
+
+
+def conditions_text(schedule: ClimbSchedule, units: str = "si") -> str:
+    """The conditions line of the header: mass, temperature deviation, rating, profile,
+    limits ("" without conditions)."""
+    c = schedule.conditions
+    if c is None:
+        return ""
+    report = _units(units)
+
+    def q(kind, v, fmt="{:,.0f}"):
+        value, unit = report.to_display(kind, v, units)
+        return f"{fmt.format(value)} {unit}"
+
+    limits = []
+    if c.max_cas_m_s is not None:
+        limits.append(f"CAS {q('speed', c.max_cas_m_s)}")
+    if c.max_mach is not None:
+        limits.append(f"Mach {c.max_mach:.2f}")
+    if c.cas_restriction is not None:
+        limits.append(f"{q('speed', c.cas_restriction[0])} below "
+                      f"{q('altitude', c.cas_restriction[1])}")
+    if c.max_altitude_m is not None:
+        limits.append(f"altitude {q('altitude', c.min_altitude_m or 0.0)} to "
+                      f"{q('altitude', c.max_altitude_m)}")
+    return (f"conditions: mass {q('mass', c.mass_kg)}, ISA {c.temperature_offset_k:+g} K, "
+            f"rating {c.rating}, {c.profile} climb profile, target altitude "
+            f"{q('altitude', c.target_altitude_m)}; limits: {', '.join(limits) or 'none'}")
+
+
+def _title(schedule: ClimbSchedule) -> str:
+    if schedule.method == Method.BEST_SCHEDULE:
+        return f"climb schedule {schedule.name} (best schedule, minimum {schedule.objective})"
+    if schedule.flown:
+        return f"climb schedule {schedule.name} (flown schedule)"
+    return f"climb schedule, {schedule.method}, minimum {schedule.objective}"
+
+
+def write_schedule_csv(path, schedule: ClimbSchedule, units: str = "si",
+                       scenario_name: str = "") -> None:
+    """Write a crew-style climb schedule as CSV; comment lines carry the summary, the
+    conditions, the notes and the caution."""
+    report = _units(units)
+    header, rows = schedule_records(schedule, units)
+    comments = report._header_lines(scenario_name, units, _title(schedule))
+    comments.append(f"# {schedule_summary(schedule, units)}")
+    if schedule.conditions is not None:
+        comments.append(f"# {conditions_text(schedule, units)}")
+    comments += [f"# note: {n}" for n in schedule.notes]
+    report._write_csv(Path(path), comments, header,
+                      ([report._cell(v) for v in r] for r in rows))
+
+
+def format_schedule(schedule: ClimbSchedule, units: str = "si") -> str:
+    """The climb schedule as aligned plain text (summary, conditions, table, notes)."""
+    report = _units(units)
+    header, rows = schedule_records(schedule, units)
+    cells = [header] + [[report._cell(v) for v in r] for r in rows]
+    widths = [max(len(r[i]) for r in cells) for i in range(len(header))]
+    out = [_title(schedule), schedule_summary(schedule, units)]
+    if schedule.conditions is not None:
+        out.append(conditions_text(schedule, units))
+    for j, r in enumerate(cells):
+        out.append("  ".join(c.rjust(widths[i]) for i, c in enumerate(r)).rstrip())
+        if j == 0:
+            out.append("  ".join("-" * w for w in widths))
+    out += [f"note: {n}" for n in schedule.notes]
+    return "\n".join(out)

@@ -45,6 +45,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.integrate import solve_ivp
 
+from climbopt.aircraft import fast_scalar_function
 from climbopt.atmosphere import G0, energy_height_m
 from climbopt.envelope import RATIO_TOLERANCE, envelope_for, flight_quantities
 from climbopt.results import StateValues, Verification
@@ -87,55 +88,6 @@ def _pieces(t: np.ndarray, cl: np.ndarray, thr: np.ndarray, quadratic: bool):
                             (cl[k], cl[k + 1] - cl[k], 0.0, -np.inf, np.inf),
                             (thr[k], thr[k + 1] - thr[k], 0.0, -np.inf, np.inf), k + 1))
     return out
-
-
-def _fast(function):
-    """Fast scalar evaluation of a CasADi Function of 4 scalars with one vector output, through
-    its preallocated buffers (Function.buffer; about 10x less call overhead), or plain calls
-    where that interface is missing."""
-    import casadi as ca
-
-    x = ca.MX.sym("x", 4)
-    packed = ca.Function("packed", [x], [function(x[0], x[1], x[2], x[3])])
-    try:
-        buf, evaluate = packed.buffer()
-    except (AttributeError, RuntimeError, NotImplementedError):  # pragma: no cover
-        return lambda *a: np.asarray(packed(np.array(a))).ravel()
-    arg = np.zeros(4)
-    res = np.zeros(packed.size1_out(0))
-    buf.set_arg(0, memoryview(arg))
-    buf.set_res(0, memoryview(res))
-
-    def call(*a):
-        arg[:] = a
-        evaluate()
-        return res.copy()
-
-    call._keep = (buf, arg, res, packed)  # keep the buffers alive with the closure
-    return call
-
-
-def _force_function(model, rating, body):
-    """CasADi Function (h, V, CL, throttle) -> [Mach, q, p, L, D, T, fuel flow, alpha_T].
-
-    The tables are the model's own spline fits (the same coefficients as its numpy path, see
-    :mod:`climbopt.fits`); CasADi is used only because calling it per integrator stage is ten
-    times faster than the numpy spline wrappers on scalars.
-    """
-    import casadi as ca
-
-    h, v, cl, thr = (ca.MX.sym(n) for n in ("h", "v", "cl", "thr"))
-    atm = model.atmosphere(h)
-    mach = v / atm.speed_of_sound_m_s
-    q = 0.5 * atm.density_kg_m3 * v * v
-    S = model.reference_area_m2
-    lift = q * S * cl
-    drag = q * S * model.drag_coefficient(cl, mach)
-    thrust = model.thrust_n(h, mach, thr, rating)
-    ff = model.fuel_flow_kg_s(h, mach, thr, rating)
-    alpha = cl / model.lift_slope_per_rad(mach) if body else ca.MX(0.0)
-    return ca.Function("forces", [h, v, cl, thr],
-                       [ca.vertcat(mach, q, atm.pressure_pa, lift, drag, thrust, ff, alpha)])
 
 
 def resimulate(trajectory, scenario, model=None) -> Verification:
@@ -275,7 +227,7 @@ def _rhs_factory(model, rating, body):
     polynomial controls c0 + s (c1 + s c2), s = (t - t0) / (t1 - t0), limited to [lo, hi]."""
     from climbopt.fits import ModelDomainError
 
-    forces = _fast(_force_function(model, rating, body))
+    forces = fast_scalar_function(model.force_function(rating, body=body))
     dom = model.fit_domain
 
     def rhs_for(t0, t1, cl_c, th_c):

@@ -16,3 +16,16 @@ def interceptor_case():
     """(scenario, model) of tests/data/interceptor_1969.toml."""
     scenario = load_scenario(DATA / "interceptor_1969.toml")
     return scenario, build_model(scenario)
+
+
+@pytest.fixture(scope="session")
+def transport():
+    """(scenario, model) of the demo transport (scenarios/transport_twinjet.toml, an invented
+    aircraft) with the procedure climb profile."""
+    import dataclasses
+
+    scenario = load_scenario(Path(__file__).resolve().parents[1] / "scenarios"
+                             / "transport_twinjet.toml")
+    scenario = dataclasses.replace(
+        scenario, mission=dataclasses.replace(scenario.mission, profile="procedure"))
+    return scenario, build_model(scenario)

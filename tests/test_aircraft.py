@@ -104,3 +104,26 @@ def test_hot_day_reduces_thrust():
     t_std = std.atmosphere(0.0).temperature_k
     assert hot.thrust_n(0.0, 0.5) == pytest.approx(std.thrust_n(0.0, 0.5) * t_std / (t_std + 20),
                                                    rel=1e-6)
+
+
+@pytest.mark.parametrize("path", [INTERCEPTOR] + DEMOS, ids=lambda p: p.stem)
+def test_fast_force_function_matches_numpy(path):
+    """The CasADi force function called through its buffers (used by the integrators) gives
+    the numpy model's Mach, dynamic pressure, drag, thrust and fuel flow to 1e-9 relative."""
+    from climbopt.aircraft import fast_scalar_function
+
+    model = build_model(load_scenario(path))
+    forces = fast_scalar_function(model.force_function())
+    d = model.domain
+    rng = np.random.default_rng(11)
+    for _ in range(10):
+        h = rng.uniform(d.altitude_min_m, d.altitude_max_m)
+        a = float(model.atmosphere(h).speed_of_sound_m_s)
+        v = rng.uniform(d.mach_min, d.mach_max) * a
+        mass = model.mass_kg * rng.uniform(0.7, 1.0)
+        thr = rng.uniform(model.throttle_min, model.throttle_max)
+        p = model.evaluate(h, v, mass, throttle=thr)
+        mach, q, _, lift, drag, thrust, ff, _ = forces(h, v, float(p.cl), thr)
+        np.testing.assert_allclose([mach, q, lift, drag, thrust, ff],
+                                   [p.mach, p.dynamic_pressure_pa, mass * 9.80665, p.drag_n,
+                                    p.thrust_n, p.fuel_flow_kg_s], rtol=1e-9)
