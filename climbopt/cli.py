@@ -225,7 +225,7 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
             _fail(f"{scenario_file}: the aircraft model cannot be built: {exc}", EXIT_BAD_INPUT)
         try:
             result = run_mission(scenario, model, method=method, objectives=objectives,
-                                 schedules=False, progress=bar.callback)
+                                 progress=bar.callback)
         except InfeasibleMission as exc:
             bar.done()
             _fail(f"{scenario_file}: infeasible mission: {exc}", EXIT_INFEASIBLE)
@@ -248,10 +248,10 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
         click.echo(f"{scenario.name} ({units.upper()} units)")
         click.echo("")
         click.echo(report.format_table(records, units))
-        costs = report.format_procedure_costs(result.procedure_costs, units)
-        if costs:
-            click.echo("")
-            click.echo(costs)
+        for block in doc["text"].values():
+            if block:
+                click.echo("")
+                click.echo(block)
         if not quiet:
             click.echo(f"\nWrote {out}/: summary.json, comparison.csv, report.txt, schedules "
                        f"(*_schedule.csv), per-point tables, plots ({len(doc['figures'])} files)")
@@ -566,22 +566,20 @@ def _write_reduce_schedules(folder, plan, comparison, surface, units, lines):
     """Per-point tables, crew schedules, the comparison table and plot of the two climbs."""
     from climbopt import plots, report
     from climbopt import flighttest_report as ftr
-    from climbopt.schedule import climb_schedule, default_step_m
+    from climbopt.schedule import (climb_schedule, default_step_m, schedule_summary,
+                                   write_schedule_csv)
 
     scenario = plan.predicted
-    restriction = scenario.limits.cas_restriction
     files = ["climb_comparison.csv"]
     ftr.write_climb_comparison_csv(folder / "climb_comparison.csv", comparison, units, plan.name)
     for stem, traj in (("predicted", comparison.predicted), ("measured", comparison.measured)):
         report.write_trajectory_csv(folder / f"{stem}_time.csv", traj, units,
                                     f"{scenario.name} ({stem} aircraft)")
-        sched = climb_schedule(traj, default_step_m(units),
-                               temperature_offset_k=scenario.atmosphere.temperature_offset_k,
-                               fit_above_m=restriction[1] if restriction else None)
-        report.write_schedule_csv(folder / f"{stem}_time_schedule.csv", sched, units,
-                                  f"{scenario.name} ({stem} aircraft)")
+        sched = climb_schedule(traj, default_step_m(units), scenario=scenario)
+        write_schedule_csv(folder / f"{stem}_time_schedule.csv", sched, units,
+                           f"{scenario.name} ({stem} aircraft)")
         files += [f"{stem}_time.csv", f"{stem}_time_schedule.csv"]
-        lines.append(f"  {stem}: {report.schedule_summary(sched, units)}")
+        lines.append(f"  {stem}: {schedule_summary(sched, units)}")
     axes = plots.plot_climb_comparison(comparison, surface, units=units)
     files += [p.name for p in plots.save_figure(axes[0].figure, folder / "climb_comparison")]
     return files

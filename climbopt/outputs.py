@@ -58,23 +58,20 @@ def write_outputs(result, out_dir, scenario, *, units: str = "si", model=None,
 
 def _write_folder(folder: Path, result, scenario, units, model, exit_code, progress) -> dict:
     from climbopt import report
-    from climbopt.schedule import climb_schedule, default_step_m
+    from climbopt.schedule import (climb_schedule, default_step_m, format_schedule,
+                                   schedule_summary, write_schedule_csv)
 
     records = report.comparison(list(result.results))
     trajs = result.trajectories()
     schedules, files = {}, {}
-    dt = scenario.atmosphere.temperature_offset_k
-    restriction = scenario.limits.cas_restriction
     for traj in trajs:
         stem = report.result_stem(traj.method, traj.objective, traj.name)
         report.write_trajectory_csv(folder / f"{stem}.csv", traj, units, scenario.name)
         files[stem] = [f"{stem}.csv"]
         if traj.ranked:
-            sched = climb_schedule(traj, default_step_m(units), temperature_offset_k=dt,
-                                   fit_above_m=restriction[1] if restriction else None)
+            sched = climb_schedule(traj, default_step_m(units), scenario=scenario)
             schedules[stem] = sched
-            report.write_schedule_csv(folder / f"{stem}_schedule.csv", sched, units,
-                                      scenario.name)
+            write_schedule_csv(folder / f"{stem}_schedule.csv", sched, units, scenario.name)
             files[stem].append(f"{stem}_schedule.csv")
     report.write_comparison_csv(folder / "comparison.csv", records, units, scenario.name)
     if progress is not None:
@@ -82,11 +79,12 @@ def _write_folder(folder: Path, result, scenario, units, model, exit_code, progr
     figures = _figures(folder, scenario, trajs, units, model)
 
     costs = report.format_procedure_costs(result.procedure_costs, units)
+    flown = report.format_flown_schedules(
+        result.results, {k: schedule_summary(v, units) for k, v in schedules.items()}, units)
     text = [f"climbopt {__version__}: {scenario.name}", "", report.format_table(records, units)]
-    if costs:
-        text += ["", costs]
+    text += [block for c in (flown, costs) if c for block in ("", c)]
     for sched in schedules.values():
-        text += ["", report.format_schedule(sched, units)]
+        text += ["", format_schedule(sched, units)]
     text += [""] + [f"error: {e}" for e in result.errors]
     text += [f"warning: {w}" for w in result.warnings] + [f"Caution: {CAUTION}"]
     report.write_text_atomic(folder / "report.txt", "\n".join(text) + "\n")
@@ -95,6 +93,7 @@ def _write_folder(folder: Path, result, scenario, units, model, exit_code, progr
         files=files, exit_code=exit_code, errors=result.errors, warnings=result.warnings,
         procedure_costs=result.procedure_costs)
     doc["figures"] = sorted(p.name for p in figures)
+    doc["text"] = {"schedules": flown, "procedure_cost": costs}
     report.write_summary_json(folder / "summary.json", doc)
     return doc
 

@@ -777,7 +777,8 @@ def fly_schedule(scenario, model, spec: ScheduleSpec, *, envelope=None) -> Traje
         Method.SCHEDULE, Objective.NONE, cols, converged=True,
         status=f"flown: {len(segments)} segments, {fl.steps} integrator steps",
         iterations=1, wall_s=_time.perf_counter() - t_wall, segments=segments,
-        notes=_notes(fl, cols, ranges, scenario), profile="procedure", name=spec.name)
+        notes=_notes(fl, cols, ranges, scenario), profile="procedure", name=spec.name,
+        schedule=spec)
 
 
 def _notes(fl: _Flight, cols: dict, ranges, scenario) -> tuple[str, ...]:

@@ -18,16 +18,12 @@ import os
 import shutil
 import tempfile
 from pathlib import Path
-from typing import TYPE_CHECKING
 
 import numpy as np
 
 from climbopt import CAUTION, __version__
 from climbopt.results import COLUMNS, Method, Result, Trajectory
 from climbopt.units import kg_to_lb, m_s_to_kt, m_to_ft, m_to_nmi
-
-if TYPE_CHECKING:  # pragma: no cover
-    from climbopt.schedule import ClimbSchedule
 
 UNIT_SYSTEMS = ("si", "us")
 
@@ -76,7 +72,7 @@ COLUMN_KINDS: dict[str, str] = {
 }
 
 
-def _check_units(units: str) -> None:
+def check_units(units: str) -> None:
     if units not in UNIT_SYSTEMS:
         raise ValueError(f"units must be one of {UNIT_SYSTEMS}, got {units!r}")
 
@@ -86,7 +82,7 @@ def to_display(kind: str, value_si, units: str):
 
     Returns ``(value, unit_label)``. ``None`` stays ``None``.
     """
-    _check_units(units)
+    check_units(units)
     label, fn = DISPLAY_UNITS[kind][units]
     if value_si is None:
         return None, label
@@ -96,7 +92,7 @@ def to_display(kind: str, value_si, units: str):
 def column_header(key: str, units: str) -> str:
     """CSV header of a per-point column in ``units``: the quantity name with its unit, e.g.
     ``altitude_ft`` (``"us"``) or ``altitude_m`` (``"si"``, identical to :data:`COLUMNS`)."""
-    _check_units(units)
+    check_units(units)
     if units == "si":
         return key
     stem = key
@@ -204,7 +200,7 @@ def display_record(rec: dict, units: str) -> dict:
 
 def format_table(records: list[dict], units: str = "si") -> str:
     """The comparison table as aligned plain text, with a legend line and the caution."""
-    _check_units(units)
+    check_units(units)
     cols = comparison_columns(units)
     lines = [[h for _, h in cols]]
     for rec in records:
@@ -264,7 +260,7 @@ def result_stem(method: str, objective: str, name: str = "") -> str:
     return f"{method}_{objective}".replace(" ", "-")
 
 
-def _header_lines(scenario_name: str, units: str, what: str) -> list[str]:
+def header_lines(scenario_name: str, units: str, what: str) -> list[str]:
     return [f"# climbopt {__version__}: {what}; scenario: {scenario_name}; units: {units}",
             f"# caution: {CAUTION}"]
 
@@ -277,7 +273,7 @@ def read_csv(path) -> tuple[list[str], list[list[str]]]:
     return rows[0], rows[1:]
 
 
-def _write_csv(path: Path, comments: list[str], header: list[str], rows) -> None:
+def write_csv(path: Path, comments: list[str], header: list[str], rows) -> None:
     buf = io.StringIO()
     for c in comments:
         buf.write(c + "\n")
@@ -288,7 +284,8 @@ def _write_csv(path: Path, comments: list[str], header: list[str], rows) -> None
     Path(path).write_text(buf.getvalue(), encoding="utf-8")
 
 
-def _cell(v) -> str:
+def cell(v) -> str:
+    """CSV text of a value (empty for None and NaN, true/false for booleans)."""
     if v is None:
         return ""
     if isinstance(v, bool):
@@ -301,69 +298,14 @@ def _cell(v) -> str:
 def write_trajectory_csv(path, trajectory: Trajectory, units: str = "si",
                          scenario_name: str = "") -> None:
     """Write the full per-point table of one trajectory (column order of :data:`COLUMNS`)."""
-    _check_units(units)
+    check_units(units)
     header = [column_header(k, units) for k in COLUMNS]
     conv = [to_display(COLUMN_KINDS[k], trajectory.table[k], units)[0] for k in COLUMNS]
     label = f"{trajectory.method}, minimum {trajectory.objective}"
     if not trajectory.converged:
         label += " (NOT CONVERGED: not an optimum)"
-    rows = ([_cell(float(col[i])) for col in conv] for i in range(len(conv[0])))
-    _write_csv(Path(path), _header_lines(scenario_name, units, label), header, rows)
-
-
-def schedule_records(schedule: ClimbSchedule, units: str = "si") -> tuple[list[str], list[list]]:
-    """Header and rows of a climb schedule in ``units`` (speed to fly as CAS or Mach)."""
-    _check_units(units)
-    alt_u = DISPLAY_UNITS["altitude"][units][0]
-    spd_u = DISPLAY_UNITS["speed"][units][0]
-    mass_u = DISPLAY_UNITS["mass"][units][0]
-    dist_u = DISPLAY_UNITS["distance"][units][0]
-    header = [f"altitude [{alt_u}]", "fly", "speed to fly", f"CAS [{spd_u}]", "Mach",
-              f"TAS [{spd_u}]", "time [s]", f"fuel [{mass_u}]", f"distance [{dist_u}]", "point"]
-    rows = []
-    for r in schedule.rows:
-        cas = to_display("speed", r.cas_m_s, units)[0]
-        to_fly = f"{cas:.0f} {spd_u}" if r.fly == "CAS" else f"M {r.mach:.3f}"
-        rows.append([
-            round(float(to_display("altitude", r.altitude_m, units)[0]), 1), r.fly, to_fly,
-            round(float(cas), 1), round(r.mach, 4),
-            round(float(to_display("speed", r.tas_m_s, units)[0]), 1), round(r.time_s, 1),
-            round(float(to_display("mass", r.fuel_kg, units)[0]), 1),
-            round(float(to_display("distance", r.distance_m, units)[0]), 2), r.point])
-    return header, rows
-
-
-def schedule_summary(schedule: ClimbSchedule, units: str = "si") -> str:
-    """One line: the fitted constant CAS / Mach pair and its crossover altitude."""
-    cas, spd_u = to_display("speed", schedule.climb_cas_m_s, units)
-    alt, alt_u = to_display("altitude", schedule.crossover_altitude_m, units)
-    return (f"closest constant schedule: {cas:.0f} {spd_u} / M {schedule.climb_mach:.2f}, "
-            f"crossover at {alt:,.0f} {alt_u}")
-
-
-def write_schedule_csv(path, schedule: ClimbSchedule, units: str = "si",
-                       scenario_name: str = "") -> None:
-    """Write a crew-style climb schedule as CSV (with the crossover in a comment line)."""
-    header, rows = schedule_records(schedule, units)
-    comments = _header_lines(scenario_name, units,
-                             f"climb schedule, {schedule.method}, minimum {schedule.objective}")
-    comments.append(f"# {schedule_summary(schedule, units)}")
-    comments += [f"# note: {n}" for n in schedule.notes]
-    _write_csv(Path(path), comments, header, ([_cell(v) for v in r] for r in rows))
-
-
-def format_schedule(schedule: ClimbSchedule, units: str = "si") -> str:
-    """The climb schedule as aligned plain text."""
-    header, rows = schedule_records(schedule, units)
-    cells = [header] + [[_cell(v) for v in r] for r in rows]
-    widths = [max(len(r[i]) for r in cells) for i in range(len(header))]
-    out = [f"{schedule.method}, minimum {schedule.objective}: {schedule_summary(schedule, units)}"]
-    for j, r in enumerate(cells):
-        out.append("  ".join(c.rjust(widths[i]) for i, c in enumerate(r)).rstrip())
-        if j == 0:
-            out.append("  ".join("-" * w for w in widths))
-    out += [f"note: {n}" for n in schedule.notes]
-    return "\n".join(out)
+    rows = ([cell(float(col[i])) for col in conv] for i in range(len(conv[0])))
+    write_csv(Path(path), header_lines(scenario_name, units, label), header, rows)
 
 
 def write_comparison_csv(path, records: list[dict], units: str = "si",
@@ -373,9 +315,44 @@ def write_comparison_csv(path, records: list[dict], units: str = "si",
     rows = []
     for rec in records:
         disp = display_record(rec, units)
-        rows.append([_cell(disp[h]) for _, h in cols])
-    _write_csv(Path(path), _header_lines(scenario_name, units, "comparison"),
+        rows.append([cell(disp[h]) for _, h in cols])
+    write_csv(Path(path), header_lines(scenario_name, units, "comparison"),
                [h for _, h in cols], rows)
+
+
+def format_flown_schedules(results, schedule_lines: dict, units: str = "si") -> str:
+    """For each flown schedule (the best schedule per objective, the scenario's own): what is
+    flown (``schedule_lines``: result stem -> the crew schedule's one-line summary) and its cost
+    against the reference optimum of the same objective (best schedules) or against the best
+    ranked time and fuel of the run (the scenario's schedules)."""
+    ranked = [r for r in results if isinstance(r, Trajectory) and r.ranked]
+    best_t = min((r.time_s for r in ranked), default=None)
+    best_f = min((r.fuel_kg for r in ranked), default=None)
+    m_u = DISPLAY_UNITS["mass"][units][0]
+    lines = []
+    for r in results:
+        if r.method not in (Method.SCHEDULE, Method.BEST_SCHEDULE):
+            continue
+        if not isinstance(r, Trajectory):
+            lines.append(f"{r.label}: cannot be flown: {r.message}")
+            continue
+        what = schedule_lines.get(result_stem(r.method, r.objective, r.name), r.name)
+        c = r.reference
+        if c is not None:
+            cost = (f"against the {c.reference}: {c.time_difference_s:+,.1f} s, "
+                    f"{to_display('mass', c.fuel_difference_kg, units)[0]:+,.1f} {m_u} "
+                    f"(penalty {100 * c.objective_difference_relative:+.2f} % in "
+                    f"{c.objective})")
+        elif best_t is not None:
+            cost = (f"against the best of this run: {r.time_s - best_t:+,.1f} s "
+                    f"({_pct(r.time_s, best_t):+.2f} %), "
+                    f"{to_display('mass', r.fuel_kg - best_f, units)[0]:+,.1f} {m_u} "
+                    f"({_pct(r.fuel_kg, best_f):+.2f} %)")
+        else:
+            cost = "no ranked optimum to compare with"
+        flag = "" if r.ranked else f" [not ranked: {'; '.join(r.issues)}]"
+        lines.append(f"{r.label}: {what}; {cost}{flag}")
+    return "\n".join(lines)
 
 
 def procedure_cost_records(costs) -> list[dict]:
@@ -409,7 +386,7 @@ def summary_document(records: list[dict], *, scenario_name: str, scenario_path: 
     """The ``summary.json`` document: SI keys per result (stable), display values in ``units``,
     files written per result, ``extra`` fields per result stem (e.g. its schedule), the errors
     and warnings, what the procedure profile costs, and the caution."""
-    _check_units(units)
+    check_units(units)
     files = files or {}
     extra = extra or {}
     results = []

@@ -348,6 +348,8 @@ class Trajectory:
         "procedure" or "free" (the climb profile the result obeys).
     name : str
         Name of a flown schedule ("" otherwise).
+    schedule : ScheduleSpec or None
+        The schedule flown (:class:`climbopt.scenario.ScheduleSpec`; schedule rows only).
     reference : ReferenceComparison or None
         The comparison with a reference result (best flyable schedules against the
         collocation optimum, when it was given).
@@ -368,6 +370,7 @@ class Trajectory:
     controls: Controls | None = None
     profile: str = "free"
     name: str = ""
+    schedule: object = None
     reference: ReferenceComparison | None = None
 
     def __post_init__(self):
@@ -447,6 +450,12 @@ class Trajectory:
             "zooms": len(self.zooms),
             "notes": list(self.notes),
             "issues": list(self.issues),
+            "schedule": None if self.schedule is None else {
+                "name": self.schedule.name,
+                "cas_below_restriction_m_s": self.schedule.cas_below_restriction_m_s,
+                "cas_m_s": self.schedule.cas_m_s, "mach": self.schedule.mach,
+                "acceleration_share": self.schedule.acceleration_share},
+            "reference": None if self.reference is None else self.reference.as_dict(),
         }
 
     def to_dataframe(self):

@@ -340,7 +340,7 @@ def _holds(t, segments) -> list[tuple[str, float, float]]:
 def _units(units: str):
     from climbopt import report
 
-    report._check_units(units)
+    report.check_units(units)
     return report
 
 
@@ -463,20 +463,20 @@ def write_schedule_csv(path, schedule: ClimbSchedule, units: str = "si",
     conditions, the notes and the caution."""
     report = _units(units)
     header, rows = schedule_records(schedule, units)
-    comments = report._header_lines(scenario_name, units, _title(schedule))
+    comments = report.header_lines(scenario_name, units, _title(schedule))
     comments.append(f"# {schedule_summary(schedule, units)}")
     if schedule.conditions is not None:
         comments.append(f"# {conditions_text(schedule, units)}")
     comments += [f"# note: {n}" for n in schedule.notes]
-    report._write_csv(Path(path), comments, header,
-                      ([report._cell(v) for v in r] for r in rows))
+    report.write_csv(Path(path), comments, header,
+                      ([report.cell(v) for v in r] for r in rows))
 
 
 def format_schedule(schedule: ClimbSchedule, units: str = "si") -> str:
     """The climb schedule as aligned plain text (summary, conditions, table, notes)."""
     report = _units(units)
     header, rows = schedule_records(schedule, units)
-    cells = [header] + [[report._cell(v) for v in r] for r in rows]
+    cells = [header] + [[report.cell(v) for v in r] for r in rows]
     widths = [max(len(r[i]) for r in cells) for i in range(len(header))]
     out = [_title(schedule), schedule_summary(schedule, units)]
     if schedule.conditions is not None:
