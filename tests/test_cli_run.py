@@ -54,7 +54,11 @@ def test_run_energy_on_every_demo(scenario, tmp_path):
     for obj in ("time", "fuel"):
         expected |= {f"energy-state_{obj}.csv", f"energy-state_{obj}_schedule.csv"}
     assert expected <= names, expected - names
-    res = {r["objective"]: r for r in doc["results"]}
+    res = {r["objective"]: r for r in doc["results"] if r["method"] == "energy-state"}
+    flown = [r for r in doc["results"] if r["method"] == "best-schedule"]
+    assert sorted(r["objective"] for r in flown) == ["fuel", "time"]
+    for r in flown:   # the best schedule of each objective is no better than its optimum
+        assert r["reference"]["objective_difference_relative"] >= -1e-3
     assert set(res) == {"time", "fuel"}
     for obj, r in res.items():
         assert r["method"] == "energy-state" and r["converged"] is True
@@ -235,7 +239,7 @@ def test_run_both_methods_on_one_demo(tmp_path):
     assert result.exit_code == 0, result.output
     doc = json.loads(result.stdout)
     rows = {r["method"]: r for r in doc["results"]}
-    assert set(rows) == {"energy-state", "collocation"}
+    assert set(rows) == {"energy-state", "collocation", "best-schedule"}
     col = rows["collocation"]
     assert col["converged"] is True and col["iterations"] > 0
     assert col["verification"] is not None and col["verification_miss"] is not None
