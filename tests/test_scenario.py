@@ -19,10 +19,10 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from climbopt.describe import describe_scenario
 from climbopt.scenario import (
     Scenario,
     ScenarioError,
-    describe_scenario,
     energy_height_m,
     load_scenario,
 )
