@@ -20,6 +20,7 @@ from __future__ import annotations
 import contextlib
 import dataclasses
 import difflib
+import io
 import math
 import os
 import re
@@ -353,9 +354,12 @@ MAX_FILE_BYTES = 1 << 20
 #: Most lines in a file.
 MAX_LINES = 100_000
 #: Most values, keys, tables and brackets in a file (counted before the TOML reader runs).
-MAX_ITEMS = 100_000
+MAX_ITEMS = 50_000
+#: Most problems listed in one error (the rest are counted).
+MAX_PROBLEMS = 100
 #: Deepest nesting of tables and arrays (sections, dotted keys, inline tables and arrays
-#: together); the deepest real field, ``propulsion.ratings.NAME.thrust.values[i][j]``, is 7.
+#: together); the deepest real field, ``propulsion.ratings.NAME.thrust.values[i][j]``, is a
+#: number in the 6th level (propulsion, ratings, NAME, thrust, values, values[i]).
 MAX_NESTING = 10
 #: Longest string value and longest key [characters].
 MAX_STRING_CHARS = 1000
@@ -415,7 +419,8 @@ class _Reader:
 
     def __init__(self, path: str, unit_hints: dict[str, str] | None = None):
         self.path = path
-        self.problems: list[tuple[str, str]] = []
+        self.problems: list[tuple[str, str]] = []  # the first MAX_PROBLEMS
+        self.count = 0  # all problems
         self.warnings: list[tuple[str, str]] = []
         self.units: dict[str, str] = {}
         self.text: dict[str, str] = {}  # fields shown as written (flight levels)
@@ -423,7 +428,15 @@ class _Reader:
         self.rating_names: list[str] | None = None  # names under [propulsion.ratings], once read
 
     def problem(self, fld: str, message: str) -> None:
-        self.problems.append((fld, message))
+        self.count += 1
+        if len(self.problems) < MAX_PROBLEMS:
+            self.problems.append((fld, message))
+
+    def error(self) -> ScenarioError:
+        """The ScenarioError listing the problems found (and how many more were not listed)."""
+        more = self.count - len(self.problems)
+        tail = [("file", f"... and {more} more problems not listed")] if more else []
+        return ScenarioError(self.path, self.problems + tail)
 
     def warn(self, fld: str, message: str) -> None:
         self.warnings.append((fld, message))
@@ -437,7 +450,8 @@ class _Reader:
     def check_keys(self, node: dict, path: str, allowed: tuple[str, ...]) -> None:
         for key in node:
             if key not in allowed:
-                close = difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
+                close = (difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
+                         if self.count < MAX_PROBLEMS else None)
                 hint = f" (did you mean '{close[0]}'?)" if close else ""
                 self.problem(_join(path, key), f"unknown key {_show(key)}{hint}; known keys here: "
                                                f"{', '.join(allowed)}")
@@ -600,7 +614,7 @@ class _Reader:
                 out.append(v)
         if nbad:
             for msg in bad[:_MAX_ELEMENT_PROBLEMS]:
-                self.problems.append(tuple(msg))  # type: ignore[arg-type]
+                self.problem(*msg)
             if nbad > _MAX_ELEMENT_PROBLEMS:
                 self.problem(fld, f"... and {nbad - _MAX_ELEMENT_PROBLEMS} more bad values")
             return None
@@ -937,8 +951,7 @@ def _read_propulsion(r: _Reader, doc: dict) -> Propulsion | None:
         if rnode is not None and len(rnode) == 1:
             default = next(iter(rnode))
         elif rnode:
-            r.problem("propulsion.default_rating", f"missing; expected one of the ratings "
-                                                   f"{', '.join(repr(n) for n in rnode)}")
+            r.problem("propulsion.default_rating", f"missing; expected one of the ratings {_names(rnode)}")
             default = None
     elif default is not None and rnode is not None and default not in rnode:
         _unknown_rating(r, "propulsion.default_rating", default, rnode)
@@ -949,11 +962,17 @@ def _read_propulsion(r: _Reader, doc: dict) -> Propulsion | None:
                       thrust_alignment=alignment, thrust_scale=scale)
 
 
+def _names(names, most: int = 10) -> str:
+    """Quoted names for a message, at most ``most`` of them."""
+    names = list(names)
+    shown = ", ".join(_show(n) for n in names[:most])
+    return shown + (f" and {len(names) - most} more" if len(names) > most else "")
+
+
 def _unknown_rating(r: _Reader, fld: str, name: str, ratings) -> None:
-    close = difflib.get_close_matches(name, list(ratings), n=1, cutoff=0.5)
+    close = difflib.get_close_matches(name, list(ratings)[:MAX_TABLE_KEYS], n=1, cutoff=0.5)
     hint = f" (did you mean '{close[0]}'?)" if close else ""
-    r.problem(fld, f"unknown rating {name!r}{hint}; expected one of "
-                   f"{', '.join(repr(n) for n in ratings)}")
+    r.problem(fld, f"unknown rating {_show(name)}{hint}; expected one of {_names(ratings)}")
 
 
 def _read_rating(r: _Reader, name: str, raw) -> Rating | None:
@@ -1098,7 +1117,7 @@ def _read_mission(r: _Reader, doc: dict, dt_k: float | None) -> Mission | None:
     node = r.section(doc, "mission", "", _MISSION_KEYS)
     if node is None:
         return None
-    n_before = len(r.problems)
+    n_before = r.count
     start = _read_point(r, node, "start", dt_k)
     target = _read_point(r, node, "target", dt_k)
     dash = r.quantity(node, "dash_distance", "mission", "length", required=False, minimum=0.0,
@@ -1111,7 +1130,7 @@ def _read_mission(r: _Reader, doc: dict, dt_k: float | None) -> Mission | None:
     share = r.quantity(node, "acceleration_share", "mission", "dimensionless", required=False,
                        default=0.5, minimum=0.0, maximum=1.0, strict_min=True,
                        expect="a fraction of the excess power > 0 and <= 1 (1 = level acceleration)")
-    if len(r.problems) != n_before or None in (start, target):
+    if r.count != n_before or None in (start, target):
         return None
     return Mission(start=start, target=target, dash_distance_m=dash, rating=rating, profile=profile,
                    acceleration_share=share)
@@ -1123,7 +1142,7 @@ def _read_limits(r: _Reader, doc: dict) -> Limits | None:
     if node is None:
         return None
     lo, hi = _ALTITUDE_RANGE_M
-    n_before = len(r.problems)
+    n_before = r.count
     q = r.quantity(node, "max_dynamic_pressure", path, "pressure", required=False, minimum=0.0,
                    strict_min=True)
     mach = r.quantity(node, "max_mach", path, "dimensionless", required=False, minimum=0.0,
@@ -1148,7 +1167,7 @@ def _read_limits(r: _Reader, doc: dict) -> Limits | None:
                             expect="an altitude from -500 m to 70 km")
             if rc is not None and rb is not None:
                 restriction = (rc, rb)
-    if len(r.problems) != n_before:
+    if r.count != n_before:
         return None
     return Limits(max_dynamic_pressure_pa=q, max_mach=mach, max_cas_m_s=cas, min_altitude_m=hmin,
                   max_altitude_m=hmax, max_load_factor=nmax, cas_restriction=restriction)
@@ -1159,7 +1178,7 @@ def _read_solver(r: _Reader, doc: dict) -> SolverOptions | None:
     node = r.section(doc, "solver", "", _SOLVER_KEYS, required=False)
     if node is None:
         return None
-    n_before = len(r.problems)
+    n_before = r.count
     defaults = SolverOptions()
     gh = r.integer(node, "grid_altitude_points", path, default=defaults.grid_altitude_points,
                    minimum=10, maximum=2000)
@@ -1180,7 +1199,7 @@ def _read_solver(r: _Reader, doc: dict) -> SolverOptions | None:
                             default=defaults.time_limit_s, minimum=0.0, strict_min=True,
                             expect="a positive wall-clock time, e.g. \"300 s\" or \"10 min\"")
     ipopt = _read_ipopt(r, node)
-    if len(r.problems) != n_before:
+    if r.count != n_before:
         return None
     return SolverOptions(grid_altitude_points=gh, grid_speed_points=gv, intervals=intervals,
                          transcription=transcription, mesh_tolerance=tol, max_mesh_refinements=refinements,
@@ -1220,7 +1239,7 @@ def _read_schedules(r: _Reader, doc: dict, mission: Mission | None, limits: Limi
     if not isinstance(raw, list) or not all(isinstance(x, dict) for x in raw):
         r.problem("schedules", f"expected [[schedules]] tables, got {_type_name(raw)} {_show(raw)}")
         return None
-    n_before = len(r.problems)
+    n_before = r.count
     share_default = mission.acceleration_share if mission is not None else 0.5
     out, names = [], {}
     for i, node in enumerate(raw):
@@ -1245,13 +1264,11 @@ def _read_schedules(r: _Reader, doc: dict, mission: Mission | None, limits: Limi
         share = r.quantity(node, "acceleration_share", path, "dimensionless", required=False,
                            default=share_default, minimum=0.0, maximum=1.0, strict_min=True,
                            expect="a fraction of the excess power > 0 and <= 1 (1 = level acceleration)")
-        if None in (name, cas, share) or ("mach" in node and mach is None) \
-                or ("cas_below_restriction" in node and below is None):
-            continue
-        below = _schedule_speeds(r, path, node, cas, mach, below, limits)
+        if cas is not None:
+            below = _schedule_speeds(r, path, node, cas, mach, below, limits)
         out.append(ScheduleSpec(name=name, cas_m_s=cas, mach=mach, cas_below_restriction_m_s=below,
-                                acceleration_share=share))
-    return None if len(r.problems) != n_before else tuple(out)
+                                acceleration_share=share))  # kept only when no problem was found
+    return None if r.count != n_before else tuple(out)
 
 
 def _schedule_speeds(r: _Reader, path: str, node: dict, cas: float, mach: float | None,
@@ -1373,7 +1390,8 @@ def level_flight_lift(aircraft: AircraftData, point: FlightPoint, dt_k: float) -
     linearly in the table and held constant beyond its ends.
     """
     mach, q, _, _ = point_state(point, dt_k)
-    cl = aircraft.mass_kg * G0 / (q * aircraft.reference_area_m2)
+    lift_per_cl = q * aircraft.reference_area_m2  # 0 for a speed so small that V^2 underflows
+    cl = aircraft.mass_kg * G0 / lift_per_cl if lift_per_cl > 0 else math.inf
     clmax = float(np.interp(mach, aircraft.cl_max.mach, aircraft.cl_max.values))
     return cl, clmax
 
@@ -1381,15 +1399,18 @@ def level_flight_lift(aircraft: AircraftData, point: FlightPoint, dt_k: float) -
 def _check_stall(r: _Reader, key: str, point: FlightPoint, aircraft: AircraftData, dt_k: float) -> None:
     """A start or target point below the stall speed (level flight, start mass) cannot be flown."""
     cl, clmax = level_flight_lift(aircraft, point, dt_k)
-    if not _beyond(cl, clmax):
+    if math.isfinite(cl) and not _beyond(cl, clmax):
         return
     fld = f"mission.{key}.{point.speed_kind}"
+    if not math.isfinite(cl):
+        r.problem(fld, "below the stall speed: the speed is too small to give any lift")
+        return
     ratio = math.sqrt(cl / clmax)  # the speed must grow by this factor (q ~ V^2)
     if point.speed_kind == "mach":
         need = f"Mach {point.speed_value * ratio:.3f}"
     else:
         u = r.unit_of(fld, "kt")
-        need = f"{point.speed_kind.upper()} {_in_unit(point.speed_value * ratio, u)}"
+        need = f"{point.speed_kind.upper()} {from_si(point.speed_value * ratio, u):.4g} {u}"
     r.problem(fld, f"below the stall speed: level flight at the start mass needs a lift coefficient "
                    f"of {cl:.3f}, above CLmax {clmax:.3f}; expected at least about {need} here, or "
                    f"a lighter aircraft")
@@ -1486,9 +1507,9 @@ def _table_trend(r: _Reader, fld: str, table: Table2D, what: str) -> None:
         falls_alt = sum(v[i][j + 1] < v[i][j] for i in range(n) for j in range(m - 1)) / (n * (m - 1))
         falls_mach = sum(v[i + 1][j] < v[i][j] for i in range(n - 1) for j in range(m)) / ((n - 1) * m)
         if falls_mach >= 0.9 and falls_mach - falls_alt >= 0.5:
-            r.warn(fld, f"looks transposed: {what} falls along the columns in {falls_mach:.0%} of "
-                        f"the steps but along the rows (altitude) in only {falls_alt:.0%}; expected "
-                        f"one row per Mach number and one column per altitude")
+            r.warn(fld, f"looks transposed: {what} falls from row to row (Mach) in {falls_mach:.0%} "
+                        f"of the steps but from column to column (altitude) in only {falls_alt:.0%}; "
+                        f"expected one row per Mach number and one column per altitude")
             return
     i, j = max(rises, key=lambda ij: v[ij[0]][ij[1] + 1] / v[ij[0]][ij[1]] if v[ij[0]][ij[1]] > 0
                else math.inf)
@@ -1576,8 +1597,8 @@ def _limit_problems(doc: dict) -> list[tuple[str, str]]:
     while stack and len(problems) < _MAX_LIMIT_PROBLEMS:
         path, node, depth = stack.pop()
         where = path or "file"
-        if isinstance(node, (dict, list)) and depth >= MAX_NESTING:
-            problems.append((where, f"nested {depth + 1} levels deep; expected at most {MAX_NESTING} "
+        if isinstance(node, (dict, list)) and depth > MAX_NESTING:
+            problems.append((where, f"nested {depth} levels deep; expected at most {MAX_NESTING} "
                                     f"levels of tables and arrays"))
         elif isinstance(node, dict):
             if len(node) > MAX_TABLE_KEYS:
@@ -1692,8 +1713,8 @@ def _scenario_from_document(doc: dict, path: str, unit_hints: dict[str, str] | N
     solver = _read_solver(r, doc)
     schedules = _read_schedules(r, doc, mission, limits, _top_mach(aircraft, propulsion, mission))
     _cross_checks(r, aircraft, propulsion, mission, limits, dt_k)
-    if r.problems:
-        raise ScenarioError(path, r.problems)
+    if r.count:
+        raise r.error()
     _plausibility(r, aircraft, propulsion, mission, dt_k)
     assert None not in (name, description, aircraft, propulsion, atmosphere, mission, limits, solver,
                         schedules)
@@ -1718,6 +1739,26 @@ _CHANGES = {
     "profile": ("mission.profile", None),
     "acceleration_share": ("mission.acceleration_share", ""),
 }
+
+
+#: Words people use for the inputs -> the short name of :meth:`Scenario.replace` (and of
+#: ``climbopt sweep --vary``), suggested when such a word is given.
+CHANGE_ALIASES = {"weight": "mass", "gross_weight": "mass", "start_mass": "mass",
+                  "temperature": "temperature_offset", "isa": "temperature_offset",
+                  "delta_isa": "temperature_offset", "dt": "temperature_offset",
+                  "thrust": "thrust_scale", "altitude": "target_altitude",
+                  "level": "target_altitude", "flight_level": "target_altitude",
+                  "speed": "target_speed", "mach": "target_speed", "cost": "cost_weight",
+                  "time_cost": "cost_weight"}
+
+
+def suggest_name(name: str, known) -> str:
+    """' (did you mean 'x'?)' for a change or sweep name: a known alias, else a close match."""
+    close = CHANGE_ALIASES.get(name.lower())
+    if close not in known:
+        matches = difflib.get_close_matches(name, list(known), n=1, cutoff=0.5)
+        close = matches[0] if matches else None
+    return f" (did you mean '{close}'?)" if close else ""
 
 
 def _replaced(s: Scenario, changes: dict, si: bool) -> Scenario:
@@ -1776,8 +1817,7 @@ def _change(s: Scenario, name: str, value, si: bool) -> tuple[str, object, tuple
         return name, value, ()
     else:
         known = ["target_speed", "target_mach", "target_tas", "target_cas", "target_eas", *_CHANGES]
-        close = difflib.get_close_matches(name, known, n=1, cutoff=0.5)
-        hint = f" (did you mean '{close[0]}'?)" if close else ""
+        hint = suggest_name(name, known)
         extra = "" if si else " or a dotted field name such as 'limits.max_mach'"
         raise ScenarioError(where, [(name, f"unknown change {_show(name)}{hint}; expected one of "
                                            f"{', '.join(known)}{extra}")])
@@ -1914,20 +1954,30 @@ def ipopt_option_problems(options: dict) -> list[tuple[str, str]]:
 
 def _ipopt_rejects(options: dict) -> str | None:
     """Why IPOPT rejects ``options`` (None when it accepts them)."""
+    error, status, printed = _ipopt_try(options, print_level=0)
+    if error is None and status == "Invalid_Option" and "Setting:" not in printed:
+        _, _, printed = _ipopt_try(options, print_level=5)  # IPOPT says why only when verbose
+    return _ipopt_message(error, status, printed)
+
+
+def _ipopt_try(options: dict, print_level: int) -> tuple[str | None, str, str]:
+    """(CasADi's error text or None, IPOPT's return status, what IPOPT printed) of building and
+    solving min (x - 1)^2 with ``options``."""
     import casadi as ca
 
     x = ca.MX.sym("x")
-    opts = {"ipopt": {"sb": "yes", "print_level": 0, **options}, "print_time": False,
+    opts = {"ipopt": {"sb": "yes", "print_level": print_level, **options}, "print_time": False,
             "error_on_fail": False}
+    if print_level:
+        opts["ipopt"]["print_level"] = print_level
     with _captured_native_output() as printed:
         try:
             solver = ca.nlpsol("option_check", "ipopt", {"x": x, "f": (x - 1) ** 2}, opts)
             solver(x0=0.0)
-            status = solver.stats().get("return_status", "")
-            error = None
+            status, error = solver.stats().get("return_status", ""), None
         except Exception as exc:  # CasADi raises RuntimeError for unknown names and bad values
             status, error = "", str(exc)
-    return _ipopt_message(error, status, printed[0] if printed else "")
+    return error, status, printed[0] if printed else ""
 
 
 def _ipopt_message(error: str | None, status: str, printed: str) -> str | None:
@@ -1943,7 +1993,7 @@ def _ipopt_message(error: str | None, status: str, printed: str) -> str | None:
     lines = [ln.strip() for ln in printed.splitlines() if ln.strip()]
     setting = next((ln for ln in lines if ln.startswith("Setting:")), None)
     if setting is None:
-        detail = next((ln for ln in lines if not ln.startswith(("*", "#", "EXIT", "This is"))), "")
+        detail = next((ln.split(":", 1)[1].strip() for ln in lines if ln.startswith("Exception message:")), "")
         return shorten(f"IPOPT rejects the options ({status or 'error'}){': ' + detail if detail else ''}", 200)
     m = re.match(r'Setting: "(.*)" is not a valid setting for Option: (\S+?)\.', setting)
     message = f"{_show(m.group(1))} is not a valid setting" if m else shorten(setting, 120)
@@ -1959,8 +2009,9 @@ def _ipopt_message(error: str | None, status: str, printed: str) -> str | None:
 
 @contextlib.contextmanager
 def _captured_native_output():
-    """Send what native code prints on file descriptors 1 and 2 to a buffer while the block
-    runs (IPOPT explains rejected options there); yields a list that then holds the text."""
+    """Send what is printed -- by Python (sys.stdout, sys.stderr) and by native code (file
+    descriptors 1 and 2) -- to buffers while the block runs (IPOPT explains rejected options
+    there); yields a list that afterwards holds the text."""
     import ctypes
     import tempfile
 
@@ -1971,6 +2022,7 @@ def _captured_native_output():
     sys.stdout.flush()
     sys.stderr.flush()
     box: list[str] = []
+    python_side = io.StringIO()  # CasADi routes IPOPT's printing to Python's sys.stdout
     with tempfile.TemporaryFile() as tmp:
         saved = (os.dup(1), os.dup(2))
         try:
@@ -1978,7 +2030,8 @@ def _captured_native_output():
                 libc.fflush(None)
             os.dup2(tmp.fileno(), 1)
             os.dup2(tmp.fileno(), 2)
-            yield box
+            with contextlib.redirect_stdout(python_side), contextlib.redirect_stderr(python_side):
+                yield box
         finally:
             if libc is not None:
                 libc.fflush(None)
@@ -1987,4 +2040,5 @@ def _captured_native_output():
             os.close(saved[0])
             os.close(saved[1])
             tmp.seek(0)
-            box.append(tmp.read(50_000).decode("utf-8", errors="replace"))
+            native = tmp.read(50_000).decode("utf-8", errors="replace")
+            box.append(python_side.getvalue()[:50_000] + native)

@@ -35,7 +35,6 @@ line (``climbopt sweep``) shows progress through the ``on_case`` callback.
 from __future__ import annotations
 
 import csv
-import difflib
 import hashlib
 import io
 import itertools
@@ -50,7 +49,7 @@ from pathlib import Path
 from typing import Callable
 
 from climbopt import CAUTION, __version__
-from climbopt.scenario import Scenario, ScenarioError
+from climbopt.scenario import Scenario, ScenarioError, suggest_name
 from climbopt.units import (
     UnitError,
     from_si,
@@ -70,14 +69,6 @@ __all__ = [
 #: Names accepted by ``--vary``.
 PARAMETER_NAMES = ("mass", "temperature_offset", "thrust_scale", "target_altitude",
                    "target_speed", "cost_weight")
-
-#: Words people use for the inputs -> the name ``--vary`` takes (suggested when given).
-_ALIASES = {"weight": "mass", "gross_weight": "mass", "start_mass": "mass",
-            "temperature": "temperature_offset", "isa": "temperature_offset",
-            "delta_isa": "temperature_offset", "dt": "temperature_offset",
-            "thrust": "thrust_scale", "altitude": "target_altitude", "level": "target_altitude",
-            "flight_level": "target_altitude", "speed": "target_speed", "mach": "target_speed",
-            "cost": "cost_weight", "time_cost": "cost_weight"}
 
 #: Case statuses written to the table.
 STATUSES = ("ok", "infeasible", "solver-failure", "bad-input", "error")
@@ -175,12 +166,8 @@ def _split_items(text: str, what: str) -> list[tuple[float, str]]:
 
 
 def _unknown_name(name: str) -> SweepError:
-    close = _ALIASES.get(name.lower())
-    if close is None:
-        matches = difflib.get_close_matches(name, PARAMETER_NAMES, n=1, cutoff=0.5)
-        close = matches[0] if matches else None
-    hint = f" (did you mean '{close}'?)" if close else ""
-    return SweepError(f"--vary: unknown name {name!r}{hint}; known names: {', '.join(PARAMETER_NAMES)}")
+    return SweepError(f"--vary: unknown name {name!r}{suggest_name(name, PARAMETER_NAMES)}; known "
+                      f"names: {', '.join(PARAMETER_NAMES)}")
 
 
 def _range_parts(spec: str, what: str) -> tuple[list[tuple[float, str]], int]:

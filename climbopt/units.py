@@ -185,7 +185,9 @@ def _suggest_unit(bad: str) -> str:
 
 # ---- the unit expression parser -------------------------------------------------------------
 
-_UNIT_NAME_RE = r"[A-Za-z_°µΩ][A-Za-z0-9_]{0,19}"
+_UNIT_NAME_RE = r"[A-Za-z_°µΩ][A-Za-z0-9_]*+"
+#: Longest unit name (pint's names and prefixes, e.g. "delta_degree_Celsius", are shorter).
+_MAX_NAME_CHARS = 20
 _UNIT_TOKEN_RE = re.compile(rf"\s*(?:(?P<name>{_UNIT_NAME_RE})|(?P<int>[-+]?\d+)|(?P<op>\*\*|[*/^·()]))")
 _SUPERSCRIPTS = {"²": "^2", "³": "^3"}
 
@@ -205,6 +207,8 @@ def _tokens(text: str) -> list[tuple[str, str]]:
                 break
             raise _UnitSyntax(f"unexpected {text[pos:].strip()[:1]!r}")
         kind = m.lastgroup
+        if kind == "name" and len(m.group(kind)) > _MAX_NAME_CHARS:
+            raise _UnitSyntax(f"a unit name of more than {_MAX_NAME_CHARS} characters")
         out.append((kind, m.group(kind)))
         pos = m.end()
     return out
@@ -283,7 +287,8 @@ def _unit_factors(text: str) -> list[tuple[str, int]]:
 
 @functools.lru_cache(maxsize=1024)
 def _unit_of_name(name: str):
-    """pint's unit for one vetted name (at most 20 letters, digits and underscores), or None."""
+    """pint's unit for one vetted name (at most _MAX_NAME_CHARS letters, digits and
+    underscores), or None."""
     try:
         unit = registry().parse_units(name)
     except Exception:  # pint raises several types for unknown names
@@ -330,7 +335,7 @@ def parse_unit(unit_text: str, expected_dimension: str, field: str = "", whole: 
         unit = _resolve(text)
     except LookupError as exc:
         bad = str(exc.args[0])
-        raise UnitError(field, f"unknown unit {bad!r} in {_q(unit_text)}{_suggest_unit(bad)}; "
+        raise UnitError(field, f"unknown unit {bad!r} in {_q(whole or unit_text)}{_suggest_unit(bad)}; "
                                f"expected {_describe(dim)}") from None
     except _UnitSyntax as exc:
         raise UnitError(field, f"cannot read unit {_q(unit_text)} ({exc}); expected {_describe(dim)} "
@@ -428,8 +433,9 @@ def flight_level_ft(text: str, field: str = "") -> int:
 
 
 def parse_flight_level(text: str, field: str = "") -> float:
-    """``"FL350"`` -> 10668.0 m (35,000 ft, 1 ft = 0.3048 m); see :func:`flight_level_ft`."""
-    return flight_level_ft(text, field) * FOOT_M
+    """``"FL350"`` -> 10668 m (35,000 ft, 1 ft = 0.3048 m), exactly as ``"35000 ft"`` is read;
+    see :func:`flight_level_ft`."""
+    return flight_level_ft(text, field) * _factor("ft", "length")
 
 
 def parse_altitude(text, field: str = "") -> tuple[float, str, str | None]:
@@ -486,7 +492,12 @@ def parse_quantity_with_unit(text, expected_dimension: str, field: str = "") -> 
     if not isinstance(text, str):
         kind = {list: "an array", dict: "a table"}.get(type(text), type(text).__name__)
         raise UnitError(field, f"expected {_describe(dim)} as a string, got {kind} {_q(text)}")
-    number, unit_text = split_quantity(text, field)
+    try:
+        number, unit_text = split_quantity(text, field)
+    except UnitError:
+        if dim.name != "dimensionless":
+            raise
+        raise UnitError(field, f"cannot read {_q(text)}: expected {_describe(dim)}") from None
     check_number(number, field, text)
     factor = unit_factor(unit_text, expected_dimension, field, whole=text)
     value = number * factor

@@ -596,3 +596,44 @@ def test_cli_sweep_ctrl_c_keeps_the_finished_rows_and_exits_130(small_toml, tmp_
     assert [x["thrust_scale"] for x in rows] == [0.9, 1.0, 1.1]
     # more thrust: a faster climb (common practice, no source)
     assert rows[0]["time_s"] > rows[1]["time_s"] > rows[2]["time_s"]
+
+
+# ---- cases validated like scenario files -----------------------------------------------------
+
+
+def test_dimensional_values_without_a_unit_are_refused(twin):
+    """`mass=13:16:4` would be 13 kg: refused, showing how to write the unit with the user's
+    numbers; a unit after COUNT or on one list value applies to all; flight levels are altitudes."""
+    with pytest.raises(sw.SweepError) as info:
+        sw.parse_variation("mass=13:16:4", twin)
+    assert "'mass=13 t:16 t:4' or 'mass=13:16:4 t'" in str(info.value)
+    with pytest.raises(sw.SweepError, match="'target_altitude=31000,35000 ft'"):
+        sw.parse_variation("target_altitude=31000,35000", twin)
+    assert sw.parse_variation("mass=60:80:3 t", twin).values == (60000.0, 70000.0, 80000.0)
+    assert sw.parse_variation("thrust_scale=0.9:1.1:3", twin).values == pytest.approx((0.9, 1.0, 1.1))
+    assert sw.parse_variation("target_altitude=FL330,FL350", twin).values == pytest.approx(
+        (33000 * FT, 35000 * FT), rel=1e-15)
+
+
+@pytest.mark.parametrize("word, name", [("weight", "mass"), ("temperature", "temperature_offset"),
+                                        ("thrust", "thrust_scale"), ("altitude", "target_altitude")])
+def test_common_words_suggest_the_parameter(twin, word, name):
+    """Words people use for an input suggest its --vary name."""
+    with pytest.raises(sw.SweepError, match=f"unknown name '{word}' \\(did you mean '{name}'\\?\\)"):
+        sw.parse_variation(f"{word}=1,2", twin)
+
+
+def test_case_with_mass_below_fuel_capacity_is_refused_like_the_file(twin, tmp_path):
+    """A 15 t case of the demo transport (20 t of fuel capacity) is bad input with the reader's
+    message, as the same file with mass = "15 t" is."""
+    plan = _plan(twin, "mass=15,70 t")
+    res = sw.run_sweep(plan, tmp_path / "t.csv", executor="serial")
+    bad, ok = res.rows
+    assert (bad["status"], ok["status"]) == ("bad-input", "ok")
+    assert "aircraft.fuel_capacity: '20000.0 kg' exceeds the start mass '15000.0 kg'" in bad["error"]
+    text = TWINJET.read_text(encoding="utf-8").replace('mass = "70000 kg"', 'mass = "15 t"')
+    (tmp_path / "light.toml").write_text(text, encoding="utf-8")
+    with pytest.raises(ScenarioError) as info:
+        load_scenario(tmp_path / "light.toml")
+    assert info.value.problems == [("aircraft.fuel_capacity", "'20000 kg' exceeds the start mass '15 t'; "
+                                                              "expected at most the start mass")]
