@@ -204,9 +204,9 @@ class ScheduleSpec:
 
     name: str
     cas_m_s: float
-    mach: float | None
-    cas_below_restriction_m_s: float | None
-    acceleration_share: float
+    mach: float | None = None
+    cas_below_restriction_m_s: float | None = None
+    acceleration_share: float = 0.5
 
 
 @dataclass(frozen=True)

@@ -56,6 +56,7 @@ from climbopt.units import (
     is_flight_level,
     flight_level_ft,
     parse_quantity,
+    shorten,
     split_quantity,
 )
 
@@ -154,7 +155,7 @@ def _split_items(text: str, what: str) -> list[tuple[float, str]]:
     for part in text.split(","):
         part = part.strip()
         if not part:
-            raise SweepError(f"{what}: empty value in {text!r}")
+            raise SweepError(f"{what}: empty value in '{shorten(text)}'")
         try:
             if is_flight_level(part):
                 items.append((float(flight_level_ft(part, what)), "ft"))
@@ -166,7 +167,7 @@ def _split_items(text: str, what: str) -> list[tuple[float, str]]:
 
 
 def _unknown_name(name: str) -> SweepError:
-    return SweepError(f"--vary: unknown name {name!r}{suggest_name(name, PARAMETER_NAMES)}; known "
+    return SweepError(f"--vary: unknown name '{shorten(name)}'{suggest_name(name, PARAMETER_NAMES)}; known "
                       f"names: {', '.join(PARAMETER_NAMES)}")
 
 
@@ -175,21 +176,21 @@ def _range_parts(spec: str, what: str) -> tuple[list[tuple[float, str]], int]:
     belongs to both ends."""
     parts = spec.split(":")
     if len(parts) != 3:
-        raise SweepError(f"{what}: a range is START:STOP:COUNT, got {spec!r}")
+        raise SweepError(f"{what}: a range is START:STOP:COUNT, got '{shorten(spec)}'")
     count_text, _, unit = parts[2].strip().partition(" ")
     try:
         count = int(count_text)
     except ValueError:
-        raise SweepError(f"{what}: COUNT must be a whole number, got {parts[2].strip()!r}") from None
+        raise SweepError(f"{what}: COUNT must be a whole number, got '{shorten(parts[2].strip())}'") from None
     if count < 1:
         raise SweepError(f"{what}: COUNT must be at least 1, got {count}")
     items = _split_items(parts[0], what) + _split_items(parts[1], what)
     if len(items) != 2:
-        raise SweepError(f"{what}: a range is START:STOP:COUNT, got {spec!r}")
+        raise SweepError(f"{what}: a range is START:STOP:COUNT, got '{shorten(spec)}'")
     unit = unit.strip()
     if unit:
         if any(u for _, u in items):
-            raise SweepError(f"{what}: unit written twice in {spec!r}; write it on the ends "
+            raise SweepError(f"{what}: unit written twice in '{shorten(spec)}'; write it on the ends "
                              f"('60 t:80 t:5') or once after COUNT ('60:80:5 t')")
         items = [(number, unit) for number, _ in items]
     return items, count
@@ -214,7 +215,7 @@ def parse_variation(text: str, scenario: Scenario) -> Variation:
     """
     params = parameters(scenario)
     if "=" not in text:
-        raise SweepError(f"--vary {text!r}: expected NAME=VALUES, e.g. 'mass=60 t:80 t:5' or "
+        raise SweepError(f"--vary '{shorten(text)}': expected NAME=VALUES, e.g. 'mass=60 t:80 t:5' or "
                          f"'temperature_offset=-10,0,10 K'")
     name, spec = (s.strip() for s in text.split("=", 1))
     if name not in params:
