@@ -66,8 +66,9 @@ def test_profile_share_and_time_limit_invalid(tmp_path):
 
 
 def test_procedure_profile_never_descends_invalid(tmp_path):
-    """A target below the start altitude (but at higher energy) is refused for a procedure climb
-    and accepted for a free profile."""
+    """A procedure climb may not end below its start altitude; a free profile may.
+
+    The target is below the start altitude but at higher energy."""
     points = dict(mission__start={"altitude": "20000 ft", "cas": "250 kt"},
                   mission__target={"altitude": "15000 ft", "mach": 0.85})
     msg = find(problems_of(tmp_path, edited(**points)), "mission.target.altitude")
@@ -80,8 +81,10 @@ def test_procedure_profile_never_descends_invalid(tmp_path):
 
 
 def test_flight_level_equals_feet_scalar(tmp_path):
-    """FL350 is 35,000 ft of pressure altitude (flight levels are hundreds of feet; common
-    practice, no source); every altitude field and an engine-table axis accept them."""
+    """FL350 equals 35,000 ft, in every altitude field and an engine-table axis.
+
+    Flight levels are pressure altitude in hundreds of feet (common practice, no source);
+    check prints them as written."""
     doc = edited(mission__target={"altitude": "FL350", "mach": 0.8},
                  limits__cas_restriction={"cas": "250 kt", "below": "FL100"},
                  limits__max_altitude="fl 400")
@@ -111,9 +114,11 @@ def test_malformed_flight_level_exit_2(tmp_path, level):
 
 
 def test_start_below_stall_speed_invalid(tmp_path):
-    """100 kt TAS at sea level needs CL = m g0 / (q S) = 2.420 at 20 t and 50 m^2 (rho0 =
+    """A start (or target) below the stall speed at the start mass is refused.
+
+    100 kt TAS at sea level needs CL = m g0 / (q S) = 2.420 at 20 t and 50 m^2 (rho0 =
     1.225 kg/m^3, US Standard Atmosphere 1976, Table I), above CLmax(M 0.151) = 1.175 (linear
-    in the test jet's table, a0 = 340.294 m/s): refused, at the start and at the target."""
+    in the test jet's table, a0 = 340.294 m/s)."""
     v = 100 * KT
     cl = 20000 * G0 / (0.5 * 1.225 * v**2 * 50)
     clmax = 1.2 - 0.2 * (v / 340.294) / 1.2
@@ -191,9 +196,10 @@ def test_demo_transport_schedule():
 
 
 def test_plausibility_warnings_printed_exit_0(tmp_path):
-    """An invented jet whose thrust rises with altitude in one cell (110 -> 120 kN at Mach 0.5)
-    and whose thrust scale 5 gives T/W = 5 x 100 kN / (20 t x g0) = 2.55: both are warnings,
-    printed after the summary, and check still exits 0."""
+    """Thrust rising with altitude and a high thrust-to-weight ratio are warnings; exit 0.
+
+    Invented jet: thrust 110 -> 120 kN from 0 to 20,000 ft at Mach 0.5; thrust scale 5 gives
+    T/W = 5 x 100 kN / (20 t x g0) = 2.55. Printed after the summary."""
     thrust = {"unit": "kN", "values": [[100, 60, 30], [110, 120, 33], [130, 80, 40]]}
     doc = edited(propulsion__ratings__max__thrust=thrust, propulsion__thrust_scale=5.0)
     code, out = check(write(tmp_path, doc))
@@ -206,8 +212,9 @@ def test_plausibility_warnings_printed_exit_0(tmp_path):
 
 
 def test_transposed_table_and_rising_fuel_flow_warn(tmp_path):
-    """A square thrust table written with rows over altitude looks transposed; a fuel-flow table
-    rising with altitude is reported for its own field; the bundled demos draw no warning."""
+    """A transposed square thrust table and a rising fuel-flow table draw warnings.
+
+    The bundled demos draw none."""
     rating = dict(BASE["propulsion"]["ratings"]["max"])
     rating.pop("tsfc")
     rating["thrust"] = {"unit": "kN", "values": [[100, 110, 130], [60, 65, 80], [30, 33, 40]]}
@@ -226,9 +233,10 @@ def test_transposed_table_and_rising_fuel_flow_warn(tmp_path):
 
 
 def test_published_interceptor_thrust_rises_at_its_corners_warning():
-    """The 1969 interceptor's thrust table (Bryson, Desai & Hoffman 1969, as tabulated by Betts
-    2010) rises with altitude in 5 of its 90 steps, at high Mach and low altitude; the largest is
-    33.8 -> 45.7 klbf from 5,000 to 10,000 ft at Mach 1.8."""
+    """The 1969 interceptor's thrust table draws one warning: 5 of 90 steps rise.
+
+    Source: Bryson, Desai & Hoffman, J. Aircraft 6(6), 1969, as tabulated by Betts 2010; the
+    largest rise is 33.8 -> 45.7 klbf from 5,000 to 10,000 ft at Mach 1.8."""
     (fld, msg), = load_scenario(ROOT / "tests" / "data" / "interceptor_1969.toml").warnings
     assert fld == "propulsion.ratings.max.thrust"
     assert msg.startswith("thrust rises with altitude at fixed Mach in 5 of 90 steps; largest at Mach "
@@ -276,8 +284,9 @@ def test_valid_ipopt_options_pass(tmp_path):
     dict(mission__target={"altitude": "40000 ft", "mach": 0.8}),  # the engine table's top
 ])
 def test_point_exactly_on_a_limit_passes(tmp_path, changes):
-    """A start or target written exactly on a limit or a table edge is inside (relative
-    tolerance 1e-9), whatever units the two are written in."""
+    """A point exactly on a limit or a table edge is inside, in any units.
+
+    Relative tolerance 1e-9."""
     s = load_scenario(write(tmp_path, edited(**changes)))
     assert s.mission.target.tas_m_s > 0
 
@@ -315,8 +324,10 @@ def test_replace_without_changes_is_exact(path):
 
 
 def test_replace_is_validated_like_a_file():
-    """A mass below the fuel capacity is refused as in a file, naming the change; so are a limit
-    the target breaks (by dotted name) and a malformed value; unknown names get a suggestion."""
+    """Scenario.replace refuses what a file would, naming the change.
+
+    A mass below the fuel capacity, a limit the target breaks (by dotted name), a malformed
+    flight level; unknown names get a suggestion."""
     s = load_scenario(TWINJET)
     with pytest.raises(ScenarioError) as info:
         s.replace(mass="15 t")
@@ -338,8 +349,9 @@ def test_replace_is_validated_like_a_file():
 
 
 def test_replace_si_and_kind_of_speed():
-    """replace_si takes SI floats (exactly as replace with SI text); target_cas switches the kind
-    of the target speed; a change made with dataclasses.replace (a coarse grid) is kept."""
+    """replace_si equals replace with SI text; target_cas switches the kind of speed.
+
+    A change made with dataclasses.replace (a coarse grid) is kept."""
     s = load_scenario(TWINJET)
     assert s.replace_si(mass=65000.0, target_altitude=10000.0) == s.replace(mass="65000 kg",
                                                                             target_altitude="10000 m")
@@ -352,8 +364,9 @@ def test_replace_si_and_kind_of_speed():
 
 
 def test_vanishing_speed_is_below_stall_invalid(tmp_path):
-    """Mach 5e-324 (the smallest positive float; q = 0 after rounding) is refused as below the
-    stall speed, not a division by zero (found by the fuzz benchmark)."""
+    """Mach 5e-324 (q = 0 after rounding) is below the stall speed, not a ZeroDivisionError.
+
+    Found by the fuzz benchmark."""
     doc = edited(mission__target={"altitude": "30000 ft", "mach": 5e-324})
     msg = find(problems_of(tmp_path, doc), "mission.target.mach")
     assert msg == "below the stall speed: the speed is too small to give any lift"

@@ -68,9 +68,10 @@ def _documents():
 @settings(max_examples=300, deadline=timedelta(seconds=3), derandomize=False)
 @given(st.randoms(use_true_random=False))
 def test_mutated_bundled_scenarios_only_raise_scenario_error_within_a_second(tmp_path_factory, rng):
-    """Mutated demo and benchmark files (deleted keys, type swaps, NaN/inf/huge numbers, bad and
-    nested units, long strings, deep nesting, unicode junk, damaged text) give a Scenario or a
-    ScenarioError with short messages, each within 1 s."""
+    """Mutated bundled scenario files give a Scenario or a ScenarioError, within 1 s each.
+
+    Mutations: deleted keys, type swaps, NaN/inf/huge numbers, bad and nested units, long
+    strings, deep nesting, unicode junk, damaged text; messages stay short."""
     what, text = fuzz_case(_documents(), rng)
     path = tmp_path_factory.getbasetemp() / "fuzz.toml"
     path.write_text(text, encoding="utf-8")
@@ -97,8 +98,9 @@ def test_mutated_bundled_scenarios_only_raise_scenario_error_within_a_second(tmp
     ("[" + ".".join("abcdefghijkl") + "]\n", "has more than 10 parts"),
 ])
 def test_deep_nesting_invalid(tmp_path, text, words):
-    """Deeply nested arrays, inline tables and dotted keys are refused before the TOML reader
-    (which recurses on nesting and grows with the square of a dotted key's length)."""
+    """Deep arrays, inline tables and dotted keys are refused before the TOML reader runs.
+
+    (The reader recurses on nesting and grows with the square of a dotted key's length.)"""
     problems, _ = timed_problems(write_text(tmp_path, text))
     assert problems[0][0] == "file" and words in problems[0][1]
 
@@ -115,8 +117,10 @@ def test_nesting_of_sections_and_arrays_together_invalid(tmp_path):
 
 
 def test_huge_integers_invalid(tmp_path):
-    """throttle_max = 1 followed by 300 zeros is refused (no OverflowError), the number cut short;
-    an integer of 5,000 digits (beyond what Python converts) is refused as unreadable TOML."""
+    """Huge integers are refused by field, not raised as OverflowError or ValueError.
+
+    throttle_max = 1 followed by 300 zeros: "too large", the number cut short; an integer of
+    5,000 digits (beyond what Python converts): unreadable TOML."""
     problems = problems_of(tmp_path, edited(propulsion__throttle_max=10**300))
     msg = find(problems, "propulsion.throttle_max")
     assert "is too large; expected a number within +-1e15" in msg and len(msg) < 130
@@ -136,8 +140,9 @@ def test_huge_numbers_in_quantities_invalid(tmp_path, value, field):
 
 
 def test_infinite_after_unit_conversion_invalid(tmp_path, monkeypatch):
-    """1e308 in a { unit = "kN", values = [...] } table is refused; with the magnitude limit
-    lifted it still is, because finiteness is checked after conversion (1e308 kN = inf N)."""
+    """1e308 kN in a unit table is refused, and finiteness is checked after conversion.
+
+    With the magnitude limit lifted, 1e308 kN = inf N is still refused."""
     thrust = {"unit": "kN", "values": [[1e308, 60, 30], [110, 65, 33], [130, 80, 40]]}
     doc = edited(propulsion__ratings__max__thrust=thrust)
     msg = find(problems_of(tmp_path, doc), "propulsion.ratings.max.thrust.values[0][0]")
@@ -162,8 +167,9 @@ def test_ipopt_numbers_have_their_own_limits(tmp_path):
 
 
 def test_long_strings_invalid(tmp_path):
-    """A 200,000-character name and a 1 MB unit are refused with messages of a few hundred
-    characters that show at most 60 characters of the value."""
+    """Long strings are refused with short messages echoing at most 60 characters.
+
+    A 200,000-character name; a 1 MB unit string (message under 300 characters)."""
     problems = problems_of(tmp_path, edited(aircraft__name="x" * 200_000))
     assert "text of 200000 characters" in find(problems, "aircraft.name")
     text = to_toml(BASE).replace('"mass" = "20000 kg"', '"mass" = "20000 ' + "kg/" * 340_000 + 'kg"')
@@ -189,8 +195,9 @@ def test_size_limits_invalid(tmp_path, change, field, words):
 
 
 def test_file_over_1_mib_invalid_and_1_mib_read_within_a_second(tmp_path):
-    """A file of 1 MiB + 1 byte is refused unread; a valid file padded to exactly 1 MiB with a
-    comment is read, within a second."""
+    """A file over 1 MiB is refused unread; a valid file of exactly 1 MiB is read within 1 s.
+
+    The valid file is the demo transport padded with a comment."""
     text = TWINJET.read_text(encoding="utf-8") + "# "
     padded = text + "x" * (MAX_FILE_BYTES - len(text.encode()))
     path = write_text(tmp_path, padded)

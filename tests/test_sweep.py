@@ -602,8 +602,9 @@ def test_cli_sweep_ctrl_c_keeps_the_finished_rows_and_exits_130(small_toml, tmp_
 
 
 def test_dimensional_values_without_a_unit_are_refused(twin):
-    """`mass=13:16:4` would be 13 kg: refused, showing how to write the unit with the user's
-    numbers; a unit after COUNT or on one list value applies to all; flight levels are altitudes."""
+    """`--vary mass=13:16:4` is refused with a message showing how to write the unit.
+
+    A unit after COUNT or on one list value applies to all; flight levels are altitudes."""
     with pytest.raises(sw.SweepError) as info:
         sw.parse_variation("mass=13:16:4", twin)
     assert "'mass=13 t:16 t:4' or 'mass=13:16:4 t'" in str(info.value)
@@ -624,8 +625,9 @@ def test_common_words_suggest_the_parameter(twin, word, name):
 
 
 def test_case_with_mass_below_fuel_capacity_is_refused_like_the_file(twin, tmp_path):
-    """A 15 t case of the demo transport (20 t of fuel capacity) is bad input with the reader's
-    message, as the same file with mass = "15 t" is."""
+    """A sweep case lighter than its fuel capacity is bad input, as the same file is.
+
+    The demo transport at 15 t (20 t of fuel capacity)."""
     plan = _plan(twin, "mass=15,70 t")
     res = sw.run_sweep(plan, tmp_path / "t.csv", executor="serial")
     bad, ok = res.rows
