@@ -35,10 +35,12 @@ def check(scenario_file: str, check_units: str):
 
     Exit code 0 when the file is valid, 2 when it is not.
     """
-    from climbopt.scenario import ScenarioError, describe_scenario, load_scenario
+    from climbopt.describe import describe_scenario
+    from climbopt.scenario import ScenarioError, check_solver_options, load_scenario
 
     try:
         scenario = load_scenario(scenario_file)
+        check_solver_options(scenario)
         text = describe_scenario(scenario, units=check_units)
     except ScenarioError as exc:
         n = len(exc.problems)
@@ -51,6 +53,8 @@ def check(scenario_file: str, check_units: str):
                    err=True)
         raise SystemExit(2) from None
     click.echo(text)
+    for fld, msg in scenario.warnings:
+        click.echo(f"warning: {fld}: {msg}")
     click.echo("")
     click.echo(f"OK: {scenario_file} is a valid scenario.")
     click.echo(f"Caution: {CAUTION}")
@@ -321,7 +325,9 @@ def map_command(scenario_file, out_dir, units, quiet):
               help="An input to vary, repeatable. NAME: mass, temperature_offset, thrust_scale, "
                    "target_altitude, target_speed (in the target's kind of speed), cost_weight. "
                    "VALUES: START:STOP:COUNT (ends included) or a comma list; units allowed "
-                   "('mass=60 t:80 t:5', 'temperature_offset=-10,0,10,20 K'); bare numbers are SI.")
+                   "('mass=60 t:80 t:5', 'temperature_offset=-10,0,10,20 K'); a unit written once "
+                   "applies to every value ('mass=60:80:5 t'); numbers without any unit only for "
+                   "thrust_scale and a Mach target_speed.")
 @click.option("--zip", "zip_values", is_flag=True,
               help="Take the i-th values of all --vary together instead of the full grid.")
 @click.option("--method", type=click.Choice(["energy", "collocation"]), default="energy",

@@ -3,8 +3,10 @@
 What a sweep does
 -----------------
 1. :func:`parse_variation` reads ``name=spec`` texts (``mass=60 t:80 t:5`` is a range of five
-   evenly spaced values, ends included; ``temperature_offset=-10,0,10,20 K`` is a list; a bare
-   number takes the unit written elsewhere in the same spec, or the SI unit when none is written).
+   evenly spaced values, ends included; ``temperature_offset=-10,0,10,20 K`` is a list; a number
+   without a unit takes the unit written elsewhere in the same spec, e.g. ``mass=60:80:5 t``).
+   A dimensional input with no unit at all is refused (``mass=13:16:4`` would otherwise be read
+   as 13 kg), with a message showing how to write it.
 2. :func:`plan_sweep` expands the variations into cases, as the full grid (the last variation
    varies fastest) or, with ``zip_values=True``, as the given combinations. When the cost weight
    is varied (objective "weighted"), two single-objective cases per combination of the other
@@ -32,7 +34,6 @@ line (``climbopt sweep``) shows progress through the ``on_case`` callback.
 from __future__ import annotations
 
 import csv
-import difflib
 import hashlib
 import io
 import itertools
@@ -47,8 +48,15 @@ from pathlib import Path
 from typing import Callable
 
 from climbopt import CAUTION, __version__
-from climbopt.scenario import Scenario, ScenarioError
-from climbopt.units import UnitError, parse_quantity, split_quantity
+from climbopt.scenario import Scenario, ScenarioError, suggest_name
+from climbopt.units import (
+    UnitError,
+    is_flight_level,
+    flight_level_ft,
+    parse_quantity,
+    shorten,
+    split_quantity,
+)
 
 __all__ = [
     "PARAMETER_NAMES", "STATUSES", "SweepError", "SweepAborted", "Parameter", "Variation", "Case",
@@ -138,66 +146,91 @@ class Variation:
 
 
 def _split_items(text: str, what: str) -> list[tuple[float, str]]:
+    """(number, unit as written) of each comma-separated value; a flight level ("FL350") is
+    (35000.0, "ft")."""
     items = []
     for part in text.split(","):
         part = part.strip()
         if not part:
-            raise SweepError(f"{what}: empty value in {text!r}")
+            raise SweepError(f"{what}: empty value in '{shorten(text)}'")
         try:
-            items.append(split_quantity(part, what))
+            if is_flight_level(part):
+                items.append((float(flight_level_ft(part, what)), "ft"))
+            else:
+                items.append(split_quantity(part, what))
         except UnitError as exc:
             raise SweepError(f"{what}: {exc.message}") from None
     return items
+
+
+def _unknown_name(name: str) -> SweepError:
+    return SweepError(f"--vary: unknown name '{shorten(name)}'{suggest_name(name, PARAMETER_NAMES)}; known "
+                      f"names: {', '.join(PARAMETER_NAMES)}")
+
+
+def _range_parts(spec: str, what: str) -> tuple[list[tuple[float, str]], int]:
+    """START:STOP:COUNT -> the two end items and COUNT; a unit after COUNT ("60:80:5 t")
+    belongs to both ends."""
+    parts = spec.split(":")
+    if len(parts) != 3:
+        raise SweepError(f"{what}: a range is START:STOP:COUNT, got '{shorten(spec)}'")
+    count_text, _, unit = parts[2].strip().partition(" ")
+    try:
+        count = int(count_text)
+    except ValueError:
+        raise SweepError(f"{what}: COUNT must be a whole number, got '{shorten(parts[2].strip())}'") from None
+    if count < 1:
+        raise SweepError(f"{what}: COUNT must be at least 1, got {count}")
+    items = _split_items(parts[0], what) + _split_items(parts[1], what)
+    if len(items) != 2:
+        raise SweepError(f"{what}: a range is START:STOP:COUNT, got '{shorten(spec)}'")
+    unit = unit.strip()
+    if unit:
+        if any(u for _, u in items):
+            raise SweepError(f"{what}: unit written twice in '{shorten(spec)}'; write it on the ends "
+                             f"('60 t:80 t:5') or once after COUNT ('60:80:5 t')")
+        items = [(number, unit) for number, _ in items]
+    return items, count
 
 
 def parse_variation(text: str, scenario: Scenario) -> Variation:
     """Read one ``NAME=VALUES`` text.
 
     ``VALUES`` is either ``START:STOP:COUNT`` (COUNT evenly spaced values, both ends included)
-    or a comma-separated list. Values may carry units (``60 t``, ``15 K``, ``35000 ft``,
-    ``280 kt``); a bare number takes the one unit written with the other values of the same
-    text, or the SI unit (kg, K, m, m/s, kg/s) when no unit is written (with several units
-    written, every value needs its own). No thousands separators (commas separate values).
+    or a comma-separated list. Dimensional inputs need a unit (``60 t``, ``15 K``,
+    ``35000 ft``, ``FL350``, ``280 kt``, ``0.5 kg/s``): on every value, or written once -- on
+    one value of a list (``-10,0,10,20 K``) or after COUNT (``60:80:5 t``) -- for all. With
+    several units written, every value needs its own. Numbers without a unit are accepted only
+    for the thrust scale and a Mach-number target speed. No thousands separators (commas
+    separate values).
 
     Raises
     ------
     SweepError
-        Unknown name (with a suggestion), malformed text, wrong unit, bad count, repeated value.
+        Unknown name (with a suggestion), a missing unit (with an example), malformed text,
+        wrong unit, bad count, repeated value.
     """
     params = parameters(scenario)
     if "=" not in text:
-        raise SweepError(f"--vary {text!r}: expected NAME=VALUES, e.g. 'mass=60 t:80 t:5' or "
+        raise SweepError(f"--vary '{shorten(text)}': expected NAME=VALUES, e.g. 'mass=60 t:80 t:5' or "
                          f"'temperature_offset=-10,0,10 K'")
     name, spec = (s.strip() for s in text.split("=", 1))
     if name not in params:
-        close = difflib.get_close_matches(name, PARAMETER_NAMES, n=1, cutoff=0.5)
-        hint = f" (did you mean '{close[0]}'?)" if close else ""
-        raise SweepError(f"--vary: unknown name {name!r}{hint}; known names: "
-                         f"{', '.join(PARAMETER_NAMES)}")
+        raise _unknown_name(name)
     p = params[name]
     what = f"--vary {name}"
     if not spec:
         raise SweepError(f"{what}: no values given")
     if ":" in spec:
-        parts = spec.split(":")
-        if len(parts) != 3:
-            raise SweepError(f"{what}: a range is START:STOP:COUNT, got {spec!r}")
-        count_text = parts[2].strip()
-        try:
-            count = int(count_text)
-        except ValueError:
-            raise SweepError(f"{what}: COUNT must be a whole number, got {count_text!r}") from None
-        if count < 1:
-            raise SweepError(f"{what}: COUNT must be at least 1, got {count}")
-        items = _split_items(parts[0], what) + _split_items(parts[1], what)
-        if len(items) != 2:
-            raise SweepError(f"{what}: a range is START:STOP:COUNT, got {spec!r}")
+        items, count = _range_parts(spec, what)
     else:
         items, count = _split_items(spec, what), None
     written = sorted({u for _, u in items if u})
     if len(written) > 1 and any(not u for _, u in items):
         raise SweepError(f"{what}: several units written ({', '.join(written)}) and some values "
                          f"without one; write the unit on every value")
+    if not written and p.dimension != "dimensionless":
+        raise SweepError(_missing_unit(name, p, spec))
     default_unit = written[0] if written else p.si_unit
     values = []
     for number, unit in items:
@@ -219,6 +252,21 @@ def parse_variation(text: str, scenario: Scenario) -> Variation:
             raise SweepError(f"{what}: value {v:g} {p.si_unit} appears twice")
         seen.add(v)
     return Variation(name, tuple(float(v) for v in values), written[0] if written else "")
+
+
+#: A unit for each dimensional input, for the example in the message on a missing unit.
+_EXAMPLE_UNITS = {"mass": "t", "temperature_offset": "K", "target_altitude": "ft",
+                  "target_speed": "kt", "cost_weight": "kg/s"}
+
+
+def _missing_unit(name: str, p: Parameter, spec: str) -> str:
+    """The message for a dimensional input given without any unit, with the user's numbers."""
+    u = _EXAMPLE_UNITS[name]
+    parts = [x.strip() for x in spec.split(":")]
+    how = (f"'{name}={parts[0]} {u}:{parts[1]} {u}:{parts[2]}' or '{name}={spec} {u}'"
+           if len(parts) == 3 else f"'{name}={spec} {u}'")
+    return (f"--vary {name}={spec}: no unit given; the {p.label} needs one (a bare number is not "
+            f"read as SI), e.g. {how}")
 
 
 # ============================================================================================
@@ -263,7 +311,8 @@ class SweepPlan:
 def scenario_fingerprint(scenario: Scenario) -> str:
     """SHA-256 of everything in ``scenario`` that can change a result (not its name,
     description, file path or display units)."""
-    core = replace(scenario, name="", description="", source_path="", display_units={})
+    core = replace(scenario, name="", description="", source_path="", display_units={},
+                   display_text={}, warnings=())
     return hashlib.sha256(repr(core).encode("utf-8")).hexdigest()
 
 
@@ -351,12 +400,10 @@ def plan_sweep(scenario: Scenario, variations, *, zip_values: bool = False,
     return SweepPlan(scenario, variations, method, objective, bool(zip_values), tuple(cases))
 
 
-def _bad(scenario: Scenario, fld: str, message: str) -> ScenarioError:
-    return ScenarioError(scenario.source_path or "<scenario>", [(fld, message)])
-
-
 def apply_case(scenario: Scenario, values) -> Scenario:
-    """The scenario with the changed inputs ``values`` (mapping or pairs of name -> SI value).
+    """The scenario with the changed inputs ``values`` (mapping or pairs of name -> SI value),
+    built by :meth:`climbopt.scenario.Scenario.replace_si`: validated exactly as a scenario file
+    (ranges, fuel capacity against mass, stall speed, limits, table coverage).
 
     Start and target true airspeeds are recomputed from the speeds as given (Mach, CAS, EAS or
     TAS) in the changed atmosphere and at the changed target altitude and speed.
@@ -364,60 +411,13 @@ def apply_case(scenario: Scenario, values) -> Scenario:
     Raises
     ------
     ScenarioError
-        A value out of range (mass, thrust scale and target speed must be positive, cost weight
-        not negative, target altitude within -500 m to 70 km as in scenario files).
+        The changed scenario is not valid (each message names the change).
     """
-    from climbopt.airspeed import tas_from_speed
-
     values = dict(values)
     unknown = set(values) - set(PARAMETER_NAMES)
     if unknown:
         raise ValueError(f"unknown sweep parameter(s): {', '.join(sorted(unknown))}")
-    for name, v in values.items():
-        if not math.isfinite(v):
-            raise _bad(scenario, name, f"got {v}; expected a finite number")
-    ac, prop, atm, mis, sol = (scenario.aircraft, scenario.propulsion, scenario.atmosphere,
-                               scenario.mission, scenario.solver)
-    if "mass" in values:
-        if values["mass"] <= 0:
-            raise _bad(scenario, "aircraft.mass", f"got {values['mass']:g} kg; expected more than 0")
-        ac = replace(ac, mass_kg=values["mass"])
-    if "thrust_scale" in values:
-        if values["thrust_scale"] <= 0:
-            raise _bad(scenario, "propulsion.thrust_scale",
-                       f"got {values['thrust_scale']:g}; expected more than 0")
-        prop = replace(prop, thrust_scale=values["thrust_scale"])
-    if "cost_weight" in values:
-        if values["cost_weight"] < 0:
-            raise _bad(scenario, "solver.cost_weight",
-                       f"got {values['cost_weight']:g} kg/s; expected 0 or more")
-        sol = replace(sol, cost_weight_kg_per_s=values["cost_weight"])
-    if "temperature_offset" in values:
-        atm = replace(atm, temperature_offset_k=values["temperature_offset"])
-    start, target = mis.start, mis.target
-    if "target_altitude" in values:
-        h = values["target_altitude"]
-        if not -500.0 <= h <= 70_000.0:
-            raise _bad(scenario, "mission.target.altitude",
-                       f"got {h:g} m; expected -500 m to 70 km")
-        target = replace(target, altitude_m=h)
-    if "target_speed" in values:
-        if values["target_speed"] <= 0:
-            raise _bad(scenario, f"mission.target.{target.speed_kind}",
-                       f"got {values['target_speed']:g}; expected more than 0")
-        target = replace(target, speed_value=values["target_speed"])
-    dt_k = atm.temperature_offset_k
-    try:
-        if "temperature_offset" in values:
-            start = replace(start, tas_m_s=float(tas_from_speed(
-                start.speed_kind, start.speed_value, start.altitude_m, dt_k)))
-        if {"temperature_offset", "target_altitude", "target_speed"} & set(values):
-            target = replace(target, tas_m_s=float(tas_from_speed(
-                target.speed_kind, target.speed_value, target.altitude_m, dt_k)))
-    except ValueError as exc:
-        raise _bad(scenario, "mission", f"cannot convert the speeds: {exc}") from None
-    mis = replace(mis, start=start, target=target)
-    return replace(scenario, aircraft=ac, propulsion=prop, atmosphere=atm, mission=mis, solver=sol)
+    return scenario.replace_si(**values)
 
 
 def _classify(exc: BaseException) -> str:

@@ -6,20 +6,68 @@ climbopt works in SI floats (m, s, kg, N, W, Pa, K, rad).
 
 Errors are :class:`UnitError` (a ``ValueError``) carrying one plain-English message naming the
 field, the text given and what was expected -- never a pint traceback.
+
+Untrusted text never reaches pint's expression parser. "number unit" text is split here, its
+length and magnitude bounded (:data:`MAX_QUANTITY_CHARS`, :data:`MAX_MAGNITUDE`), and the unit
+is read by a small parser of our own: a product or quotient of at most :data:`MAX_UNIT_FACTORS`
+unit names with small integer powers and at most one level of parentheses (``kg/h``,
+``lb/lbf/h``, ``m^2``, ``1/rad``, ``kg/(N s)``). pint is only asked to look up single names
+(cached), so no input can make it recurse or run for long.
 """
 
 from __future__ import annotations
 
 import difflib
+import functools
 import math
 import re
 from dataclasses import dataclass
 
 import pint
 
-#: The single unit registry of climbopt. pint's built-in definitions use the international
-#: foot (0.3048 m), pound (0.45359237 kg), nautical mile (1852 m) and knot (1852 m / 3600 s).
-ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=False)
+#: Longest "number unit" text accepted (characters).
+MAX_QUANTITY_CHARS = 64
+#: Longest unit text accepted (characters), e.g. ``"lb/lbf/h"``.
+MAX_UNIT_CHARS = 32
+#: Most unit names in one unit expression (``lb/lbf/h`` has three).
+MAX_UNIT_FACTORS = 6
+#: Largest power of one unit name (``m^2``, ``ft^3``, ``s^-2``).
+MAX_UNIT_POWER = 4
+#: Largest magnitude of a number written in a scenario (before unit conversion). Real inputs are
+#: many orders of magnitude smaller; anything larger is a typing error. (Messages say "1e15".)
+MAX_MAGNITUDE = 1e15
+#: Longest excerpt of any input echoed in a message (characters).
+MAX_SHOWN_CHARS = 60
+
+
+@functools.lru_cache(maxsize=None)
+def registry() -> pint.UnitRegistry:
+    """The single unit registry of climbopt, built on first use (about 0.15 s) rather than at
+    import. pint's built-in definitions use the international foot (0.3048 m), pound
+    (0.45359237 kg), nautical mile (1852 m) and knot (1852 m / 3600 s)."""
+    return pint.UnitRegistry(autoconvert_offset_to_baseunit=False)
+
+
+def __getattr__(name: str):
+    """``climbopt.units.ureg`` still names the registry (built on first access)."""
+    if name == "ureg":
+        return registry()
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def shorten(value, limit: int = MAX_SHOWN_CHARS) -> str:
+    """``value`` as text (strings as they are, other values by ``repr``), cut to ``limit``
+    characters with "..." so that a message never echoes a huge input."""
+    try:
+        text = value if isinstance(value, str) else repr(value)
+    except ValueError:  # an integer with more digits than Python converts to text
+        text = f"<an integer of about {int(value.bit_length() * 0.30103)} digits>"
+    return text if len(text) <= limit else text[: limit - 3] + "..."
+
+
+def _q(value) -> str:
+    """A value quoted for a message: ``'text'`` (cut to :data:`MAX_SHOWN_CHARS`)."""
+    return f"'{shorten(value)}'"
 
 
 @dataclass(frozen=True)
@@ -59,6 +107,31 @@ DIMENSIONS: dict[str, Dimension] = {
     )
 }
 
+#: Display unit of each kind of quantity in the two unit systems of printed output (kind ->
+#: {"si": unit text, "us": unit text}); the one table for every output module. Kinds are the
+#: :data:`DIMENSIONS` names plus "altitude", "distance" (long ground distances), "rate" (rate
+#: of climb, specific excess power) and "none" (plain numbers).
+DISPLAY_UNITS: dict[str, dict[str, str]] = {
+    "length": {"si": "m", "us": "ft"},
+    "altitude": {"si": "m", "us": "ft"},
+    "distance": {"si": "km", "us": "nmi"},
+    "area": {"si": "m^2", "us": "ft^2"},
+    "mass": {"si": "kg", "us": "lb"},
+    "time": {"si": "s", "us": "s"},
+    "speed": {"si": "m/s", "us": "kt"},
+    "rate": {"si": "m/s", "us": "ft/min"},
+    "force": {"si": "N", "us": "lbf"},
+    "power": {"si": "W", "us": "hp"},
+    "pressure": {"si": "Pa", "us": "lbf/ft^2"},
+    "mass_flow": {"si": "kg/s", "us": "lb/h"},
+    "tsfc": {"si": "kg/N/s", "us": "lb/lbf/h"},
+    "psfc": {"si": "kg/W/s", "us": "lb/hp/h"},
+    "temperature_difference": {"si": "K", "us": "K"},
+    "angle": {"si": "rad", "us": "deg"},
+    "per_angle": {"si": "1/rad", "us": "1/rad"},
+    "none": {"si": "", "us": ""},
+}
+
 
 class UnitError(ValueError):
     """A value could not be read as a quantity of the expected dimension.
@@ -95,60 +168,180 @@ def _dimension(expected_dimension: str) -> Dimension:
         raise ValueError(f"unknown dimension name {expected_dimension!r}; known: {sorted(DIMENSIONS)}") from None
 
 
-def _all_unit_names() -> list[str]:
-    names = set()
-    for name in dir(ureg):
-        if not name.startswith("_"):
-            names.add(name)
-    return sorted(names)
+_COMMON_UNITS = ("ft", "m", "km", "kft", "kt", "kn", "nmi", "kg", "lb", "t", "N", "kN", "lbf",
+                 "klbf", "W", "kW", "hp", "Pa", "kPa", "hPa", "psi", "K", "delta_degC", "s", "h",
+                 "min", "deg", "rad")
 
 
-_UNIT_NAMES: list[str] | None = None
-
-
+@functools.lru_cache(maxsize=512)
 def _suggest_unit(bad: str) -> str:
-    """Return ' (did you mean ...?)' for an unknown unit name, or ''."""
-    global _UNIT_NAMES
-    if _UNIT_NAMES is None:
-        try:
-            _UNIT_NAMES = _all_unit_names()
-        except Exception:  # pragma: no cover - pint internals changed
-            _UNIT_NAMES = []
-    common = ["ft", "m", "km", "kft", "kt", "kn", "nmi", "kg", "lb", "N", "kN", "lbf", "klbf", "W",
-              "kW", "hp", "Pa", "kPa", "psf", "K", "delta_degC", "s", "h", "min", "deg", "rad"]
-    close = difflib.get_close_matches(bad, common, n=3, cutoff=0.5)
+    """Return ' (did you mean ...?)' for an unknown unit name (at most 20 characters), or ''."""
+    close = difflib.get_close_matches(bad, _COMMON_UNITS, n=3, cutoff=0.5)
     if not close:
-        close = difflib.get_close_matches(bad, _UNIT_NAMES, n=3, cutoff=0.75)
+        names = [n for n in dir(registry()) if not n.startswith("_")]
+        close = difflib.get_close_matches(bad, names, n=3, cutoff=0.75)
     return f" (did you mean {', '.join(repr(c) for c in close)}?)" if close else ""
 
 
-_UNIT_CHARS_RE = re.compile(r"^[\w\s/*^().%°²³µ·-]*$")
+# ---- the unit expression parser -------------------------------------------------------------
+
+_UNIT_NAME_RE = r"[A-Za-z_°µΩ][A-Za-z0-9_]*+"
+#: Longest unit name (pint's names and prefixes, e.g. "delta_degree_Celsius", are shorter).
+_MAX_NAME_CHARS = 20
+_UNIT_TOKEN_RE = re.compile(rf"\s*(?:(?P<name>{_UNIT_NAME_RE})|(?P<int>[-+]?\d+)|(?P<op>\*\*|[*/^·()]))")
+_SUPERSCRIPTS = {"²": "^2", "³": "^3"}
+
+
+class _UnitSyntax(Exception):
+    """A unit text outside the accepted grammar (the message says why)."""
+
+
+def _tokens(text: str) -> list[tuple[str, str]]:
+    for sup, plain in _SUPERSCRIPTS.items():
+        text = text.replace(sup, plain)
+    out, pos = [], 0
+    while pos < len(text):
+        m = _UNIT_TOKEN_RE.match(text, pos)
+        if m is None or m.end() == pos:
+            if text[pos:].strip() == "":
+                break
+            raise _UnitSyntax(f"unexpected {text[pos:].strip()[:1]!r}")
+        kind = m.lastgroup
+        if kind == "name" and len(m.group(kind)) > _MAX_NAME_CHARS:
+            raise _UnitSyntax(f"a unit name of more than {_MAX_NAME_CHARS} characters")
+        out.append((kind, m.group(kind)))
+        pos = m.end()
+    return out
+
+
+def _unit_factors(text: str) -> list[tuple[str, int]]:
+    """``"lb/lbf/h"`` -> ``[("lb", 1), ("lbf", -1), ("h", -1)]``.
+
+    Grammar: factors separated by ``*``, ``·``, ``/`` or spaces (multiplication); a factor is a
+    unit name or one parenthesised group of names (no nesting), optionally raised to a whole
+    power with ``^`` or ``**``; a leading ``1`` stands for a numerator of one (``1/rad``).
+    Division applies to the next factor only (``a/b/c`` is a b^-1 c^-1).
+    """
+    toks = _tokens(text)
+    factors: list[tuple[str, int]] = []
+    sign, group_sign, group_start = 1, None, None  # group_sign: sign of the open '(' group
+    last: list[int] = []  # indices of the factors the next power applies to
+    expect_operand = True
+    i = 0
+    if toks and toks[0] == ("int", "1") and len(toks) > 1 and toks[1] == ("op", "/"):
+        toks, expect_operand = toks[1:], False  # "1/rad": a numerator of one
+    while i < len(toks):
+        kind, val = toks[i]
+        outer = 1 if group_sign is None else group_sign
+        if kind == "name" or (kind == "op" and val == "(" and expect_operand):
+            if not expect_operand:  # "ft lbf": a space multiplies
+                sign = 1
+            if kind == "name":
+                factors.append((val, sign * outer))
+                last = [len(factors) - 1]
+            else:
+                if group_sign is not None:
+                    raise _UnitSyntax("nested parentheses")
+                group_sign, group_start, sign = sign, len(factors), 1
+                expect_operand = True
+                i += 1
+                continue
+            expect_operand = False
+        elif kind == "op" and val in ("^", "**"):
+            if expect_operand or i + 1 >= len(toks) or toks[i + 1][0] != "int":
+                raise _UnitSyntax("a power needs a unit before it and a whole number after it")
+            power = int(toks[i + 1][1])
+            if power == 0 or abs(power) > MAX_UNIT_POWER:
+                raise _UnitSyntax(f"power {power} out of range (whole numbers 1 to {MAX_UNIT_POWER}, "
+                                  f"or negative)")
+            for j in last:
+                factors[j] = (factors[j][0], factors[j][1] * power)
+            i += 2
+            continue
+        elif kind == "op" and val in ("*", "·", "/"):
+            if expect_operand:
+                raise _UnitSyntax(f"{val!r} needs a unit before it")
+            sign = -1 if val == "/" else 1
+            expect_operand = True
+        elif kind == "op" and val == ")":
+            if group_sign is None or expect_operand:
+                raise _UnitSyntax("unbalanced parentheses")
+            last = list(range(group_start, len(factors)))
+            group_sign, sign = None, 1
+        elif kind == "op" and val == "(":
+            raise _UnitSyntax("nested parentheses" if group_sign is not None else "misplaced '('")
+        else:  # a number inside a unit
+            raise _UnitSyntax(f"unexpected number {val!r}")
+        i += 1
+    if group_sign is not None:
+        raise _UnitSyntax("unbalanced parentheses")
+    if expect_operand and toks:
+        raise _UnitSyntax("ends with an operator")
+    if len(factors) > MAX_UNIT_FACTORS:
+        raise _UnitSyntax(f"more than {MAX_UNIT_FACTORS} unit names")
+    for name, power in factors:
+        if abs(power) > MAX_UNIT_POWER:
+            raise _UnitSyntax(f"power of {name!r} out of range")
+    return factors
+
+
+@functools.lru_cache(maxsize=1024)
+def _unit_of_name(name: str):
+    """pint's unit for one vetted name (at most _MAX_NAME_CHARS letters, digits and
+    underscores), or None."""
+    try:
+        unit = registry().parse_units(name)
+    except Exception:  # pint raises several types for unknown names
+        return None
+    return unit if isinstance(unit, pint.Unit) else None
+
+
+@functools.lru_cache(maxsize=1024)
+def _resolve(text: str):
+    """pint unit of a stripped unit text of at most :data:`MAX_UNIT_CHARS` characters; raises
+    ``_UnitSyntax`` (grammar) or ``LookupError`` (an unknown name, as its argument)."""
+    factors = _unit_factors(text)
+    if not factors:
+        return registry().dimensionless
+    units = []
+    for name, power in factors:
+        unit = _unit_of_name(name)
+        if unit is None:
+            raise LookupError(name)
+        units.append((unit, power))
+    if len(units) == 1 and units[0][1] == 1:
+        return units[0][0]  # a lone name keeps offset units (degC) intact for the checks
+    result = registry().dimensionless
+    for unit, power in units:
+        result = result * unit**power
+    return result
 
 
 def parse_unit(unit_text: str, expected_dimension: str, field: str = "", whole: str | None = None) -> pint.Unit:
-    """Parse a unit name (e.g. ``"kft"``, ``"lb/lbf/h"``) and check its dimension.
+    """Parse a unit text (e.g. ``"kft"``, ``"lb/lbf/h"``, ``"m^2"``) and check its dimension.
 
     Returns the pint unit. Raises :class:`UnitError` with a message naming ``field``.
     """
     dim = _dimension(expected_dimension)
     if not isinstance(unit_text, str):
         raise UnitError(field, f"unit must be a string such as {dim.example.split(' ', 1)[-1]!r}, "
-                               f"got {unit_text!r}")
+                               f"got {_q(unit_text)}")
     text = unit_text.strip()
-    if not _UNIT_CHARS_RE.match(text):
-        raise UnitError(field, f"cannot read unit {unit_text!r}; expected {_describe(dim)}")
-    if text == "":
-        unit = ureg.dimensionless
-    else:
-        try:
-            unit = ureg.parse_units(text)
-        except pint.UndefinedUnitError as exc:
-            bad = getattr(exc, "unit_names", None)
-            bad_name = bad[0] if isinstance(bad, (list, tuple)) and bad else (bad or text)
-            raise UnitError(field, f"unknown unit {str(bad_name)!r} in {unit_text!r}"
-                                   f"{_suggest_unit(str(bad_name))}; expected {_describe(dim)}") from None
-        except Exception:  # pint raises several types on malformed expressions
-            raise UnitError(field, f"cannot read unit {unit_text!r}; expected {_describe(dim)}") from None
+    if len(text) > MAX_UNIT_CHARS:
+        raise UnitError(field, f"unit {_q(text)} is {len(text)} characters long; expected a unit "
+                               f"of at most {MAX_UNIT_CHARS} characters, e.g. "
+                               f"{dim.example.split(' ', 1)[-1]!r}")
+    try:
+        unit = _resolve(text)
+    except LookupError as exc:
+        bad = str(exc.args[0])
+        raise UnitError(field, f"unknown unit {bad!r} in {_q(whole or unit_text)}{_suggest_unit(bad)}; "
+                               f"expected {_describe(dim)}") from None
+    except _UnitSyntax as exc:
+        raise UnitError(field, f"cannot read unit {_q(unit_text)} ({exc}); expected {_describe(dim)} "
+                               f"(unit names joined by '*', '/' or spaces, powers as '^2')") from None
+    except Exception:  # pint arithmetic on odd units (e.g. offset units in a product)
+        raise UnitError(field, f"cannot read unit {_q(unit_text)}; expected {_describe(dim)}") from None
     _check_unit(unit, dim, field, unit_text, has_unit=text != "", whole=whole)
     return unit
 
@@ -166,28 +359,28 @@ def _describe(dim: Dimension) -> str:
 
 def _check_unit(unit: pint.Unit, dim: Dimension, field: str, shown: str, has_unit: bool,
                 whole: str | None = None) -> None:
-    q = ureg.Quantity(1.0, unit)
+    q = registry().Quantity(1.0, unit)
     whole = shown if whole is None else whole
     if not q._is_multiplicative:
         if dim.name == "temperature_difference":
-            raise UnitError(field, f"{shown!r} is an absolute temperature; {_OFFSET_HINT}")
-        raise UnitError(field, f"{shown!r} is an absolute temperature scale; expected {_describe(dim)}")
+            raise UnitError(field, f"{_q(shown)} is an absolute temperature; {_OFFSET_HINT}")
+        raise UnitError(field, f"{_q(shown)} is an absolute temperature scale; expected {_describe(dim)}")
     if dim.angle_power != 0:
         if not has_unit:
-            raise UnitError(field, f"missing unit in {whole!r}; expected {_describe(dim)}")
+            raise UnitError(field, f"missing unit in {_q(whole)}; expected {_describe(dim)}")
         root = q.to_root_units()
-        wanted = ureg.radian ** dim.angle_power
+        wanted = registry().radian ** dim.angle_power
         if root.units != wanted:
-            raise UnitError(field, f"{shown!r} has the wrong dimension; expected {_describe(dim)}")
+            raise UnitError(field, f"{_q(shown)} has the wrong dimension; expected {_describe(dim)}")
         return
     if dim.name == "dimensionless":
-        if not q.dimensionless or q.to_root_units().units != ureg.dimensionless:
-            raise UnitError(field, f"{shown!r} has units ({unit}); expected {_describe(dim)}")
+        if not q.dimensionless or q.to_root_units().units != registry().dimensionless:
+            raise UnitError(field, f"{_q(shown)} has units ({shorten(str(unit))}); expected {_describe(dim)}")
         return
     if not has_unit:
-        raise UnitError(field, f"missing unit in {whole!r}; expected {_describe(dim)}")
+        raise UnitError(field, f"missing unit in {_q(whole)}; expected {_describe(dim)}")
     if not q.is_compatible_with(dim.si):
-        raise UnitError(field, f"unit {str(shown).strip()!r} is {_dimension_words(q)}, not "
+        raise UnitError(field, f"unit {_q(str(shown).strip())} is {_dimension_words(q)}, not "
                                f"{_a(dim.name.replace('_', ' '))}; expected e.g. '{dim.example}'")
 
 
@@ -197,7 +390,7 @@ def _dimension_words(q: pint.Quantity) -> str:
             return _a(d.name.replace("_", " "))
     if q.dimensionless:
         return "dimensionless"
-    return f"of dimension {q.dimensionality}"
+    return f"of dimension {shorten(str(q.dimensionality))}"
 
 
 def _parse_number(text: str) -> float:
@@ -205,11 +398,56 @@ def _parse_number(text: str) -> float:
 
 
 def split_quantity(text: str, field: str = "") -> tuple[float, str]:
-    """Split ``"30,000 ft"`` into ``(30000.0, "ft")``; the unit part may be empty."""
+    """Split ``"30,000 ft"`` into ``(30000.0, "ft")``; the unit part may be empty.
+
+    Texts longer than :data:`MAX_QUANTITY_CHARS` are refused before any pattern is applied.
+    """
+    if len(text) > MAX_QUANTITY_CHARS:
+        raise UnitError(field, f"{_q(text)} is {len(text)} characters long; expected a number and "
+                               f"a unit of at most {MAX_QUANTITY_CHARS} characters, e.g. '30000 ft'")
     m = _NUMBER_RE.match(text)
     if m is None:
-        raise UnitError(field, f"cannot read {text!r}: expected a number followed by a unit, e.g. '30000 ft'")
+        raise UnitError(field, f"cannot read {_q(text)}: expected a number followed by a unit, e.g. '30000 ft'")
     return _parse_number(m.group("num")), m.group("unit")
+
+
+#: A flight level: "FL" and up to three digits (hundreds of feet of pressure altitude); one
+#: space after "FL" is allowed.
+_FLIGHT_LEVEL_RE = re.compile(r"^FL ?(?P<level>\d{1,3})$", re.IGNORECASE)
+
+
+def is_flight_level(text) -> bool:
+    """True for text that starts like a flight level ("FL..."), well formed or not."""
+    return isinstance(text, str) and text.strip()[:2].upper() == "FL"
+
+
+def flight_level_ft(text: str, field: str = "") -> int:
+    """``"FL350"`` -> 35000: a flight level is pressure altitude in hundreds of feet.
+    Raises :class:`UnitError` for malformed levels ("FL", "FL-10", "FL35.5", "FL 3 50")."""
+    m = _FLIGHT_LEVEL_RE.match(text.strip()) if len(text) <= MAX_QUANTITY_CHARS else None
+    if m is None:
+        raise UnitError(field, f"cannot read flight level {_q(text)}: expected 'FL' followed by a "
+                               f"whole number of hundreds of feet (up to three digits), e.g. "
+                               f"'FL350' for 35,000 ft")
+    return int(m.group("level")) * 100
+
+
+def parse_flight_level(text: str, field: str = "") -> float:
+    """``"FL350"`` -> 10668 m (35,000 ft, 1 ft = 0.3048 m), exactly as ``"35000 ft"`` is read;
+    see :func:`flight_level_ft`."""
+    return flight_level_ft(text, field) * _factor("ft", "length")
+
+
+def parse_altitude(text, field: str = "") -> tuple[float, str, str | None]:
+    """Read an altitude: a length (``"35,000 ft"``) or a flight level (``"FL350"``).
+
+    Returns ``(metres, unit text, flight level as written or None)``; a flight level's unit is
+    ``"ft"``.
+    """
+    if is_flight_level(text):
+        return parse_flight_level(text, field), "ft", text.strip()
+    value, unit = parse_quantity_with_unit(text, "length", field)
+    return value, unit, None
 
 
 def parse_quantity(text, expected_dimension: str, field: str = "") -> float:
@@ -233,7 +471,8 @@ def parse_quantity(text, expected_dimension: str, field: str = "") -> float:
     ------
     UnitError
         Unknown unit, wrong dimension, missing unit, an absolute temperature where an offset
-        is needed, or a value that is NaN or infinite.
+        is needed, a number larger than :data:`MAX_MAGNITUDE`, or a value that is NaN or
+        infinite before or after conversion.
     """
     value, unit = parse_quantity_with_unit(text, expected_dimension, field)
     return value
@@ -246,37 +485,56 @@ def parse_quantity_with_unit(text, expected_dimension: str, field: str = "") -> 
         raise UnitError(field, f"expected {_describe(dim)}, got the boolean {str(text).lower()}")
     if isinstance(text, (int, float)):
         if dim.name != "dimensionless":
-            raise UnitError(field, f"missing unit in {text!r}; write it as a string with a unit, "
+            raise UnitError(field, f"missing unit in {_q(text)}; write it as a string with a unit, "
                                    f"e.g. '{dim.example}'")
-        value = float(text)
-        _check_finite(value, field, text)
-        return value, ""
+        check_number(text, field)
+        return float(text), ""
     if not isinstance(text, str):
         kind = {list: "an array", dict: "a table"}.get(type(text), type(text).__name__)
-        raise UnitError(field, f"expected {_describe(dim)} as a string, got {kind} {text!r}")
-    number, unit_text = split_quantity(text, field)
-    _check_finite(number, field, text)
-    unit = parse_unit(unit_text, expected_dimension, field, whole=text)
+        raise UnitError(field, f"expected {_describe(dim)} as a string, got {kind} {_q(text)}")
     try:
-        value = float(ureg.Quantity(number, unit).to(dim.si).magnitude) if unit_text else number
-    except Exception:  # pragma: no cover - guarded by parse_unit's dimension check
-        raise UnitError(field, f"cannot convert {text!r} to {dim.si}") from None
-    _check_finite(value, field, text)
+        number, unit_text = split_quantity(text, field)
+    except UnitError:
+        if dim.name != "dimensionless":
+            raise
+        raise UnitError(field, f"cannot read {_q(text)}: expected {_describe(dim)}") from None
+    check_number(number, field, text)
+    factor = unit_factor(unit_text, expected_dimension, field, whole=text)
+    value = number * factor
+    check_number(value, field, text, converted=True)
     return value, unit_text
 
 
-def _check_finite(value: float, field: str, shown) -> None:
-    if not math.isfinite(value):
-        raise UnitError(field, f"{shown!r} is not a finite number")
+def check_number(value, field: str, shown=None, converted: bool = False) -> None:
+    """Raise :class:`UnitError` unless ``value`` is finite and, as written (``converted``
+    False), at most :data:`MAX_MAGNITUDE` in size. ``value`` may be an int of any size."""
+    shown = value if shown is None else shown
+    if isinstance(value, int) and not isinstance(value, bool):
+        too_large = abs(value) > MAX_MAGNITUDE
+    elif not math.isfinite(value):
+        after = " after unit conversion" if converted else ""
+        raise UnitError(field, f"{_q(shown)} is not a finite number{after}")
+    else:
+        too_large = not converted and abs(value) > MAX_MAGNITUDE
+    if too_large:
+        raise UnitError(field, f"{_q(shown)} is too large; expected a number within +-1e15")
 
 
-def unit_factor(unit_text: str, expected_dimension: str, field: str = "") -> float:
-    """SI value of one ``unit_text`` (e.g. ``unit_factor("kft", "length") == 304.8``)."""
-    dim = _dimension(expected_dimension)
-    unit = parse_unit(unit_text, expected_dimension, field)
-    if not str(unit_text).strip():
+@functools.lru_cache(maxsize=1024)
+def _factor(unit_text: str, expected_dimension: str) -> float:
+    dim = DIMENSIONS[expected_dimension]
+    unit = _resolve(unit_text)
+    return float(registry().Quantity(1.0, unit).to(dim.si).magnitude)
+
+
+def unit_factor(unit_text: str, expected_dimension: str, field: str = "", whole: str | None = None) -> float:
+    """SI value of one ``unit_text`` (e.g. ``unit_factor("kft", "length") == 304.8``); 1.0
+    exactly for the SI unit itself and for an empty unit (dimensionless)."""
+    parse_unit(unit_text, expected_dimension, field, whole=whole)  # validates, with messages
+    text = unit_text.strip()
+    if not text:
         return 1.0
-    return float(ureg.Quantity(1.0, unit).to(dim.si).magnitude)
+    return _factor(text, expected_dimension)
 
 
 # --------------------------------------------------------------------------------------------
@@ -285,13 +543,15 @@ def unit_factor(unit_text: str, expected_dimension: str, field: str = "") -> flo
 
 def convert(value, from_unit: str, to_unit: str):
     """Convert a float or numpy array between two compatible units (multiplicative units only)."""
-    factor = ureg.Quantity(1.0, from_unit).to(to_unit).magnitude
+    factor = registry().Quantity(1.0, from_unit).to(to_unit).magnitude
     return value * factor
 
 
+@functools.lru_cache(maxsize=256)
 def _si_factor(unit: str) -> float:
-    """SI value of one ``unit`` (pint's base units in its default MKS system are SI)."""
-    q = ureg.Quantity(1.0, unit)
+    """SI value of one ``unit`` (pint's base units in its default MKS system are SI). For unit
+    texts written by the program or already validated by :func:`parse_unit`."""
+    q = registry().Quantity(1.0, unit)
     if not q._is_multiplicative:
         raise ValueError(f"{unit!r} is an offset unit; use e.g. 'delta_degC' or 'K'")
     return float(q.to_base_units().magnitude)
@@ -314,11 +574,15 @@ def to_si(value, unit: str):
     return value * _si_factor(unit)
 
 
-_FT_M = float(ureg.Quantity(1.0, "ft").to("m").magnitude)
-_KT_M_S = float(ureg.Quantity(1.0, "kt").to("m/s").magnitude)
-_LB_KG = float(ureg.Quantity(1.0, "lb").to("kg").magnitude)
-_NMI_M = float(ureg.Quantity(1.0, "nmi").to("m").magnitude)
-_LBF_N = float(ureg.Quantity(1.0, "lbf").to("N").magnitude)
+#: International foot [m], knot [m/s], pound [kg], nautical mile [m] and pound-force [N], exact by
+#: definition (International Yard and Pound Agreement, 1959; International Hydrographic
+#: Conference, 1929; g0 = 9.80665 m/s^2, 3rd CGPM 1901), the same values pint defines.
+FOOT_M = 0.3048
+_FT_M = FOOT_M
+_KT_M_S = 1852.0 / 3600.0
+_LB_KG = 0.45359237
+_NMI_M = 1852.0
+_LBF_N = 0.45359237 * 9.80665
 
 
 def m_to_ft(x):

@@ -57,8 +57,12 @@ def test_run_energy_on_every_demo(scenario, tmp_path):
     res = {r["objective"]: r for r in doc["results"] if r["method"] == "energy-state"}
     flown = [r for r in doc["results"] if r["method"] == "best-schedule"]
     assert sorted(r["objective"] for r in flown) == ["fuel", "time"]
-    for r in flown:   # the best schedule of each objective is no better than its optimum
-        assert r["reference"]["objective_difference_relative"] >= -1e-3
+    for r in flown:
+        # against the energy-state answer (an approximation of the optimum, about 1 % off on
+        # these climbs; common practice, no source) the flown best schedule is no better by more
+        # than that
+        assert r["reference"]["reference"].startswith("energy-state")
+        assert r["reference"]["objective_difference_relative"] >= -1e-2
     assert set(res) == {"time", "fuel"}
     for obj, r in res.items():
         assert r["method"] == "energy-state" and r["converged"] is True
@@ -76,7 +80,9 @@ def test_run_energy_on_every_demo(scenario, tmp_path):
         assert CAUTION in (out / f"energy-state_{obj}_schedule.csv").read_text()
     assert res["time"]["time_s"] <= res["fuel"]["time_s"] * (1 + 1e-6)
     assert res["fuel"]["fuel_kg"] <= res["time"]["fuel_kg"] * (1 + 1e-6)
-    assert res["time"]["best_time"] and res["fuel"]["best_fuel"]
+    for flag, key in (("best_time", "time_s"), ("best_fuel", "fuel_kg")):
+        best = [r for r in doc["results"] if r[flag]]
+        assert len(best) == 1 and best[0][key] == min(r[key] for r in doc["results"])
     assert CAUTION in (out / "comparison.csv").read_text()
     assert CAUTION in (out / "report.txt").read_text()
     for fig in FIGURES:
@@ -268,7 +274,8 @@ def test_forced_solver_failure_exit_4(tmp_path):
     assert rows["collocation"]["converged"] is False
     assert rows["collocation"]["time_diff_pct"] is None and not rows["collocation"]["best_time"]
     energy = rows["energy-state"]
-    assert energy["converged"] is True and energy["best_time"]
+    assert energy["converged"] is True and energy["ranked"] is True
+    assert not rows["collocation"]["best_time"] and energy["time_diff_pct"] is not None
     assert any("collocation solve failed" in n for n in energy["notes"])
     assert (out / "energy-state_time.csv").exists()
     assert (out / "energy-state_time_schedule.csv").exists()

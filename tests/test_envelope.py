@@ -27,10 +27,12 @@ EPS = 1e-6               # relative step across a boundary (far above the 1e-9 r
 @pytest.fixture(scope="module")
 def case():
     """The demo transport (invented aircraft) with a dynamic-pressure limit added, so that every
-    kind of limit is present; its model and envelope; the collocation point function."""
+    kind of limit is present (free profile: the altitude row is the scenario's 41,000 ft limit);
+    its model and envelope; the collocation point function."""
     scenario = load_scenario(ROOT / "scenarios" / "transport_twinjet.toml")
     limits = dataclasses.replace(scenario.limits, max_dynamic_pressure_pa=20_000.0)
-    scenario = dataclasses.replace(scenario, limits=limits)
+    scenario = dataclasses.replace(scenario, limits=limits,
+                                   mission=dataclasses.replace(scenario.mission, profile="free"))
     model = build_model(scenario)
     st = collocation._setup(scenario, model, "time")
     return scenario, model, envelope_for(scenario, model), st, collocation._point_function(st)

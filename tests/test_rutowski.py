@@ -216,10 +216,12 @@ def test_path_rides_limits(bizjet):
 
 def test_start_off_locus_initial_zoom(bizjet):
     """A start far off the optimal locus (slow and high) joins it by a constant-energy dive at
-    time zero (energy-state idealisation, Bryson, Desai & Hoffman 1969)."""
+    time zero (energy-state idealisation, Bryson, Desai & Hoffman 1969; the free climb profile,
+    since a procedure never descends)."""
     start = dataclasses.replace(bizjet.mission.start, altitude_m=3000.0, speed_kind="tas",
                                 speed_value=100.0, tas_m_s=100.0)
-    sc = dataclasses.replace(bizjet, mission=dataclasses.replace(bizjet.mission, start=start))
+    sc = dataclasses.replace(bizjet, mission=dataclasses.replace(bizjet.mission, start=start,
+                                                                 profile="free"))
     tr = solve_energy_state(sc, "time")
     z = tr.zooms[0]
     assert z.reason == "initial" and z.kind == "dive" and z.index == 1
@@ -317,3 +319,22 @@ def test_dash_shorter_than_climb_and_infeasible_dash(interceptor, dash_case):
                                                                     dash_distance_m=300e3))
     with pytest.raises(InfeasibleMission, match="thrust"):
         solve_energy_state(_grid(dash_pub, 60, 60), "time", model=model0, dash_climb="plain")
+
+
+def test_procedure_start_off_locus_holds_altitude(bizjet):
+    """The same start with the procedure profile: no dive; the path never goes below the start
+    altitude nor above the target altitude, never descends, and reaches the target."""
+    start = dataclasses.replace(bizjet.mission.start, altitude_m=3000.0, speed_kind="tas",
+                                speed_value=100.0, tas_m_s=100.0)
+    sc = dataclasses.replace(bizjet, mission=dataclasses.replace(bizjet.mission, start=start,
+                                                                 profile="procedure"))
+    tr = solve_energy_state(sc, "time")
+    h = tr.table["altitude_m"]
+    assert h.min() >= 3000.0 - 1e-6 and h.max() <= 30000 * FT + 1e-6
+    assert np.all(np.diff(h) >= -1e-6)
+    assert not [z for z in tr.zooms if z.kind == "dive"]
+    assert tr.segments[0].kind == "level acceleration"   # holds 3,000 m and accelerates first
+    assert h[-1] == pytest.approx(30000 * FT)
+    free = solve_energy_state(dataclasses.replace(
+        sc, mission=dataclasses.replace(sc.mission, profile="free")), "time")
+    assert tr.time_s >= free.time_s - 1e-6   # a constrained optimum is never better

@@ -10,7 +10,6 @@ standard gravity g0 = 9.80665 m/s^2 (3rd CGPM, 1901), hence 1 lbf = 0.45359237 *
 from __future__ import annotations
 
 import copy
-import json
 import math
 import random
 from pathlib import Path
@@ -18,11 +17,14 @@ from pathlib import Path
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from scenario_docs import BASE, DELETE, edited, find, problems_of, write
+from scenario_fuzz import paths as _paths
+from scenario_fuzz import to_toml
 
+from climbopt.describe import describe_scenario
 from climbopt.scenario import (
     Scenario,
     ScenarioError,
-    describe_scenario,
     energy_height_m,
     load_scenario,
 )
@@ -51,126 +53,6 @@ NMI = 1852.0
 KT = 1852.0 / 3600.0
 G0 = 9.80665
 LBF = LB * G0
-
-
-# ---------------------------------------------------------------------------------------------
-# A small valid scenario as a Python dict, written out with a minimal TOML writer.
-
-BASE: dict = {
-    "scenario": {"name": "test jet", "description": "invented for tests"},
-    "aircraft": {
-        "name": "test jet (invented)",
-        "reference_area": "50 m^2",
-        "mass": "20000 kg",
-        "fuel_capacity": "5000 kg",
-        "drag": {
-            "model": "parabolic",
-            "mach": [0.0, 0.5, 0.9, 1.2],
-            "cd0": [0.02, 0.02, 0.03, 0.04],
-            "k": [0.1, 0.1, 0.12, 0.2],
-        },
-        "cl_max": {"mach": [0.0, 1.2], "values": [1.2, 1.0]},
-    },
-    "propulsion": {
-        "default_rating": "max",
-        "throttle_min": 0.2,
-        "throttle_max": 1.0,
-        "ratings": {
-            "max": {
-                "kind": "jet",
-                "mach": [0.0, 0.5, 1.2],
-                "altitude": {"unit": "ft", "values": [0, 20000, 40000]},
-                "thrust": {"unit": "kN", "values": [[100, 60, 30], [110, 65, 33], [130, 80, 40]]},
-                "tsfc": "0.8 lb/lbf/h",
-            }
-        },
-    },
-    "atmosphere": {"temperature_offset": "0 K"},
-    "mission": {
-        "start": {"altitude": "1000 ft", "cas": "250 kt"},
-        "target": {"altitude": "30000 ft", "mach": 0.8},
-    },
-    "limits": {"max_mach": 1.1, "max_cas": "450 kt", "min_altitude": "0 ft",
-               "cas_restriction": {"cas": "250 kt", "below": "10000 ft"}},
-    "solver": {"intervals": 50, "ipopt": {"max_iter": 500, "tol": 1e-8}},
-}
-
-
-def _toml_value(v) -> str:
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, int):
-        return str(v)
-    if isinstance(v, float):
-        if math.isnan(v):
-            return "nan"
-        if math.isinf(v):
-            return "inf" if v > 0 else "-inf"
-        return repr(v)
-    if isinstance(v, str):
-        out = []
-        for ch in v:
-            if ch in '"\\' or ord(ch) < 0x20 or ord(ch) == 0x7F:
-                out.append(f"\\u{ord(ch):04x}")
-            else:
-                out.append(ch)
-        return '"' + "".join(out) + '"'
-    if isinstance(v, list):
-        return "[" + ", ".join(_toml_value(x) for x in v) + "]"
-    if isinstance(v, dict):
-        return "{ " + ", ".join(f"{json.dumps(k)} = {_toml_value(x)}" for k, x in v.items()) + " }"
-    raise TypeError(type(v))
-
-
-def to_toml(doc: dict) -> str:
-    """Write a dict as TOML: top-level tables as [sections], everything below as inline tables."""
-    lines = []
-    for key, val in doc.items():
-        if isinstance(val, dict):
-            lines.append(f"[{json.dumps(key)}]")
-            lines.extend(f"{json.dumps(k)} = {_toml_value(x)}" for k, x in val.items())
-        else:
-            lines.insert(0, f"{json.dumps(key)} = {_toml_value(val)}")
-    return "\n".join(lines) + "\n"
-
-
-def write(tmp_path: Path, doc: dict, name: str = "s.toml") -> Path:
-    p = tmp_path / name
-    p.write_text(to_toml(doc), encoding="utf-8")
-    return p
-
-
-def problems_of(tmp_path: Path, doc: dict) -> list[tuple[str, str]]:
-    with pytest.raises(ScenarioError) as info:
-        load_scenario(write(tmp_path, doc))
-    assert info.value.problems, "a ScenarioError must list its problems"
-    return info.value.problems
-
-
-def edited(**changes) -> dict:
-    """BASE with dotted-path changes; the value DELETE removes the key."""
-    doc = copy.deepcopy(BASE)
-    for dotted, value in changes.items():
-        *parents, last = dotted.split("__")
-        node = doc
-        for p in parents:
-            node = node[p]
-        if value is DELETE:
-            del node[last]
-        else:
-            node[last] = value
-    return doc
-
-
-DELETE = object()
-
-
-def find(problems, field: str) -> str:
-    """The message for ``field`` (exact dotted name); fails listing all problems otherwise."""
-    for fld, msg in problems:
-        if fld == field:
-            return msg
-    raise AssertionError(f"no problem for {field!r}; got {problems}")
 
 
 # ---------------------------------------------------------------------------------------------
@@ -587,20 +469,6 @@ _GARBAGE = st.one_of(
     st.dictionaries(st.sampled_from(["unit", "values", "mach", "x"]),
                     st.one_of(st.text(max_size=5), st.lists(st.integers(0, 9), max_size=4)), max_size=3),
 )
-
-
-def _paths(node, prefix=()):
-    """All key paths (tuples) and list positions inside a document."""
-    out = []
-    if isinstance(node, dict):
-        for k, v in node.items():
-            out.append(prefix + (k,))
-            out.extend(_paths(v, prefix + (k,)))
-    elif isinstance(node, list):
-        for i, v in enumerate(node):
-            out.append(prefix + (i,))
-            out.extend(_paths(v, prefix + (i,)))
-    return out
 
 
 def _mutate(doc, path, action, value, rng):

@@ -84,14 +84,14 @@ def test_range_with_units_is_evenly_spaced_ends_included(twin):
     assert v.values == pytest.approx([60000, 65000, 70000, 75000, 80000], abs=1e-9)
 
 
-def test_bare_numbers_take_the_unit_written_elsewhere_or_si(twin):
+def test_bare_numbers_take_the_unit_written_elsewhere(twin):
     # one unit written: the bare numbers share it
     v = sw.parse_variation("temperature_offset=-10,0,10,20 K", twin)
     assert v.values == (-10.0, 0.0, 10.0, 20.0)
     v = sw.parse_variation("target_altitude=31000,33000 ft,35000", twin)
     assert v.values == pytest.approx([31000 * FT, 33000 * FT, 35000 * FT], rel=1e-15)
-    # no unit written: SI (kg)
-    assert sw.parse_variation("mass=60000:80000:3", twin).values == (60000.0, 70000.0, 80000.0)
+    # one unit after COUNT: both ends
+    assert sw.parse_variation("mass=60000:80000:3 kg", twin).values == (60000.0, 70000.0, 80000.0)
     # mixed units each convert (1 lb = 0.45359237 kg exactly, by definition)
     assert sw.parse_variation("mass=60 t,150000 lb", twin).values == pytest.approx(
         [60000.0, 150000 * 0.45359237], rel=1e-15)
@@ -165,7 +165,7 @@ def test_cost_weight_adds_min_time_and_min_fuel_ends_per_combination(twin):
 
 def test_case_keys_are_stable_and_depend_on_every_input(twin):
     a = _plan(twin, "mass=60,70 t")
-    b = _plan(twin, "mass=60000,70000")
+    b = _plan(twin, "mass=60000,70000 kg")
     assert [c.key for c in a.cases] == [c.key for c in b.cases]  # same inputs, same keys
     assert len({c.key for c in a.cases}) == 2 and all(len(c.key) == 16 for c in a.cases)
     # another objective, method, scenario value or grid gives other keys
@@ -244,20 +244,21 @@ def test_failed_cases_are_recorded_with_status_and_error_and_the_sweep_goes_on(
         return real(scenario, objective, **kw)
 
     monkeypatch.setattr(rutowski, "solve_energy_state", fake)
-    plan = _plan(twin, "mass=-5000,61000,62000,70000", "target_altitude=35000,45000 ft")
+    # thrust scale 0.3: the demo transport cannot reach the target energy (infeasible)
+    plan = _plan(twin, "mass=-5000,61000,62000,70000 kg", "thrust_scale=1,0.3")
     res = sw.run_sweep(plan, tmp_path / "t.csv", executor="serial")
     assert res.computed == 8 and res.failed == 7
-    status = [(r["mass_kg"], round(r["target_altitude_m"] / FT), r["status"]) for r in res.rows]
+    status = [(r["mass_kg"], r["thrust_scale"], r["status"]) for r in res.rows]
     assert status == [
-        (-5000.0, 35000, "bad-input"), (-5000.0, 45000, "bad-input"),
-        (61000.0, 35000, "solver-failure"), (61000.0, 45000, "solver-failure"),
-        (62000.0, 35000, "error"), (62000.0, 45000, "error"),
-        (70000.0, 35000, "ok"), (70000.0, 45000, "infeasible")]
+        (-5000.0, 1.0, "bad-input"), (-5000.0, 0.3, "bad-input"),
+        (61000.0, 1.0, "solver-failure"), (61000.0, 0.3, "solver-failure"),
+        (62000.0, 1.0, "error"), (62000.0, 0.3, "error"),
+        (70000.0, 1.0, "ok"), (70000.0, 0.3, "infeasible")]
     err = [r["error"] for r in res.rows]
-    assert "aircraft.mass: got -5000 kg; expected more than 0" in err[0]
+    assert "aircraft.mass: got '-5000.0 kg'; expected a positive value" in err[0]
     assert err[2] == "IPOPT stopped"
     assert err[4] == "ZeroDivisionError: division by zero in a test"
-    assert "outside the flight envelope" in err[7] and "altitude" in err[7]
+    assert "not reachable" in err[7] and "highest reachable energy height" in err[7]
     ok = res.rows[6]
     assert ok["error"] == "" and 500 < ok["time_s"] < 2000 and ok["fuel_kg"] > 0
     assert ok["final_mass_kg"] == pytest.approx(70000.0 - ok["fuel_kg"], rel=1e-12)
@@ -269,7 +270,8 @@ def test_failed_cases_are_recorded_with_status_and_error_and_the_sweep_goes_on(
 
 @pytest.fixture(scope="module")
 def grid_plan(twin):
-    # 6 cases, 2 of them infeasible (above the demo aircraft's 41,000 ft altitude limit)
+    # 6 cases, 2 of them refused as bad input (above the demo aircraft's 41,000 ft altitude
+    # limit, which a scenario file with that target would be refused for too)
     return _plan(twin, "mass=60,80 t", "target_altitude=33000,35000,45000 ft")
 
 
@@ -354,19 +356,20 @@ def test_interrupted_sweep_resumes_without_recomputing_or_losing_cases(
     assert len(done_first) == 2
 
     calls = []
-    real = rutowski.solve_energy_state
+    real = sw.run_case
 
-    def counting(scenario, objective="time", **kw):
-        calls.append((scenario.aircraft.mass_kg, scenario.mission.target.altitude_m))
-        return real(scenario, objective, **kw)
+    def counting(scenario, case):  # every case run, solved or refused as bad input
+        values = dict(case.values)
+        calls.append((values["mass"], values["target_altitude"]))
+        return real(scenario, case)
 
-    monkeypatch.setattr(rutowski, "solve_energy_state", counting)
+    monkeypatch.setattr(sw, "run_case", counting)
     res = sw.run_sweep(grid_plan, table, executor="serial", max_cases=1)
     assert (res.computed, res.skipped, res.remaining) == (1, 2, 3) and len(calls) == 1
 
     res = sw.run_sweep(grid_plan, table, executor="serial")
     assert (res.computed, res.skipped, res.remaining) == (3, 3, 0) and len(calls) == 4
-    # every case solved exactly once over the three runs: none of the first two again
+    # every case run exactly once over the three runs: none of the first two again
     first = {(r["mass_kg"], r["target_altitude_m"]) for r in serial_rows if r["key"] in done_first}
     assert len(set(calls)) == 4 and not (set(calls) & first)
     assert _same(res.rows, serial_rows)
@@ -384,9 +387,8 @@ def test_a_row_torn_by_a_crash_is_solved_again(grid_plan, serial_rows, tmp_path,
     text = table.read_text()
     table.write_text(text[: text.rstrip("\n").rfind(",") - 5])  # crash in the middle of row 3
     calls = []
-    real = rutowski.solve_energy_state
-    monkeypatch.setattr(rutowski, "solve_energy_state",
-                        lambda s, o="time", **kw: calls.append(1) or real(s, o, **kw))
+    real = sw.run_case
+    monkeypatch.setattr(sw, "run_case", lambda s, c: calls.append(1) or real(s, c))
     res = sw.run_sweep(grid_plan, table, executor="serial")
     assert (res.computed, res.skipped) == (4, 2) and len(calls) == 4
     assert _same(res.rows, serial_rows)
@@ -522,17 +524,19 @@ def test_cli_sweep_writes_table_and_plots_and_resumes(small_toml, tmp_path):
 
 
 def test_cli_sweep_local_pool_and_failures_keep_exit_code_0(small_toml, tmp_path):
-    r = CliRunner().invoke(cli, ["sweep", str(small_toml), "--vary", "target_altitude=35,45 kft",
+    r = CliRunner().invoke(cli, ["sweep", str(small_toml), "--vary", "thrust_scale=1,0.3",
                                  "--workers", "2", "--out", str(tmp_path / "o"), "--no-plots"])
     assert r.exit_code == 0, r.output
     assert "done 1, failed 1, skipped 0" in r.output and "on a pool of 2 processes" in r.output
     assert "failed cases in the table: 1 infeasible" in r.output
-    assert "case 1 (infeasible): the target point" in r.output
+    assert "case 1 (infeasible): target energy height" in r.output
 
 
 @pytest.mark.parametrize("args, words", [
     (["--vary", "mass=60 t", "--serial", "--cluster", "tcp://127.0.0.1:8786"], "--serial cannot"),
-    (["--vary", "weight=60 t"], "unknown name 'weight'"),
+    (["--vary", "weight=60 t"], "unknown name 'weight' (did you mean 'mass'?)"),
+    (["--vary", "mass=13:16:4"], "no unit given; the start mass needs one (a bare number is not "
+                                 "read as SI), e.g. 'mass=13 t:16 t:4' or 'mass=13:16:4 t'"),
     (["--vary", "cost_weight=0,1 kg/s", "--objective", "fuel"], "only the weighted objective"),
 ])
 def test_cli_sweep_bad_input_exits_2(small_toml, tmp_path, args, words):
@@ -588,3 +592,46 @@ def test_cli_sweep_ctrl_c_keeps_the_finished_rows_and_exits_130(small_toml, tmp_
     assert [x["thrust_scale"] for x in rows] == [0.9, 1.0, 1.1]
     # more thrust: a faster climb (common practice, no source)
     assert rows[0]["time_s"] > rows[1]["time_s"] > rows[2]["time_s"]
+
+
+# ---- cases validated like scenario files -----------------------------------------------------
+
+
+def test_dimensional_values_without_a_unit_are_refused(twin):
+    """`--vary mass=13:16:4` is refused with a message showing how to write the unit.
+
+    A unit after COUNT or on one list value applies to all; flight levels are altitudes."""
+    with pytest.raises(sw.SweepError) as info:
+        sw.parse_variation("mass=13:16:4", twin)
+    assert "'mass=13 t:16 t:4' or 'mass=13:16:4 t'" in str(info.value)
+    with pytest.raises(sw.SweepError, match="'target_altitude=31000,35000 ft'"):
+        sw.parse_variation("target_altitude=31000,35000", twin)
+    assert sw.parse_variation("mass=60:80:3 t", twin).values == (60000.0, 70000.0, 80000.0)
+    assert sw.parse_variation("thrust_scale=0.9:1.1:3", twin).values == pytest.approx((0.9, 1.0, 1.1))
+    assert sw.parse_variation("target_altitude=FL330,FL350", twin).values == pytest.approx(
+        (33000 * FT, 35000 * FT), rel=1e-15)
+
+
+@pytest.mark.parametrize("word, name", [("weight", "mass"), ("temperature", "temperature_offset"),
+                                        ("thrust", "thrust_scale"), ("altitude", "target_altitude")])
+def test_common_words_suggest_the_parameter(twin, word, name):
+    """Words people use for an input suggest its --vary name."""
+    with pytest.raises(sw.SweepError, match=f"unknown name '{word}' \\(did you mean '{name}'\\?\\)"):
+        sw.parse_variation(f"{word}=1,2", twin)
+
+
+def test_case_with_mass_below_fuel_capacity_is_refused_like_the_file(twin, tmp_path):
+    """A sweep case lighter than its fuel capacity is bad input, as the same file is.
+
+    The demo transport at 15 t (20 t of fuel capacity)."""
+    plan = _plan(twin, "mass=15,70 t")
+    res = sw.run_sweep(plan, tmp_path / "t.csv", executor="serial")
+    bad, ok = res.rows
+    assert (bad["status"], ok["status"]) == ("bad-input", "ok")
+    assert "aircraft.fuel_capacity: '20000.0 kg' exceeds the start mass '15000.0 kg'" in bad["error"]
+    text = TWINJET.read_text(encoding="utf-8").replace('mass = "70000 kg"', 'mass = "15 t"')
+    (tmp_path / "light.toml").write_text(text, encoding="utf-8")
+    with pytest.raises(ScenarioError) as info:
+        load_scenario(tmp_path / "light.toml")
+    assert info.value.problems == [("aircraft.fuel_capacity", "'20000 kg' exceeds the start mass '15 t'; "
+                                                              "expected at most the start mass")]
