@@ -74,12 +74,16 @@ def _fail(message: str, code: int) -> None:
     raise SystemExit(code)
 
 
-def _load_for_command(scenario_file: str):
-    """Load a scenario, turning every input problem into exit code 2."""
-    from climbopt.scenario import ScenarioError, load_scenario
+def _load_for_command(scenario_file: str, solver_options: bool = False):
+    """Load a scenario, turning every input problem into exit code 2 (with ``solver_options``
+    the IPOPT options too, as ``check`` does, before any solving)."""
+    from climbopt.scenario import ScenarioError, check_solver_options, load_scenario
 
     try:
-        return load_scenario(scenario_file)
+        scenario = load_scenario(scenario_file)
+        if solver_options:
+            check_solver_options(scenario)
+        return scenario
     except ScenarioError as exc:
         n = len(exc.problems)
         lines = [f"{exc.path}: {n} problem{'s' if n != 1 else ''} found:"]
@@ -217,7 +221,7 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
     from climbopt.pipeline import TimeLimitExceeded, run_mission
     from climbopt.rutowski import InfeasibleMission
 
-    scenario = _load_for_command(scenario_file)
+    scenario = _load_for_command(scenario_file, solver_options=method != "energy")
     out = Path(out_dir) if out_dir else _default_out(scenario_file)
     _check_out_dir(out)
     objectives = ["time", "fuel"] if objective == "both" else [objective]
@@ -361,7 +365,7 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
         raise click.UsageError("--serial cannot be combined with --cluster or --workers")
     if cluster and workers:
         raise click.UsageError("--workers is for the local pool; the cluster has its own workers")
-    scenario = _load_for_command(scenario_file)
+    scenario = _load_for_command(scenario_file, solver_options=method == "collocation")
     try:
         variations = [sw.parse_variation(text, scenario) for text in vary]
         plan = sw.plan_sweep(scenario, variations, zip_values=zip_values, method=method,

@@ -1177,7 +1177,7 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
             if st.dash_m is not None and not st.throttle_free:
                 hint = " (a dash needs a throttle range to hold level flight)"
             if sol.status == "Maximum_WallTime_Exceeded":
-                hint = f" (the time limit of {time_limit_s:.0f} s was reached)"
+                hint = f" (the time limit of {time_limit_s:g} s was reached)"
             fail(sol, f"IPOPT did not converge ({sol.status}) after {sol.iterations} iterations "
                       f"on {sol.intervals} intervals (mesh pass {npass + 1}){hint}", sol.status)
         say(f"mesh pass {npass + 1}: {sol.intervals} intervals, {sol.iterations} iterations, "

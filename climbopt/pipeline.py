@@ -106,7 +106,7 @@ class _Clock:
         left = self.limit_s - (time.perf_counter() - self.start)
         if left <= 0.0:
             raise TimeLimitExceeded(
-                f"the run's time limit of {self.limit_s:.0f} s (solver.time_limit) was reached "
+                f"the run's time limit of {self.limit_s:g} s (solver.time_limit) was reached "
                 f"before {step}; raise solver.time_limit or simplify the case")
         return left
 

@@ -155,3 +155,27 @@ def test_signal_during_solve_keeps_older_folder(tmp_path, sig, code, word):
     assert word in text and "Traceback" not in text
     assert after == before
     assert sorted(p.name for p in tmp_path.iterdir()) == ["o"]
+
+
+def test_unknown_ipopt_option_refused_before_solving(tmp_path):
+    """An IPOPT option IPOPT does not know: `run` with collocation stops at once with exit 2
+    naming the field (before, it died with a CasADi traceback after the energy-state work)."""
+    scen = _edited(tmp_path, TURBOPROP, "opt.toml", "intervals = 100",
+                   "intervals = 100\n\n[solver.ipopt]\nnot_an_option = 1")
+    out = tmp_path / "o"
+    result = _run(["run", scen, "--method", "collocation", "--out", out])
+    assert result.exit_code == 2, result.output
+    assert "solver.ipopt.not_an_option" in result.output and "Traceback" not in result.output
+    assert not out.exists()
+
+
+def test_time_limit_reached_is_a_clear_failure(tmp_path):
+    """solver.time_limit = 0.5 s on a collocation run of the transport: exit 4 with a message
+    naming the limit; nothing is reported as optimal and no folder is written."""
+    scen = _edited(tmp_path, TRANSPORT, "hurry.toml", "intervals = 100",
+                   "intervals = 100\ntime_limit = \"0.5 s\"")
+    out = tmp_path / "o"
+    result = _run(["run", scen, "--method", "collocation", "--objective", "time", "--out", out])
+    assert result.exit_code == 4, result.output
+    assert "time limit of 0.5 s" in result.output
+    assert "optimal" not in result.output.replace("not optimal", "")
