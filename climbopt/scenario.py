@@ -1418,35 +1418,45 @@ def _check_stall(r: _Reader, key: str, point: FlightPoint, aircraft: AircraftDat
 
 def _check_point_limits(r: _Reader, key: str, point: FlightPoint, limits: Limits | None,
                         dt_k: float | None) -> None:
+    """The start or target point against the scenario's limits, by the envelope's rows and its
+    one boundary rule (:mod:`climbopt.envelope`; the aircraft's stall speed and tables are
+    checked separately)."""
     if limits is None or dt_k is None:
         return
+    import numpy as np
+
+    from climbopt.envelope import Envelope, FlightQuantities
+
     fld = f"mission.{key}"
     mach, q, cas, _ = point_state(point, dt_k)
+    pressure = float(standard_atmosphere(point.altitude_m, dt_k).pressure_pa)
+    fq = FlightQuantities(np.array(point.altitude_m), np.array(mach), np.array(pressure),
+                          np.array(q), np.array(0.0), np.array(1.0), np.array(1.0))
+    outside = {k for k, m in Envelope(limits).inside(fq).items() if not bool(m)}
     u_alt = r.unit_of(f"{fld}.altitude", "m")
-    if _beyond(limits.min_altitude_m, point.altitude_m):
-        r.problem(f"{fld}.altitude", f"{_in_unit(point.altitude_m, u_alt)} is below limits.min_altitude "
-                                     f"{_in_unit(limits.min_altitude_m, u_alt)}; expected a point inside the limits")
-    if limits.max_altitude_m is not None and _beyond(point.altitude_m, limits.max_altitude_m):
-        r.problem(f"{fld}.altitude", f"{_in_unit(point.altitude_m, u_alt)} is above limits.max_altitude "
-                                     f"{_in_unit(limits.max_altitude_m, u_alt)}; expected a point inside the limits")
+    if "altitude" in outside:
+        low = point.altitude_m < limits.min_altitude_m
+        which, value = ("below limits.min_altitude", limits.min_altitude_m) if low else \
+            ("above limits.max_altitude", limits.max_altitude_m)
+        r.problem(f"{fld}.altitude", f"{_in_unit(point.altitude_m, u_alt)} is {which} "
+                                     f"{_in_unit(value, u_alt)}; expected a point inside the limits")
     speed_fld = f"{fld}.{point.speed_kind}"
-    if limits.max_mach is not None and _beyond(mach, limits.max_mach):
+    if "mach" in outside:
         r.problem(speed_fld, f"Mach {mach:.3f} exceeds limits.max_mach {_fmt(limits.max_mach)}")
     u_cas = r.unit_of("limits.max_cas", r.unit_of(speed_fld, "kt"))
-    if limits.max_cas_m_s is not None and _beyond(cas, limits.max_cas_m_s):
+    if "cas" in outside:
         r.problem(speed_fld, f"calibrated airspeed {_in_unit(cas, u_cas)} exceeds limits.max_cas "
                              f"{_in_unit(limits.max_cas_m_s, u_cas)}")
-    if limits.max_dynamic_pressure_pa is not None and _beyond(q, limits.max_dynamic_pressure_pa):
+    if "dynamic_pressure" in outside:
         u_q = r.unit_of("limits.max_dynamic_pressure", "kPa")
         r.problem(speed_fld, f"dynamic pressure {_in_unit(q, u_q)} exceeds limits.max_dynamic_pressure "
                              f"{_in_unit(limits.max_dynamic_pressure_pa, u_q)}")
-    if limits.cas_restriction is not None:
+    if "cas_restriction" in outside:
         rcas, below = limits.cas_restriction
-        if _beyond(below, point.altitude_m) and _beyond(cas, rcas):
-            u_r = r.unit_of("limits.cas_restriction.cas", "kt")
-            r.problem(speed_fld, f"calibrated airspeed {_in_unit(cas, u_r)} exceeds the restriction "
-                                 f"{_in_unit(rcas, u_r)} below "
-                                 f"{_in_unit(below, r.unit_of('limits.cas_restriction.below', 'ft'))}")
+        u_r = r.unit_of("limits.cas_restriction.cas", "kt")
+        r.problem(speed_fld, f"calibrated airspeed {_in_unit(cas, u_r)} exceeds the restriction "
+                             f"{_in_unit(rcas, u_r)} below "
+                             f"{_in_unit(below, r.unit_of('limits.cas_restriction.below', 'ft'))}")
 
 
 def _check_point_tables(r: _Reader, key: str, point: FlightPoint, aircraft: AircraftData | None,
