@@ -498,103 +498,6 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
 # ---- climbopt reduce (flight-test reduction; the logic lives in climbopt/flighttest*.py) -----
 
 
-def _reduce_summary(plan, points, surface, comparison, units):
-    """Summary lines of ``climbopt reduce`` and the JSON-ready facts behind them."""
-    import numpy as np
-
-    from climbopt import report
-    from climbopt.flighttest_fit import equivalent_cd0_change
-
-    kinds = [h.kind for h in plan.histories]
-    rate = lambda v: report.to_display("rate", v, units)  # noqa: E731
-    rms, ps_u = rate(surface.residual_rms_m_s)
-    facts = {"test_points": len(kinds), "level_accelerations": kinds.count("level_acceleration"),
-             "sawtooth_climbs": kinds.count("sawtooth_climb"), "standardised_points": len(points),
-             "residual_rms_m_s": surface.residual_rms_m_s,
-             "point_noise_m_s": float(np.sqrt(np.mean(points.sigma_m_s ** 2))),
-             "mach_degree": surface.mach_degree, "altitude_degree": surface.altitude_degree,
-             "fit": "difference from the predicted model" if surface.difference else "direct"}
-    lines = [f"{plan.name}: {facts['test_points']} test points ({facts['level_accelerations']} "
-             f"level accelerations, {facts['sawtooth_climbs']} sawtooth climbs), {len(points)} "
-             "standardised points",
-             f"Ps fit ({facts['fit']}, Mach degree {surface.mach_degree}, altitude degree "
-             f"{surface.altitude_degree}): residual rms {rms:.3g} {ps_u}, the points' own noise "
-             f"{rate(facts['point_noise_m_s'])[0]:.3g} {ps_u}"]
-    if surface.difference:
-        fit, samples = equivalent_cd0_change(surface, points.altitude_m, points.mach)
-        facts["cd0_change"] = float(np.mean(fit))
-        facts["cd0_change_sigma"] = float(np.std(np.mean(samples, axis=1), ddof=1))
-        lines.append(f"measured vs predicted, as a zero-lift drag change over the test points: "
-                     f"{100 * facts['cd0_change']:+.2f} % of CD0 (1 sigma "
-                     f"{100 * facts['cd0_change_sigma']:.2f} %)")
-    if comparison is not None:
-        tp = comparison.predicted.table["time_s"][-1]
-        tm = comparison.measured.table["time_s"][-1]
-        lo, hi = comparison.time_interval_s
-        facts.update(predicted_time_s=float(tp), measured_time_s=float(tm),
-                     time_sigma_s=comparison.time_sigma_s, time_interval_s=[lo, hi],
-                     extrapolated_fraction=comparison.extrapolated_fraction)
-        lines.append(f"minimum-time climb (energy-state): predicted {tp:.1f} s, measured "
-                     f"{tm:.1f} s ({tm - tp:+.1f} s, {100 * (tm - tp) / tp:+.2f} %; 1 sigma "
-                     f"{comparison.time_sigma_s:.1f} s, 95 % interval {lo:.1f} to {hi:.1f} s)")
-        if comparison.extrapolated_fraction > 0:
-            lines.append(f"  {100 * comparison.extrapolated_fraction:.0f} % of the measured path "
-                         "lies outside the tested altitude or Mach range (correction held at "
-                         "its edge value there)")
-    return lines, facts
-
-
-def _write_reduce_folder(folder: Path, plan, points, surface, comparison, units):
-    """Write every output of ``reduce`` into ``folder``; return (summary lines, document)."""
-    from climbopt import plots, report
-    from climbopt import flighttest_report as ftr
-
-    ftr.write_points_csv(folder / "points.csv", points, surface, units, plan.name)
-    files = ["points.csv"] + ftr.write_surface(folder, surface, units, plan.name)
-    for stem, fn in (("measured_ps", plots.plot_measured_ps),
-                     ("residuals", plots.plot_ps_residuals),
-                     ("predicted_vs_measured", plots.plot_predicted_vs_measured)):
-        if stem == "predicted_vs_measured" and not surface.difference:
-            continue
-        ax = fn(surface, points, units=units)
-        files += [p.name for p in plots.save_figure(ax.figure, folder / stem)]
-    lines, facts = _reduce_summary(plan, points, surface, comparison, units)
-    if comparison is not None:
-        files += _write_reduce_schedules(folder, plan, comparison, surface, units, lines)
-    text = [f"climbopt {__version__}: flight-test reduction of {plan.path}", ""] + lines
-    text += [""] + [f"note: {n}" for n in surface.reference.notes]
-    text += [f"Caution: {CAUTION}"]
-    report.write_text_atomic(folder / "report.txt", "\n".join(text) + "\n")
-    doc = {"climbopt_version": __version__, "test_plan": {"name": plan.name, "path": plan.path},
-           "units": units, "results": facts, "notes": surface.reference.notes,
-           "files": sorted(files + ["report.txt", "reduce.json"]), "caution": CAUTION}
-    report.write_summary_json(folder / "reduce.json", doc)
-    return lines, doc
-
-
-def _write_reduce_schedules(folder, plan, comparison, surface, units, lines):
-    """Per-point tables, crew schedules, the comparison table and plot of the two climbs."""
-    from climbopt import plots, report
-    from climbopt import flighttest_report as ftr
-    from climbopt.schedule import (climb_schedule, default_step_m, schedule_summary,
-                                   write_schedule_csv)
-
-    scenario = plan.predicted
-    files = ["climb_comparison.csv"]
-    ftr.write_climb_comparison_csv(folder / "climb_comparison.csv", comparison, units, plan.name)
-    for stem, traj in (("predicted", comparison.predicted), ("measured", comparison.measured)):
-        report.write_trajectory_csv(folder / f"{stem}_time.csv", traj, units,
-                                    f"{scenario.name} ({stem} aircraft)")
-        sched = climb_schedule(traj, default_step_m(units), scenario=scenario)
-        write_schedule_csv(folder / f"{stem}_time_schedule.csv", sched, units,
-                           f"{scenario.name} ({stem} aircraft)")
-        files += [f"{stem}_time.csv", f"{stem}_time_schedule.csv"]
-        lines.append(f"  {stem}: {schedule_summary(sched, units)}")
-    axes = plots.plot_climb_comparison(comparison, surface, units=units)
-    files += [p.name for p in plots.save_figure(axes[0].figure, folder / "climb_comparison")]
-    return files
-
-
 @cli.command("reduce")
 @click.argument("plan_file", metavar="TESTPLAN")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
@@ -611,6 +514,7 @@ def reduce_command(plan_file, out_dir, units, schedule, quiet):
     with --schedule the measured aircraft's minimum-time climb against the predicted one.
     Exit codes: 0 ok, 2 bad input, 3 infeasible mission."""
     from climbopt import flighttest_fit as ftf
+    from climbopt import flighttest_report as ftr
     from climbopt import report
     from climbopt.flighttest_io import FlightTestError, load_test_plan
 
@@ -647,7 +551,7 @@ def reduce_command(plan_file, out_dir, units, schedule, quiet):
         except ValueError as exc:
             _fail(f"{plan_file}: the climbs cannot be solved: {exc}", EXIT_BAD_INPUT)
     with _stoppable(out), report.atomic_output_dir(out, "climbopt reduce") as folder:
-        lines, doc = _write_reduce_folder(folder, plan, points, surface, comparison, units)
+        lines, doc = ftr.write_reduce_folder(folder, plan, points, surface, comparison, units)
     for line in lines:
         click.echo(line)
     if not quiet:

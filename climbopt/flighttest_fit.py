@@ -27,7 +27,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from numpy.polynomial import legendre
 
-from climbopt.aircraft import PointPerformance
+from climbopt.aircraft import AircraftModel
 from climbopt.atmosphere import G0, standard_atmosphere
 from climbopt.flighttest import ReducedPoints, StandardReference, reduce_history
 
@@ -95,7 +95,11 @@ class PsSurface:
         return (self.mach_degree + 1) * (self.altitude_degree + 1)
 
     def _basis(self, altitude_m, mach):
-        """Legendre products at normalised (Mach, altitude), shape (..., p)."""
+        """Legendre products at normalised (Mach, altitude), shape (..., p); for CasADi
+        symbols a list of the p products (same order)."""
+        if _is_casadi(mach) or _is_casadi(altitude_m):
+            return self._basis_casadi(altitude_m, mach)
+
         def norm(x, lo_hi):
             lo, hi = lo_hi
             u = (2.0 * np.asarray(x, dtype=float) - (lo + hi)) / max(hi - lo, 1e-12)
@@ -106,6 +110,25 @@ class PsSurface:
         vx = legendre.legvander(x, self.mach_degree)[..., :, None]
         vy = legendre.legvander(y, self.altitude_degree)[..., None, :]
         return (vx * vy).reshape(x.shape + (self.parameters,))
+
+    def _basis_casadi(self, altitude_m, mach):
+        """The Legendre products of :meth:`_basis` on CasADi symbols (Bonnet's recurrence
+        (n + 1) P_{n+1} = (2n + 1) u P_n - n P_{n-1}; normalised values held at the tested
+        range's edge like the numpy path)."""
+        import casadi as ca
+
+        def polys(x, lo_hi, degree):
+            lo, hi = lo_hi
+            u = (2.0 * x - (lo + hi)) / max(hi - lo, 1e-12)
+            u = ca.fmin(ca.fmax(u, -1.0), 1.0) if self.difference else u
+            p = [1.0, u]
+            for n in range(1, degree):
+                p.append(((2 * n + 1) * u * p[n] - n * p[n - 1]) / (n + 1))
+            return p[:degree + 1]
+
+        px = polys(mach, self.mach_range, self.mach_degree)
+        py = polys(altitude_m, self.altitude_range_m, self.altitude_degree)
+        return [a * b for a in px for b in py]
 
     def _baseline_scale(self, altitude_m, mach):
         """(predicted standard Ps [m/s], V_std q S / W_std [m/s]); (0, 1) without a model."""
@@ -127,9 +150,13 @@ class PsSurface:
         return self._baseline_scale(altitude_m, mach)[0]
 
     def delta_coefficient(self, altitude_m, mach, coefficients=None):
-        """Fitted excess-thrust coefficient change dC = d(T - D) / (q S) [-] (difference fits)."""
+        """Fitted excess-thrust coefficient change dC = d(T - D) / (q S) [-] (difference fits;
+        numpy arrays or CasADi symbols)."""
         c = self.coefficients if coefficients is None else coefficients
-        return self._basis(altitude_m, mach) @ c
+        basis = self._basis(altitude_m, mach)
+        if isinstance(basis, list):
+            return sum(float(ci) * b for ci, b in zip(c, basis, strict=True))
+        return basis @ c
 
     def ps_std(self, altitude_m, mach, coefficients=None):
         """Standardised Ps [m/s] at model altitude [m] and Mach (the fit, or a bootstrap set)."""
@@ -196,54 +223,55 @@ def equivalent_cd0_change(surface: PsSurface, altitude_m, mach):
     return fit, samples
 
 
-class MeasuredAircraftModel:
+class MeasuredAircraftModel(AircraftModel):
     """The predicted aircraft with the measured Ps: same atmosphere, domain, limits, polar and
-    fuel flow (every attribute is the predicted model's), but :meth:`evaluate` returns
+    fuel flow, but a net thrust raised by the measured excess-thrust change,
 
-        Ps = Ps_pred(h, V, m, n, throttle) + V q S dC(M, h) / (m g0),   T = D + Ps m g0 / V
+        T = T_pred(h, M, throttle) + q S dC(M, h),   q = gamma p M^2 / 2 (gamma = 1.4),
 
-    i.e. the measured standard-day Ps moved to the mass, load factor and day asked for with the
-    same relation (and the same predicted dT, dD) that standardised it (FTM-108 ch. 7, from
-    memory; derivation in docs/methods.md, section 6). The measured excess-thrust change is
-    attributed to drag, so it does not scale with throttle. numpy only (energy-state solver and
-    maps; not for the collocation solver).
+    so that Ps = Ps_pred(h, V, m, n, throttle) + V q S dC(M, h) / (m g0): the measured
+    standard-day Ps moved to the mass, load factor and day asked for with the same relation
+    (and the same predicted dT, dD) that standardised it (FTM-108 ch. 7, from memory;
+    derivation in docs/methods.md, section 6). The change is attributed to drag, so it does
+    not scale with throttle. Every method of :class:`climbopt.aircraft.AircraftModel` uses it,
+    on numpy and on CasADi, so the energy-state solver, the flown schedules and the collocation
+    solver all fly the measured aircraft.
     """
 
     def __init__(self, predicted, surface: PsSurface, coefficients=None):
         if not surface.difference:
             raise ValueError("the measured aircraft needs a surface fitted against a predicted "
                              "model")
-        self._predicted = predicted
+        # the predicted model's fits and settings, without its cached CasADi functions
+        self.__dict__.update({k: v for k, v in predicted.__dict__.items()
+                              if k != "_force_functions"})
+        self.predicted = predicted
         self.surface = surface
         self.coefficients = surface.coefficients if coefficients is None else coefficients
         self.name = f"{predicted.name} (measured Ps)"
 
-    def __getattr__(self, name):
-        return getattr(self._predicted, name)
+    def thrust_and_fuel_flow(self, altitude_m, mach, throttle=1.0, rating: str | None = None, *,
+                             check: bool = True):
+        """Net thrust [N] with the measured change, and the predicted fuel flow [kg/s]."""
+        thrust, fuel = super().thrust_and_fuel_flow(altitude_m, mach, throttle, rating,
+                                                    check=check)
+        q = 0.7 * self.atmosphere(altitude_m).pressure_pa * mach * mach
+        dc = self.surface.delta_coefficient(altitude_m, mach, self.coefficients)
+        return thrust + q * self.reference_area_m2 * dc, fuel
 
-    def evaluate(self, altitude_m, tas_m_s, mass_kg, load_factor=1.0, throttle=1.0,
-                 rating: str | None = None, *, check: bool = True) -> PointPerformance:
-        """Forces and Ps at flight points (SI arrays; see the class docstring)."""
-        perf = self._predicted.evaluate(altitude_m, tas_m_s, mass_kg, load_factor, throttle,
-                                        rating, check=check)
-        v = np.asarray(tas_m_s, dtype=float)
-        weight = np.asarray(mass_kg, dtype=float) * G0
-        dc = self.surface.delta_coefficient(altitude_m, perf.mach, self.coefficients)
-        extra = perf.dynamic_pressure_pa * self._predicted.reference_area_m2 * dc
-        ps = perf.ps_m_s + v * extra / weight
-        return PointPerformance(perf.mach, perf.dynamic_pressure_pa, perf.cl, perf.cd,
-                                perf.drag_n, perf.thrust_n + extra, perf.fuel_flow_kg_s, ps)
 
-    def specific_excess_power_m_s(self, altitude_m, tas_m_s, mass_kg, load_factor=1.0,
-                                  throttle=1.0, rating: str | None = None, *, check: bool = True):
-        """Ps [m/s] (see :meth:`evaluate`)."""
-        return self.evaluate(altitude_m, tas_m_s, mass_kg, load_factor, throttle, rating,
-                             check=check).ps_m_s
+def _is_casadi(x) -> bool:
+    from climbopt.fits import is_casadi
+
+    return is_casadi(x)
 
 
 @dataclass
 class ClimbComparison:
-    """Minimum-time energy-state climbs of the predicted and the measured aircraft.
+    """Minimum-time energy-state climbs of the predicted and the measured aircraft, and the best
+    flyable constant CAS/Mach schedule of each (``predicted_schedule``, ``measured_schedule``:
+    :func:`climbopt.procedure.best_schedule` flown through each model; None when none is
+    flyable).
 
     ``time_sigma_s`` is the one-sigma spread of the measured time over the bootstrap surfaces
     (re-solved on a coarser grid, ``bootstrap_grid``), ``time_interval_s`` its 2.5-97.5 %
@@ -260,6 +288,8 @@ class ClimbComparison:
     bootstrap_grid: tuple[int, int]
     extrapolated_fraction: float
     notes: list[str] = field(default_factory=list)
+    predicted_schedule: object = None
+    measured_schedule: object = None
 
     @property
     def time_difference_s(self) -> float:
@@ -303,6 +333,20 @@ def compare_climbs(scenario, predicted_model, surface: PsSurface, *, bootstrap: 
                | (tab["mach"] < m_lo) | (tab["mach"] > m_hi))
     notes = [f"bootstrap: {times.size} of {bootstrap} re-solves on {bootstrap_grid[0]} x "
              f"{bootstrap_grid[1]} grids" + (f", {failures} infeasible" if failures else "")]
+    schedules = []
+    for model, climb in ((predicted_model, predicted), (measured_model, measured)):
+        schedules.append(_best_schedule(scenario, model, climb, notes))
     return ClimbComparison(predicted, measured, sigma, interval, int(times.size), failures,
-                           tuple(bootstrap_grid), float(np.mean(outside)), notes)
+                           tuple(bootstrap_grid), float(np.mean(outside)), notes, *schedules)
+
+
+def _best_schedule(scenario, model, climb, notes):
+    """The best flyable minimum-time schedule on ``model`` (None, with a note, if none is)."""
+    from climbopt.procedure import ScheduleNotFlyable, best_schedule
+
+    try:
+        return best_schedule(scenario, model, "time", reference=climb)
+    except ScheduleNotFlyable as exc:
+        notes.append(f"no flyable schedule on the {model.name}: {exc}")
+        return None
 

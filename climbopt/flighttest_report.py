@@ -1,6 +1,7 @@
-"""Output files of the flight-test reduction: the standardised points, the fitted surface
-(NPZ in SI, CSV grid in the display units) and the predicted vs measured climb table. Every file
-carries the caution; nothing here prints.
+"""Output files of the flight-test reduction (``climbopt reduce``): the standardised points, the
+fitted surface (NPZ in SI, CSV grid in the display units), the predicted vs measured climb
+table, the crew schedules of both aircraft, the plots, ``report.txt`` and ``reduce.json``. Every
+file carries the caution; nothing here prints.
 """
 
 from __future__ import annotations
@@ -9,8 +10,11 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["climb_comparison_rows", "surface_grid", "write_climb_comparison_csv",
-           "write_points_csv", "write_surface"]
+from climbopt import CAUTION, __version__
+
+__all__ = ["climb_comparison_rows", "reduce_summary", "surface_grid",
+           "write_climb_comparison_csv", "write_points_csv", "write_reduce_folder",
+           "write_surface"]
 
 
 def _display(kind: str, value, units: str):
@@ -116,3 +120,105 @@ def write_climb_comparison_csv(path, comparison, units: str, plan_name: str) -> 
     header, rows = climb_comparison_rows(comparison, units)
     _write_rows(path, _comment_lines(plan_name, "minimum-time climb, predicted vs measured "
                                      "aircraft (energy-state)", units), header, rows)
+
+
+def reduce_summary(plan, points, surface, comparison, units):
+    """Summary lines of ``climbopt reduce`` and the JSON-ready facts behind them."""
+    from climbopt import report
+    from climbopt.flighttest_fit import equivalent_cd0_change
+
+    kinds = [h.kind for h in plan.histories]
+    rate = lambda v: report.to_display("rate", v, units)  # noqa: E731
+    rms, ps_u = rate(surface.residual_rms_m_s)
+    facts = {"test_points": len(kinds), "level_accelerations": kinds.count("level_acceleration"),
+             "sawtooth_climbs": kinds.count("sawtooth_climb"), "standardised_points": len(points),
+             "residual_rms_m_s": surface.residual_rms_m_s,
+             "point_noise_m_s": float(np.sqrt(np.mean(points.sigma_m_s ** 2))),
+             "mach_degree": surface.mach_degree, "altitude_degree": surface.altitude_degree,
+             "fit": "difference from the predicted model" if surface.difference else "direct"}
+    lines = [f"{plan.name}: {facts['test_points']} test points ({facts['level_accelerations']} "
+             f"level accelerations, {facts['sawtooth_climbs']} sawtooth climbs), {len(points)} "
+             "standardised points",
+             f"Ps fit ({facts['fit']}, Mach degree {surface.mach_degree}, altitude degree "
+             f"{surface.altitude_degree}): residual rms {rms:.3g} {ps_u}, the points' own noise "
+             f"{rate(facts['point_noise_m_s'])[0]:.3g} {ps_u}"]
+    if surface.difference:
+        fit, samples = equivalent_cd0_change(surface, points.altitude_m, points.mach)
+        facts["cd0_change"] = float(np.mean(fit))
+        facts["cd0_change_sigma"] = float(np.std(np.mean(samples, axis=1), ddof=1))
+        lines.append(f"measured vs predicted, as a zero-lift drag change over the test points: "
+                     f"{100 * facts['cd0_change']:+.2f} % of CD0 (1 sigma "
+                     f"{100 * facts['cd0_change_sigma']:.2f} %)")
+    if comparison is not None:
+        tp = comparison.predicted.table["time_s"][-1]
+        tm = comparison.measured.table["time_s"][-1]
+        lo, hi = comparison.time_interval_s
+        facts.update(predicted_time_s=float(tp), measured_time_s=float(tm),
+                     time_sigma_s=comparison.time_sigma_s, time_interval_s=[lo, hi],
+                     extrapolated_fraction=comparison.extrapolated_fraction)
+        lines.append(f"minimum-time climb (energy-state): predicted {tp:.1f} s, measured "
+                     f"{tm:.1f} s ({tm - tp:+.1f} s, {100 * (tm - tp) / tp:+.2f} %; 1 sigma "
+                     f"{comparison.time_sigma_s:.1f} s, 95 % interval {lo:.1f} to {hi:.1f} s)")
+        if comparison.extrapolated_fraction > 0:
+            lines.append(f"  {100 * comparison.extrapolated_fraction:.0f} % of the measured path "
+                         "lies outside the tested altitude or Mach range (correction held at "
+                         "its edge value there)")
+        ps, ms = comparison.predicted_schedule, comparison.measured_schedule
+        if ps is not None and ms is not None:
+            facts.update(predicted_schedule=ps.name, measured_schedule=ms.name,
+                         predicted_schedule_time_s=ps.time_s, measured_schedule_time_s=ms.time_s)
+            lines.append(f"best flyable schedule for minimum time: predicted {ps.name} "
+                         f"({ps.time_s:.1f} s), measured {ms.name} ({ms.time_s:.1f} s, "
+                         f"{ms.time_s - ps.time_s:+.1f} s); each flown through its own model")
+    return lines, facts
+
+
+def write_reduce_folder(folder: Path, plan, points, surface, comparison, units):
+    """Write every output of ``reduce`` into ``folder``; return (summary lines, document)."""
+    from climbopt import plots, report
+
+    write_points_csv(folder / "points.csv", points, surface, units, plan.name)
+    files = ["points.csv"] + write_surface(folder, surface, units, plan.name)
+    for stem, fn in (("measured_ps", plots.plot_measured_ps),
+                     ("residuals", plots.plot_ps_residuals),
+                     ("predicted_vs_measured", plots.plot_predicted_vs_measured)):
+        if stem == "predicted_vs_measured" and not surface.difference:
+            continue
+        ax = fn(surface, points, units=units)
+        files += [p.name for p in plots.save_figure(ax.figure, folder / stem)]
+    lines, facts = reduce_summary(plan, points, surface, comparison, units)
+    if comparison is not None:
+        files += _write_reduce_schedules(folder, plan, comparison, surface, units, lines)
+    text = [f"climbopt {__version__}: flight-test reduction of {plan.path}", ""] + lines
+    text += [""] + [f"note: {n}" for n in surface.reference.notes]
+    text += [f"Caution: {CAUTION}"]
+    report.write_text_atomic(folder / "report.txt", "\n".join(text) + "\n")
+    doc = {"climbopt_version": __version__, "test_plan": {"name": plan.name, "path": plan.path},
+           "units": units, "results": facts, "notes": surface.reference.notes,
+           "files": sorted(files + ["report.txt", "reduce.json"]), "caution": CAUTION}
+    report.write_summary_json(folder / "reduce.json", doc)
+    return lines, doc
+
+
+def _write_reduce_schedules(folder, plan, comparison, surface, units, lines):
+    """Per-point tables, crew schedules, the comparison table and plot of the two climbs."""
+    from climbopt import plots, report
+    from climbopt.schedule import (climb_schedule, default_step_m, schedule_summary,
+                                   write_schedule_csv)
+
+    scenario = plan.predicted
+    files = ["climb_comparison.csv"]
+    write_climb_comparison_csv(folder / "climb_comparison.csv", comparison, units, plan.name)
+    climbs = [("predicted", comparison.predicted), ("measured", comparison.measured),
+              ("predicted_best_schedule", comparison.predicted_schedule),
+              ("measured_best_schedule", comparison.measured_schedule)]
+    for stem, traj in ((k, v) for k, v in climbs if v is not None):
+        who = f"{scenario.name} ({stem.split('_')[0]} aircraft)"
+        report.write_trajectory_csv(folder / f"{stem}_time.csv", traj, units, who)
+        sched = climb_schedule(traj, default_step_m(units), scenario=scenario)
+        write_schedule_csv(folder / f"{stem}_time_schedule.csv", sched, units, who)
+        files += [f"{stem}_time.csv", f"{stem}_time_schedule.csv"]
+        lines.append(f"  {stem}: {schedule_summary(sched, units)}")
+    axes = plots.plot_climb_comparison(comparison, surface, units=units)
+    files += [p.name for p in plots.save_figure(axes[0].figure, folder / "climb_comparison")]
+    return files

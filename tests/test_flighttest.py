@@ -207,15 +207,29 @@ def test_measured_model_forces_consistent(twinjet, clean_histories):
     assert np.allclose(b.ps_m_s - a.ps_m_s, v * a.dynamic_pressure_pa * 125.0 * dc / (m * G0),
                        rtol=1e-12)
     assert meas.domain == pred.domain and meas.atmosphere is pred.atmosphere
+    # the CasADi path (flown schedules, collocation) carries the same thrust change
+    mach = float(a.mach[1])
+    f = meas.force_function()(h[1], v[1], 0.5, 0.8)
+    g = pred.force_function()(h[1], v[1], 0.5, 0.8)
+    assert float(f[5] - g[5]) == pytest.approx(
+        float(a.dynamic_pressure_pa[1]) * 125.0 * float(surface.delta_coefficient(h[1], mach)),
+        rel=1e-9)
 
 
 def test_measured_schedule_equals_model_schedule_without_drag_difference(twinjet,
                                                                          clean_histories):
     """On noise-free synthetic data with no drag difference, the measured aircraft's
-    minimum-time energy-state climb takes the predicted model's time to 1 %."""
+    minimum-time energy-state climb takes the predicted model's time to 1 %, and its best
+    flyable schedule, flown through the measured model, the predicted one's to 1 % as well
+    (same speeds to within the search's rounding: 3 kt, Mach 0.01)."""
     scenario, _, ref = twinjet
     pts = ReducedPoints.concatenate([reduce_history(h, ref, 20.0) for h in clean_histories])
     surface = fit_surface(pts, ref, bootstrap=20)
     cmp = compare_climbs(scenario, build_model(scenario), surface, bootstrap=0)
     t_pred = cmp.predicted.table["time_s"][-1]
     assert abs(cmp.time_difference_s) < 0.01 * t_pred
+    ps, ms = cmp.predicted_schedule, cmp.measured_schedule
+    assert ps is not None and ms is not None
+    assert ms.time_s == pytest.approx(ps.time_s, rel=0.01)
+    assert abs(ms.schedule.cas_m_s - ps.schedule.cas_m_s) <= kt_to_m_s(3.0)
+    assert abs(ms.schedule.mach - ps.schedule.mach) <= 0.0100001
