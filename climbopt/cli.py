@@ -85,10 +85,7 @@ def _load_for_command(scenario_file: str, solver_options: bool = False):
             check_solver_options(scenario)
         return scenario
     except ScenarioError as exc:
-        n = len(exc.problems)
-        lines = [f"{exc.path}: {n} problem{'s' if n != 1 else ''} found:"]
-        lines += [f"  {fld}: {msg}" for fld, msg in exc.problems]
-        _fail("\n".join(lines), EXIT_BAD_INPUT)
+        _fail(_problems_text(exc), EXIT_BAD_INPUT)
     except (OSError, ValueError) as exc:
         _fail(f"{scenario_file}: {exc}", EXIT_BAD_INPUT)
 
@@ -152,6 +149,26 @@ def _default_out(scenario_file: str, suffix: str = "") -> Path:
     return Path("out") / (Path(scenario_file).stem + suffix)
 
 
+#: ``--units`` of run, map, sweep and reduce: the file's units (default), SI, US, or the crew set.
+UNITS_OPTION = dict(type=click.Choice(["file", "si", "us", "crew"]), default="file",
+                    show_default=True,
+                    help="Units of printed and written tables and plots: as the scenario file "
+                         "writes altitudes and speeds (us when in ft and kt, else si), si (m, km, "
+                         "kg, m/s; speeds to fly in km/h), us (ft, kt, lb, nmi, ft/min) or crew "
+                         "(ft, kt, ft/min, nmi, mass in kg or lb as the file writes it).")
+
+
+def _units_for(choice: str, scenario) -> str:
+    from climbopt.units import unit_system_for
+
+    return unit_system_for(choice, getattr(scenario, "display_units", {}) or {})
+
+
+def _method(value: str) -> str:
+    """``energy-state`` (the label every output uses) is the same as ``energy``."""
+    return "energy" if value == "energy-state" else value
+
+
 def _check_out_dir(out: Path) -> None:
     """Refuse an unusable output folder before any work (exit 2)."""
     from climbopt.report import OutputFolderError, check_output_folder
@@ -195,23 +212,24 @@ def _stoppable(out: Path):
 
 @cli.command("run")
 @click.argument("scenario_file", metavar="SCENARIO")
-@click.option("--method", type=click.Choice(["energy", "collocation", "both"]), default="both",
-              show_default=True, help="energy-state, direct collocation (warm-started from the "
-                                      "energy-state path of the same objective), or both.")
+@click.option("--method", type=click.Choice(["energy", "energy-state", "collocation", "both"]),
+              default="both", show_default=True,
+              help="energy-state (or energy), direct collocation (warm-started from the "
+                   "energy-state path of the same objective), or both.")
 @click.option("--objective", type=click.Choice(["time", "fuel", "both"]), default="both",
               show_default=True, help="Minimum time, minimum fuel, or both.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Output folder [default: out/<scenario file stem>]. Replaced as a whole.")
-@click.option("--units", type=click.Choice(["si", "us"]), default="si", show_default=True,
-              help="Units of printed and written tables and plots (us: ft, kt, lb, nmi).")
+@click.option("--units", **UNITS_OPTION)
 @click.option("--quiet", is_flag=True, help="No progress bars and no list of files.")
 @click.option("--json", "as_json", is_flag=True,
               help="Print the summary as JSON on stdout (and nothing else).")
 def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
     """Solve SCENARIO, print the comparison table and write the results folder.
 
-    Writes summary.json, comparison.csv, report.txt, a per-point CSV and a climb schedule CSV for
-    each result, and the plots (PNG and SVG). Exit codes: 0 ok, 2 bad input, 3 infeasible
+    Writes report.html (the whole run in one page), summary.json, comparison.csv, report.txt, a
+    per-point CSV and a climb schedule CSV for each result, and the plots. Exit codes: 0 ok, 2 bad
+    input, 3 infeasible
     mission, 4 solver failure (an unconverged, unverified or over-capacity optimisation; the
     results are still written and labelled), 130 interrupted (Ctrl-C), 143 terminated.
     """
@@ -221,7 +239,9 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
     from climbopt.pipeline import TimeLimitExceeded, run_mission
     from climbopt.rutowski import InfeasibleMission
 
+    method = _method(method)
     scenario = _load_for_command(scenario_file, solver_options=method != "energy")
+    units = _units_for(units, scenario)
     out = Path(out_dir) if out_dir else _default_out(scenario_file)
     _check_out_dir(out)
     objectives = ["time", "fuel"] if objective == "both" else [objective]
@@ -253,7 +273,8 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
     if as_json:
         click.echo(report.dumps_summary(doc))
     else:
-        click.echo(f"{scenario.name} ({units.upper()} units)")
+        click.echo(f"{scenario.name}")
+        click.echo(f"units {report.units_words(units)}; {doc['conditions']['text']}")
         click.echo("")
         click.echo(report.format_table(records, units))
         for block in doc["text"].values():
@@ -261,8 +282,9 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
                 click.echo("")
                 click.echo(block)
         if not quiet:
-            click.echo(f"\nWrote {out}/: summary.json, comparison.csv, report.txt, schedules "
-                       f"(*_schedule.csv), per-point tables, plots ({len(doc['figures'])} files)")
+            click.echo(f"\nWrote {out}/: report.html, report.txt, summary.json, comparison.csv, "
+                       f"schedules (*_schedule.csv), per-point tables, plots "
+                       f"({len(doc['figures'])} files)")
     for w in result.warnings:
         click.echo(f"warning: {w}", err=True)
     for e in result.errors:
@@ -281,23 +303,42 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
 @click.argument("scenario_file", metavar="SCENARIO")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Output folder [default: out/<scenario file stem>-map]. Replaced as a whole.")
-@click.option("--units", type=click.Choice(["si", "us"]), default="si", show_default=True,
-              help="Units of the plots and of the CSV (us: ft, kt, lb, ft/min).")
+@click.option("--units", **UNITS_OPTION)
+@click.option("--mass", default=None, metavar="MASS",
+              help="Mass of the map, with a unit as in a scenario file ('65 t', '150000 lb') "
+                   "[default: the start mass].")
+@click.option("--load-factor", type=float, default=1.0, show_default=True,
+              help="Load factor n = L / W of the map (above 0, at most the scenario's "
+                   "limits.max_load_factor).")
+@click.option("--temperature-offset", default=None, metavar="DT",
+              help="Temperature deviation from ISA, with a unit ('10 K', '-15 delta_degC') "
+                   "[default: the scenario's].")
+@click.option("--rating", default=None, help="Engine rating name [default: the mission's].")
 @click.option("--quiet", is_flag=True, help="No progress and no list of files.")
-def map_command(scenario_file, out_dir, units, quiet):
-    """Write the energy-state fields of SCENARIO (Ps, fuel flow, Ps / fuel flow, envelope) at
-    the start mass over altitude x true airspeed, as energy_map.npz and .csv, and their plots."""
+def map_command(scenario_file, out_dir, units, mass, load_factor, temperature_offset, rating,
+                quiet):
+    """Write the energy-state fields of SCENARIO (Ps, fuel flow, Ps / fuel flow, envelope) over
+    altitude x true airspeed, as energy_map.npz and .csv, map.json and their plots; at the start
+    mass, 1 g, the scenario's temperature and rating unless --mass, --load-factor,
+    --temperature-offset or --rating say otherwise (validated like a scenario file).
+    Exit codes: 0 ok, 2 bad input, 130 interrupted, 143 terminated."""
     from climbopt import plots, report
     from climbopt.aircraft import build_model
     from climbopt.energy import build_energy_map
 
-    scenario = _load_for_command(scenario_file)
+    scenario = _changed(_load_for_command(scenario_file), mass=mass,
+                        temperature_offset=temperature_offset, rating=rating)
+    units = _units_for(units, scenario)
+    if not (load_factor > 0.0 and load_factor <= scenario.limits.max_load_factor):
+        _fail(f"--load-factor {load_factor:g}: expected a number above 0 and at most the "
+              f"scenario's limits.max_load_factor {scenario.limits.max_load_factor:g}",
+              EXIT_BAD_INPUT)
     out = Path(out_dir) if out_dir else _default_out(scenario_file, "-map")
     _check_out_dir(out)
     bar = _Progress(_progress_enabled(quiet))
     try:
         model = build_model(scenario)
-        emap = build_energy_map(scenario, model=model)
+        emap = build_energy_map(scenario, model=model, load_factor=load_factor)
     except ValueError as exc:
         _fail(f"{scenario_file}: the energy map cannot be built: {exc}", EXIT_BAD_INPUT)
     with _stoppable(out), report.atomic_output_dir(out, "climbopt map") as folder:
@@ -312,12 +353,35 @@ def map_command(scenario_file, out_dir, units, quiet):
         doc["files"] += sorted(p.name for p in figures)
         report.write_summary_json(folder / "map.json", doc)
         bar.done()
-    click.echo(f"{scenario.name}: energy map {emap.shape[0]} altitudes x {emap.shape[1]} speeds "
-               f"at {emap.mass_kg:,.0f} kg, rating {emap.rating}")
+    click.echo(f"{scenario.name}: energy map {emap.shape[0]} altitudes x {emap.shape[1]} speeds; "
+               f"{report.map_conditions_text(emap, units)}")
     if not quiet:
         click.echo(f"Wrote {out}/: map.json, energy_map.npz, energy_map.csv, plots "
                    f"({len(figures)} files)")
     click.echo(f"Caution: {CAUTION}")
+
+
+def _changed(scenario, **changes):
+    """The scenario with the command line's changes (values as in a scenario file), validated by
+    :meth:`Scenario.replace`; every problem is listed and the command exits with 2."""
+    from climbopt.scenario import ScenarioError
+
+    names = {"mass": "mass", "temperature_offset": "temperature_offset",
+             "rating": "mission.rating"}
+    given = {names[k]: v for k, v in changes.items() if v is not None}
+    if not given:
+        return scenario
+    try:
+        return scenario.replace(**given)
+    except ScenarioError as exc:
+        _fail(_problems_text(exc), EXIT_BAD_INPUT)
+
+
+def _problems_text(exc) -> str:
+    """A scenario error as printed: the file, the number of problems, one line per problem."""
+    n = len(exc.problems)
+    lines = [f"{exc.path}: {n} problem{'s' if n != 1 else ''} found:"]
+    return "\n".join(lines + [f"  {fld}: {msg}" for fld, msg in exc.problems])
 
 
 # ---- climbopt sweep (trade studies; the logic lives in climbopt/sweep.py) --------------------
@@ -334,8 +398,9 @@ def map_command(scenario_file, out_dir, units, quiet):
                    "thrust_scale and a Mach target_speed.")
 @click.option("--zip", "zip_values", is_flag=True,
               help="Take the i-th values of all --vary together instead of the full grid.")
-@click.option("--method", type=click.Choice(["energy", "collocation"]), default="energy",
-              show_default=True, help="Solver for every case.")
+@click.option("--method", type=click.Choice(["energy", "energy-state", "collocation"]),
+              default="energy", show_default=True,
+              help="Solver for every case (energy and energy-state are the same).")
 @click.option("--objective", type=click.Choice(["time", "fuel", "weighted"]), default=None,
               help="Default: weighted when cost_weight is varied, else time.")
 @click.option("--workers", type=click.IntRange(min=1), default=None,
@@ -350,14 +415,20 @@ def map_command(scenario_file, out_dir, units, quiet):
               help="Solve at most this many new cases now; re-run to continue.")
 @click.option("--retry-failed", is_flag=True, help="Solve again the cases recorded as failed.")
 @click.option("--no-plots", is_flag=True, help="Write the table only.")
+@click.option("--table", "office", is_flag=True,
+              help="Also write the office tables: time, fuel and distance to climb by mass x "
+                   "temperature deviation x target altitude (climb_table.csv, .md, .html).")
+@click.option("--units", **UNITS_OPTION)
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 def sweep_command(scenario_file, vary, zip_values, method, objective, workers, serial, cluster,
-                  out_dir, parquet, max_cases, retry_failed, no_plots, quiet):
+                  out_dir, parquet, max_cases, retry_failed, no_plots, office, units, quiet):
     """Solve SCENARIO for every combination of the --vary values (a trade study).
 
     Rows stream to the table as cases finish; a re-run of the same command skips the cases
     already in the table. A failed case is recorded with its status and error and does not stop
-    the sweep (exit code 0); exit 2 for bad input, 1 when the workers or the cluster fail.
+    the sweep (exit code 0); exit 2 for bad input, 1 when the workers or the cluster fail, 130
+    when interrupted (the finished cases stay in the table). sweep.csv keeps every number in SI
+    at full precision (for resuming and scripts); --table writes the rounded tables to hand over.
     """
     from climbopt import sweep as sw
 
@@ -365,7 +436,9 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
         raise click.UsageError("--serial cannot be combined with --cluster or --workers")
     if cluster and workers:
         raise click.UsageError("--workers is for the local pool; the cluster has its own workers")
+    method = _method(method)
     scenario = _load_for_command(scenario_file, solver_options=method == "collocation")
+    units = _units_for(units, scenario)
     try:
         variations = [sw.parse_variation(text, scenario) for text in vary]
         plan = sw.plan_sweep(scenario, variations, zip_values=zip_values, method=method,
@@ -452,6 +525,10 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
 
             for stem, fig in plots.sweep_figures(plan, result.rows).items():
                 written += [p for p in plots.save_figure(fig, folder / stem) if p.suffix == ".png"]
+        if office:
+            from climbopt.office import write_office_tables
+
+            written += write_office_tables(folder, plan, result.rows, units)
     except sw.SweepError as exc:
         _fail(str(exc), EXIT_BAD_INPUT)
     except Exception as exc:  # outputs after the table: report, keep the table
@@ -485,10 +562,12 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
         curve = sw.tradeoff_curve([r for r in rows if r["objective"] == "weighted"]
                                   if len(plan.variations) == 1 else [])
         if len(plan.variations) == 1 and len(curve["time_s"]) > 1:
+            from climbopt.report import to_display
+
+            fuel, m_u = to_display("mass", [min(curve["fuel_kg"]), max(curve["fuel_kg"])], units)
             click.echo(f"trade-off: {len(curve['time_s'])} weights, time {min(curve['time_s']):.1f} "
-                       f"to {max(curve['time_s']):.1f} s, fuel {min(curve['fuel_kg']):.1f} to "
-                       f"{max(curve['fuel_kg']):.1f} kg"
-                       + ("" if curve["monotone"] else " (not monotone: check the grid)"))
+                       f"to {max(curve['time_s']):.1f} s, fuel {fuel[0]:,.1f} to {fuel[1]:,.1f} "
+                       f"{m_u}" + ("" if curve["monotone"] else " (not monotone: check the grid)"))
     click.echo(f"table: {table}")
     if written and not quiet:
         click.echo("files: " + ", ".join(str(p) for p in written))

@@ -23,7 +23,7 @@ from matplotlib.patches import Patch
 from climbopt import CAUTION
 from climbopt.atmosphere import standard_atmosphere
 from climbopt.results import Trajectory
-from climbopt.units import kg_to_lb, m_s_to_kt, m_to_ft
+from climbopt.units import display_unit
 
 __all__ = [
     "path_style",
@@ -101,7 +101,7 @@ def path_style(method: str, objective: str) -> dict:
 
 
 def _label(traj: Trajectory) -> str:
-    text = f"{traj.method}, minimum {traj.objective}"
+    text = traj.label
     if not traj.converged:
         text += " (NOT CONVERGED)"
     return text
@@ -111,25 +111,25 @@ def _label(traj: Trajectory) -> str:
 # axis units
 
 def _axis_units(units: str) -> dict:
-    if units == "us":
-        return {
-            "alt": (lambda h: m_to_ft(h) / 1000.0, "altitude [1000 ft]"),
-            "tas": (m_s_to_kt, "true airspeed [kt]"),
-            "ps": (lambda p: m_to_ft(p) * 60.0, "Ps [ft/min]"),
-            "fs": (lambda f: m_to_ft(f) / kg_to_lb(1.0), "Ps / fuel flow [ft/lb]"),
-            "he": (lambda h: m_to_ft(h) / 1000.0, "kft"),
-            "mass": (kg_to_lb, "mass [lb]"),
-        }
-    if units == "si":
-        return {
-            "alt": (lambda h: h / 1000.0, "altitude [km]"),
-            "tas": (lambda v: v, "true airspeed [m/s]"),
-            "ps": (lambda p: p, "Ps [m/s]"),
-            "fs": (lambda f: f, "Ps / fuel flow [m/kg]"),
-            "he": (lambda h: h / 1000.0, "km"),
-            "mass": (lambda m: m, "mass [kg]"),
-        }
-    raise ValueError(f"units must be 'si' or 'us', got {units!r}")
+    """Converter from SI and axis label of each plotted quantity in ``units``, from the one
+    display-unit table :data:`climbopt.units.DISPLAY_UNITS`; altitudes and energy heights in
+    thousands (km for metres)."""
+    from climbopt.units import from_si
+
+    def conv(kind):
+        unit = display_unit(kind, units)
+        return (lambda v: from_si(v, unit)), unit
+
+    alt_fn, alt_u = conv("altitude")
+    thousands = "km" if alt_u == "m" else f"1000 {alt_u}"
+    out = {"alt": (lambda h: alt_fn(h) / 1000.0, f"altitude [{thousands}]"),
+           "he": (lambda h: alt_fn(h) / 1000.0, thousands)}
+    for key, kind, words in (("tas", "speed", "true airspeed"), ("ps", "rate", "Ps"),
+                             ("fs", "fuel_specific_energy", "Ps / fuel flow"),
+                             ("mass", "mass", "mass")):
+        fn, unit = conv(kind)
+        out[key] = (fn, f"{words} [{unit}]")
+    return out
 
 
 def _nice_levels(lo: float, hi: float, count: int = 10) -> np.ndarray:
@@ -261,8 +261,10 @@ def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str
     ax.set_ylim(float(np.nanmin(Y)), float(np.nanmax(Y)))
     if title is None:
         what = "Specific excess power" if quantity == "ps" else "Fuel-specific energy"
-        title = (f"{what}, mass {energy_map.mass_kg:,.0f} kg, n = {energy_map.load_factor:g}, "
-                 f"rating {energy_map.rating}")
+        mass_u = display_unit("mass", units)
+        title = (f"{what}, mass {_from_si(energy_map.mass_kg, mass_u):,.0f} {mass_u}, "
+                 f"n = {energy_map.load_factor:g}, rating {energy_map.rating}, "
+                 f"ISA {energy_map.temperature_offset_k:+g} K")
     ax.set_title(title, fontsize=10)
     if legend and handles:
         ax.legend(handles=handles, fontsize=7, loc="upper left", bbox_to_anchor=(1.01, 1.0),
@@ -617,7 +619,8 @@ def plot_predicted_vs_measured(surface, points, *, units: str = "si", ax=None):
         fit = ps_fn(surface.ps_std(h, mach))
         band = ps_fn(2.0 * surface.sigma(h, mach))
         ax.fill_between(mach, fit - band, fit + band, color=colour, alpha=0.25, linewidth=0)
-        where = f"{m_to_ft(h):,.0f} ft" if units == "us" else f"{h:,.0f} m"
+        where = f"{_from_si(h, display_unit('altitude', units)):,.0f} " \
+                f"{display_unit('altitude', units)}"
         ax.plot(mach, fit, color=colour, linewidth=1.8, label=f"measured, {where}")
         if surface.difference:
             ax.plot(mach, ps_fn(surface.predicted_ps_std(h, mach)), color=colour,

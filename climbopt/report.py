@@ -1,9 +1,11 @@
 """Reports: the comparison table of all results, ``summary.json``, ``comparison.csv``, the
 per-point CSV and the climb-schedule CSV of each result, and atomic output folders.
 
-Values are SI inside; :data:`DISPLAY_UNITS` says what each quantity is shown in for ``"si"`` and
-``"us"`` output (ft, kt, lb, nmi). ``summary.json`` keeps SI keys whatever the display units, so
-scripts can rely on it (see ARCHITECTURE.md), and adds a ``display`` block in the chosen units.
+Values are SI inside; :data:`climbopt.units.DISPLAY_UNITS` says what each quantity is shown in
+for each unit system (``"si"``, ``"us"``, ``"crew"``, ``"crew-lb"``) and
+:data:`climbopt.units.UNIT_DIGITS` to how many decimals it is written. ``summary.json`` keeps
+SI keys whatever the display units, so scripts can rely on it, and adds a ``display`` block in
+the chosen units.
 Nothing here prints; :mod:`climbopt.cli` decides what goes to the terminal.
 """
 
@@ -11,6 +13,7 @@ from __future__ import annotations
 
 import contextlib
 import csv
+import dataclasses
 import io
 import json
 import math
@@ -23,34 +26,13 @@ import numpy as np
 
 from climbopt import CAUTION, __version__
 from climbopt.results import COLUMNS, Method, Result, Trajectory
-from climbopt.units import kg_to_lb, m_s_to_kt, m_to_ft, m_to_nmi
+from climbopt import units as _units
 
-UNIT_SYSTEMS = ("si", "us")
+UNIT_SYSTEMS = _units.UNIT_SYSTEMS
 
 
 # ------------------------------------------------------------------------------------------
-# units for display
-
-def _identity(x):
-    return x
-
-
-def _per_min(fn):
-    return lambda x: fn(x) * 60.0
-
-
-#: quantity -> {unit system: (unit label, converter from SI)}
-DISPLAY_UNITS: dict[str, dict[str, tuple[str, object]]] = {
-    "time": {"si": ("s", _identity), "us": ("s", _identity)},
-    "altitude": {"si": ("m", _identity), "us": ("ft", m_to_ft)},
-    "distance": {"si": ("km", lambda x: x / 1000.0), "us": ("nmi", m_to_nmi)},
-    "speed": {"si": ("m/s", _identity), "us": ("kt", m_s_to_kt)},
-    "mass": {"si": ("kg", _identity), "us": ("lb", kg_to_lb)},
-    "rate": {"si": ("m/s", _identity), "us": ("ft/min", _per_min(m_to_ft))},
-    "angle": {"si": ("rad", _identity), "us": ("deg", np.degrees)},
-    "pressure": {"si": ("Pa", _identity), "us": ("psf", lambda x: x / 47.88025898033584)},
-    "none": {"si": ("-", _identity), "us": ("-", _identity)},
-}
+# units for display (the table is climbopt.units.DISPLAY_UNITS)
 
 #: Kind of quantity of each per-point column (see :data:`climbopt.results.COLUMNS`).
 COLUMN_KINDS: dict[str, str] = {
@@ -73,20 +55,37 @@ COLUMN_KINDS: dict[str, str] = {
 
 
 def check_units(units: str) -> None:
-    if units not in UNIT_SYSTEMS:
-        raise ValueError(f"units must be one of {UNIT_SYSTEMS}, got {units!r}")
+    """Raise ``ValueError`` unless ``units`` is a unit system (:data:`UNIT_SYSTEMS`)."""
+    _units.check_unit_system(units)
+
+
+def unit_label(kind: str, units: str) -> str:
+    """Display unit text of quantity ``kind`` in ``units``, "-" for a plain number."""
+    return _units.display_unit(kind, units) or "-"
 
 
 def to_display(kind: str, value_si, units: str):
-    """Convert an SI value of quantity ``kind`` to the display unit of ``units``.
+    """Convert an SI value (float or array) of quantity ``kind`` to the display unit of
+    ``units`` (:data:`climbopt.units.DISPLAY_UNITS`).
 
-    Returns ``(value, unit_label)``. ``None`` stays ``None``.
+    Returns ``(value, unit_label)``; a plain number's label is "-". ``None`` stays ``None``.
     """
-    check_units(units)
-    label, fn = DISPLAY_UNITS[kind][units]
+    unit = _units.display_unit(kind, units)
     if value_si is None:
-        return None, label
-    return fn(value_si), label
+        return None, unit or "-"
+    return _units.from_si(value_si, unit), unit or "-"
+
+
+def rounded(kind: str, value_si, units: str):
+    """An SI value in the display unit of ``units``, rounded to the decimals stated for that
+    unit (:data:`climbopt.units.UNIT_DIGITS`); None stays None."""
+    value, unit = to_display(kind, value_si, units)
+    return _units.round_display(value, "" if unit == "-" else unit)
+
+
+def _unit_slug(unit: str) -> str:
+    """``ft/min`` -> ``ft_per_min``, ``lbf/ft^2`` -> ``lbf_per_ft2``, ``km/h`` -> ``km_per_h``."""
+    return unit.replace("/", "_per_").replace("^", "")
 
 
 def column_header(key: str, units: str) -> str:
@@ -96,14 +95,12 @@ def column_header(key: str, units: str) -> str:
     if units == "si":
         return key
     stem = key
-    for suffix in ("_m_s", "_rad", "_kg", "_m", "_s"):
+    for suffix in ("_m_s", "_rad", "_kg", "_pa", "_m", "_s"):
         if key.endswith(suffix):
             stem = key[: -len(suffix)]
             break
-    label = DISPLAY_UNITS[COLUMN_KINDS[key]][units][0]
-    if label == "-":
-        return stem
-    return f"{stem}_{label.replace('/', '_per_')}"
+    label = _units.display_unit(COLUMN_KINDS[key], units)
+    return f"{stem}_{_unit_slug(label)}" if label else stem
 
 
 # ------------------------------------------------------------------------------------------
@@ -168,48 +165,82 @@ def _fmt(value, digits: int = 1) -> str:
 
 
 def comparison_columns(units: str) -> list[tuple[str, str]]:
-    """``(record key, header)`` pairs of the comparison table/CSV in ``units``."""
-    m = DISPLAY_UNITS["mass"][units][0]
-    d = DISPLAY_UNITS["distance"][units][0]
+    """``(record key, header)`` pairs of the engineering figures of the comparison in
+    ``units``: result, time (s and min:s), fuel, ground distance, final mass, and the
+    differences to the best ranked time and fuel."""
+    m = unit_label("mass", units)
+    d = unit_label("distance", units)
     return [
-        ("label", "result"), ("time_s", "time [s]"),
+        ("label", "result"), ("time_s", "time [s]"), ("time_min_s", "time [min:s]"),
         ("fuel_kg", f"fuel [{m}]"), ("distance_m", f"distance [{d}]"),
         ("final_mass_kg", f"final mass [{m}]"), ("time_diff_pct", "time vs best [%]"),
-        ("fuel_diff_pct", "fuel vs best [%]"), ("converged", "converged"),
-        ("iterations", "iter."), ("wall_s", "wall [s]"),
-        ("verification_miss", "re-sim miss [%]"),
+        ("fuel_diff_pct", "fuel vs best [%]"),
     ]
+
+
+#: ``(record key, header)`` pairs of the solver diagnostics of the comparison.
+DIAGNOSTIC_COLUMNS: list[tuple[str, str]] = [
+    ("label", "result"), ("converged", "converged"), ("iterations", "iterations"),
+    ("wall_s", "wall [s]"), ("verification_miss", "re-sim miss [%]"),
+]
+
+
+def all_columns(units: str) -> list[tuple[str, str]]:
+    """Engineering figures, then the solver diagnostics (the columns of ``comparison.csv``)."""
+    return comparison_columns(units) + DIAGNOSTIC_COLUMNS[1:]
 
 
 _KINDS = {"time_s": "time", "fuel_kg": "mass", "distance_m": "distance", "final_mass_kg": "mass"}
 
 
 def display_record(rec: dict, units: str) -> dict:
-    """The comparison record's numbers in display units, keyed by the headers of
-    :func:`comparison_columns` (numbers stay numbers; ``verification_miss`` in %)."""
+    """The comparison record in display units, keyed by the headers of :func:`all_columns`:
+    numbers rounded to the stated decimals (:data:`climbopt.units.UNIT_DIGITS`; percentages
+    to 0.01, the re-simulation miss to three significant digits, in %), the time also as
+    min:s text."""
     out = {}
-    for key, header in comparison_columns(units):
+    for key, header in all_columns(units):
         value = rec.get(key)
         if key in _KINDS:
-            value = to_display(_KINDS[key], value, units)[0]
+            value = rounded(_KINDS[key], value, units)
+        elif key == "time_min_s":
+            value = _units.format_min_s(rec.get("time_s")) if rec.get("time_s") is not None \
+                else None
+        elif key in ("time_diff_pct", "fuel_diff_pct"):
+            value = _units.round_display(value, "%")
+        elif key == "wall_s":
+            value = None if value is None else round(float(value), 2)
         elif key == "verification_miss" and value is not None:
-            value = 100.0 * value
+            value = float(f"{100.0 * value:.3g}")
         out[header] = value
     return out
 
 
-def format_table(records: list[dict], units: str = "si") -> str:
-    """The comparison table as aligned plain text, with a legend line and the caution."""
-    check_units(units)
-    cols = comparison_columns(units)
-    lines = [[h for _, h in cols]]
+def text_table(header: list[str], rows: list[list[str]], left: int = 1) -> list[str]:
+    """Aligned plain-text table: the first ``left`` columns left-aligned, the rest right-aligned,
+    a rule under the header."""
+    widths = [max(len(r[i]) for r in [header, *rows]) for i in range(len(header))]
+    out = []
+    for j, r in enumerate([header, *rows]):
+        out.append("  ".join(c.ljust(widths[i]) if i < left else c.rjust(widths[i])
+                             for i, c in enumerate(r)).rstrip())
+        if j == 0:
+            out.append("  ".join("-" * w for w in widths))
+    return out
+
+
+def comparison_cells(records: list[dict], units: str, columns) -> tuple[list[str], list[list]]:
+    """Header and display texts of the comparison (``columns``: :func:`comparison_columns` or
+    :data:`DIAGNOSTIC_COLUMNS`): "best", "+0.3" or "not ranked" for the differences, "yes" /
+    "NO" for convergence, "FAILED" beside a failed re-simulation check."""
+    rows = []
     for rec in records:
         disp = display_record(rec, units)
         row = []
-        for key, header in cols:
+        for key, header in columns:
             v = disp[header]
-            if key == "label":
-                row.append(str(v))
+            if key in ("label", "time_min_s"):
+                row.append(str(v) if v is not None else "-")
             elif key == "converged":
                 row.append("yes" if v else "NO")
             elif key == "iterations":
@@ -225,16 +256,17 @@ def format_table(records: list[dict], units: str = "si") -> str:
                 row.append(_fmt(v, 3) + flag)
             elif key == "wall_s":
                 row.append(_fmt(v, 2))
-            else:
+            elif key == "distance_m":
                 row.append(_fmt(v, 1))
-        lines.append(row)
-    widths = [max(len(r[i]) for r in lines) for i in range(len(cols))]
+            else:
+                row.append(_fmt(v, 0 if key in ("fuel_kg", "final_mass_kg") else 1))
+        rows.append(row)
+    return [h for _, h in columns], rows
+
+
+def comparison_legend(records: list[dict]) -> list[str]:
+    """What NO, FAILED and "not ranked" mean, as far as the records use them."""
     text = []
-    for j, r in enumerate(lines):
-        cells = [c.ljust(widths[i]) if i < 1 else c.rjust(widths[i]) for i, c in enumerate(r)]
-        text.append("  ".join(cells).rstrip())
-        if j == 0:
-            text.append("  ".join("-" * w for w in widths))
     if any(not rec["converged"] for rec in records):
         text.append("NO = not converged: shown for information, never ranked as optimal.")
     if any(not (rec.get("verification") or {}).get("ok", True) for rec in records):
@@ -243,7 +275,19 @@ def format_table(records: list[dict], units: str = "si") -> str:
     for rec in records:
         if not rec["ranked"] and rec["issues"]:
             text.append(f"not ranked: {rec['label']}: {'; '.join(rec['issues'])}")
-    return "\n".join(text)
+    return text
+
+
+def format_table(records: list[dict], units: str = "si") -> str:
+    """The comparison as aligned plain text: the engineering figures (time, fuel, distance,
+    final mass, differences to the best), then the solver diagnostics in a small table of their
+    own, then what NO, FAILED and "not ranked" mean."""
+    check_units(units)
+    header, rows = comparison_cells(records, units, comparison_columns(units))
+    text = text_table(header, rows)
+    header, rows = comparison_cells(records, units, DIAGNOSTIC_COLUMNS)
+    text += ["", "solver diagnostics:"] + text_table(header, rows)
+    return "\n".join(text + comparison_legend(records))
 
 
 # ------------------------------------------------------------------------------------------
@@ -260,9 +304,46 @@ def result_stem(method: str, objective: str, name: str = "") -> str:
     return f"{method}_{objective}".replace(" ", "-")
 
 
-def header_lines(scenario_name: str, units: str, what: str) -> list[str]:
-    return [f"# climbopt {__version__}: {what}; scenario: {scenario_name}; units: {units}",
-            f"# caution: {CAUTION}"]
+def units_words(units: str) -> str:
+    """``"us (ft, kt, lb, nmi, ft/min)"``: a unit system with its main units."""
+    main = [_units.display_unit(k, units) for k in ("altitude", "speed", "mass", "distance",
+                                                     "rate")]
+    return f"{units} ({', '.join(dict.fromkeys(main))})"
+
+
+def header_lines(scenario_name: str, units: str, what: str, conditions=None) -> list[str]:
+    """Comment lines at the top of every CSV: what it is, the scenario, the units, the
+    conditions (:func:`format_conditions`, when given), the rounding and the caution."""
+    out = [f"# climbopt {__version__}: {what}; scenario: {scenario_name}; units: "
+           f"{units_words(units)}"]
+    if conditions is not None:
+        out.append(f"# {format_conditions(conditions, units)}")
+    out += ["# numbers rounded per quantity (see the docs: CSV rounding)", f"# caution: {CAUTION}"]
+    return out
+
+
+def format_conditions(c, units: str) -> str:
+    """The conditions a result was computed for, one line: mass, temperature deviation from
+    ISA, rating, climb profile, target altitude and the limits (``c``:
+    :class:`climbopt.schedule.Conditions`)."""
+    def q(kind, v):
+        value, unit = to_display(kind, v, units)
+        return f"{value:,.0f} {unit}"
+
+    limits = []
+    if c.max_cas_m_s is not None:
+        limits.append(f"CAS {q('airspeed', c.max_cas_m_s)}")
+    if c.max_mach is not None:
+        limits.append(f"Mach {c.max_mach:.2f}")
+    if c.cas_restriction is not None:
+        limits.append(f"{q('airspeed', c.cas_restriction[0])} below "
+                      f"{q('altitude', c.cas_restriction[1])}")
+    if c.max_altitude_m is not None:
+        limits.append(f"altitude {q('altitude', c.min_altitude_m or 0.0)} to "
+                      f"{q('altitude', c.max_altitude_m)}")
+    return (f"conditions: mass {q('mass', c.mass_kg)}, ISA {c.temperature_offset_k:+g} K, "
+            f"rating {c.rating}, {c.profile} climb profile, target altitude "
+            f"{q('altitude', c.target_altitude_m)}; limits: {', '.join(limits) or 'none'}")
 
 
 def read_csv(path) -> tuple[list[str], list[list[str]]]:
@@ -296,28 +377,77 @@ def cell(v) -> str:
 
 
 def write_trajectory_csv(path, trajectory: Trajectory, units: str = "si",
-                         scenario_name: str = "") -> None:
-    """Write the full per-point table of one trajectory (column order of :data:`COLUMNS`)."""
+                         scenario_name: str = "", conditions=None) -> None:
+    """Write the full per-point table of one trajectory (column order of :data:`COLUMNS`),
+    each column rounded to the decimals of its display unit
+    (:data:`climbopt.units.UNIT_DIGITS`)."""
     check_units(units)
     header = [column_header(k, units) for k in COLUMNS]
-    conv = [to_display(COLUMN_KINDS[k], trajectory.table[k], units)[0] for k in COLUMNS]
+    conv = []
+    for k in COLUMNS:
+        values, unit = to_display(COLUMN_KINDS[k], np.asarray(trajectory.table[k]), units)
+        unit = "" if unit == "-" else unit
+        conv.append([cell(_units.round_display(float(v), unit)) for v in values])
     label = f"{trajectory.method}, minimum {trajectory.objective}"
     if not trajectory.converged:
         label += " (NOT CONVERGED: not an optimum)"
-    rows = ([cell(float(col[i])) for col in conv] for i in range(len(conv[0])))
-    write_csv(Path(path), header_lines(scenario_name, units, label), header, rows)
+    rows = ([col[i] for col in conv] for i in range(len(conv[0])))
+    write_csv(Path(path), header_lines(scenario_name, units, label, conditions), header, rows)
 
 
 def write_comparison_csv(path, records: list[dict], units: str = "si",
-                         scenario_name: str = "") -> None:
-    """Write the comparison table as CSV in ``units``."""
-    cols = comparison_columns(units)
+                         scenario_name: str = "", conditions=None) -> None:
+    """Write the comparison as CSV in ``units``: engineering figures, then the solver
+    diagnostics (:func:`all_columns`), rounded as :func:`display_record` says."""
+    cols = all_columns(units)
     rows = []
     for rec in records:
         disp = display_record(rec, units)
         rows.append([cell(disp[h]) for _, h in cols])
-    write_csv(Path(path), header_lines(scenario_name, units, "comparison"),
-               [h for _, h in cols], rows)
+    write_csv(Path(path), header_lines(scenario_name, units, "comparison", conditions),
+              [h for _, h in cols], rows)
+
+
+def flown_schedule_records(results, schedule_lines: dict, units: str = "si") -> list[dict]:
+    """One record per flown schedule (the best schedule per objective, the scenario's own):
+    ``label``, ``kind`` ("best" or "scenario"), ``what`` (the crew schedule's one-line summary
+    from ``schedule_lines``, result stem -> text, or why it cannot be flown), ``against`` (the
+    reference it is measured against), ``time_diff_s`` [s], ``time_diff_pct``, ``fuel_diff``
+    (display units), ``fuel_diff_pct``, ``penalty_pct`` (best schedules: in their objective),
+    ``ranked`` and ``issues``. Differences are None where there is nothing to compare with."""
+    ranked = [r for r in results if isinstance(r, Trajectory) and r.ranked]
+    best_t = min((r.time_s for r in ranked), default=None)
+    best_f = min((r.fuel_kg for r in ranked), default=None)
+    out = []
+    for r in results:
+        if r.method not in (Method.SCHEDULE, Method.BEST_SCHEDULE):
+            continue
+        rec = {"label": r.label, "kind": "best" if r.method == Method.BEST_SCHEDULE
+               else "scenario", "against": None, "time_diff_s": None, "time_diff_pct": None,
+               "fuel_diff": None, "fuel_diff_pct": None, "penalty_pct": None,
+               "ranked": bool(r.ranked), "objective": str(r.objective)}
+        if not isinstance(r, Trajectory):
+            rec.update(what=f"cannot be flown: {r.message}", issues=[r.message])
+            out.append(rec)
+            continue
+        what = schedule_lines.get(result_stem(r.method, r.objective, r.name), r.name)
+        if what.startswith(f"schedule {r.name}: ") and r.method == Method.SCHEDULE:
+            what = what[len(f"schedule {r.name}: "):]
+        rec.update(what=what, issues=list(r.issues))
+        c = r.reference
+        if c is not None:
+            rec.update(against=c.reference, time_diff_s=c.time_difference_s,
+                       time_diff_pct=_pct(r.time_s, c.time_s),
+                       fuel_diff=to_display("mass", c.fuel_difference_kg, units)[0],
+                       fuel_diff_pct=_pct(r.fuel_kg, c.fuel_kg),
+                       penalty_pct=100.0 * c.objective_difference_relative)
+        elif best_t is not None:
+            rec.update(against="best of this run", time_diff_s=r.time_s - best_t,
+                       time_diff_pct=_pct(r.time_s, best_t),
+                       fuel_diff=to_display("mass", r.fuel_kg - best_f, units)[0],
+                       fuel_diff_pct=_pct(r.fuel_kg, best_f))
+        out.append(rec)
+    return out
 
 
 def format_flown_schedules(results, schedule_lines: dict, units: str = "si") -> str:
@@ -325,33 +455,20 @@ def format_flown_schedules(results, schedule_lines: dict, units: str = "si") -> 
     flown (``schedule_lines``: result stem -> the crew schedule's one-line summary) and its cost
     against the reference optimum of the same objective (best schedules) or against the best
     ranked time and fuel of the run (the scenario's schedules)."""
-    ranked = [r for r in results if isinstance(r, Trajectory) and r.ranked]
-    best_t = min((r.time_s for r in ranked), default=None)
-    best_f = min((r.fuel_kg for r in ranked), default=None)
-    m_u = DISPLAY_UNITS["mass"][units][0]
+    m_u = unit_label("mass", units)
     lines = []
-    for r in results:
-        if r.method not in (Method.SCHEDULE, Method.BEST_SCHEDULE):
-            continue
-        if not isinstance(r, Trajectory):
-            lines.append(f"{r.label}: cannot be flown: {r.message}")
-            continue
-        what = schedule_lines.get(result_stem(r.method, r.objective, r.name), r.name)
-        c = r.reference
-        if c is not None:
-            cost = (f"against the {c.reference}: {c.time_difference_s:+,.1f} s, "
-                    f"{to_display('mass', c.fuel_difference_kg, units)[0]:+,.1f} {m_u} "
-                    f"(penalty {100 * c.objective_difference_relative:+.2f} % in "
-                    f"{c.objective})")
-        elif best_t is not None:
-            cost = (f"against the best of this run: {r.time_s - best_t:+,.1f} s "
-                    f"({_pct(r.time_s, best_t):+.2f} %), "
-                    f"{to_display('mass', r.fuel_kg - best_f, units)[0]:+,.1f} {m_u} "
-                    f"({_pct(r.fuel_kg, best_f):+.2f} %)")
+    for rec in flown_schedule_records(results, schedule_lines, units):
+        if rec["against"] is None:
+            cost = "" if rec["what"].startswith("cannot") else "; no ranked optimum to compare with"
         else:
-            cost = "no ranked optimum to compare with"
-        flag = "" if r.ranked else f" [not ranked: {'; '.join(r.issues)}]"
-        lines.append(f"{r.label}: {what}; {cost}{flag}")
+            cost = (f"; against the {rec['against']}: {rec['time_diff_s']:+,.1f} s "
+                    f"({rec['time_diff_pct']:+.2f} %), {rec['fuel_diff']:+,.1f} {m_u} "
+                    f"({rec['fuel_diff_pct']:+.2f} %)")
+            if rec["penalty_pct"] is not None:
+                cost += f", penalty {rec['penalty_pct']:+.2f} % in {rec['objective']}"
+        flag = "" if rec["ranked"] or not rec["issues"] else \
+            f" [not ranked: {'; '.join(rec['issues'])}]"
+        lines.append(f"{rec['label']}: {rec['what']}{cost}{flag}")
     return "\n".join(lines)
 
 
@@ -364,28 +481,43 @@ def procedure_cost_records(costs) -> list[dict]:
              "time_cost_s": c.time_s, "fuel_cost_kg": c.fuel_kg} for c in costs]
 
 
+def procedure_cost_rows(costs, units: str = "si") -> tuple[list[str], list[list[str]]]:
+    """Header and display texts of what the procedure profile costs against the free optimum,
+    one row per objective (energy-state solutions)."""
+    m_u = unit_label("mass", units)
+    header = ["objective", "free profile", "procedure profile", "extra time", "extra fuel"]
+    rows = []
+    for c in costs:
+        f_free, f_proc, f_diff = (to_display("mass", x, units)[0]
+                                  for x in (c.free.fuel_kg, c.procedure.fuel_kg, c.fuel_kg))
+        rows.append([
+            f"minimum {c.objective}",
+            f"{_units.format_min_s(c.free.time_s)} ({c.free.time_s:,.1f} s), {f_free:,.0f} {m_u}",
+            f"{_units.format_min_s(c.procedure.time_s)} ({c.procedure.time_s:,.1f} s), "
+            f"{f_proc:,.0f} {m_u}",
+            f"{c.time_s:+,.1f} s ({_pct(c.procedure.time_s, c.free.time_s):+.2f} %)",
+            f"{f_diff:+,.1f} {m_u} ({_pct(c.procedure.fuel_kg, c.free.fuel_kg):+.2f} %)"])
+    return header, rows
+
+
 def format_procedure_costs(costs, units: str = "si") -> str:
     """What the procedure profile costs, one line per objective (empty without costs)."""
     lines = []
-    for c in costs:
-        m_u = DISPLAY_UNITS["mass"][units][0]
-        f_free, f_proc, f_diff = (to_display("mass", x, units)[0]
-                                  for x in (c.free.fuel_kg, c.procedure.fuel_kg, c.fuel_kg))
-        lines.append(
-            f"procedure profile, minimum {c.objective} (energy-state): {c.procedure.time_s:,.1f} s "
-            f"and {f_proc:,.1f} {m_u} against {c.free.time_s:,.1f} s and {f_free:,.1f} {m_u} "
-            f"for the free profile (dives and overshoots allowed): the procedure costs "
-            f"{c.time_s:+,.1f} s ({_pct(c.procedure.time_s, c.free.time_s):+.2f} %) and "
-            f"{f_diff:+,.1f} {m_u} ({_pct(c.procedure.fuel_kg, c.free.fuel_kg):+.2f} %)")
+    for row in procedure_cost_rows(costs, units)[1]:
+        lines.append(f"procedure profile, {row[0]} (energy-state): {row[2]} against {row[1]} "
+                     f"for the free profile (dives and overshoots allowed): the procedure costs "
+                     f"{row[3]} and {row[4]}")
     return "\n".join(lines)
 
 
 def summary_document(records: list[dict], *, scenario_name: str, scenario_path: str,
                      units: str = "si", files: dict | None = None, extra: dict | None = None,
-                     exit_code: int = 0, errors=(), warnings=(), procedure_costs=()) -> dict:
+                     exit_code: int = 0, errors=(), warnings=(), procedure_costs=(),
+                     conditions=None) -> dict:
     """The ``summary.json`` document: SI keys per result (stable), display values in ``units``,
     files written per result, ``extra`` fields per result stem (e.g. its schedule), the errors
-    and warnings, what the procedure profile costs, and the caution."""
+    and warnings, what the procedure profile costs, the conditions (SI, from
+    :class:`climbopt.schedule.Conditions`, with their line in ``units``) and the caution."""
     check_units(units)
     files = files or {}
     extra = extra or {}
@@ -403,6 +535,8 @@ def summary_document(records: list[dict], *, scenario_name: str, scenario_path: 
         "units": units,
         "results": results,
         "procedure_cost": procedure_cost_records(procedure_costs),
+        "conditions": None if conditions is None else {
+            **dataclasses.asdict(conditions), "text": format_conditions(conditions, units)},
         "exit_code": int(exit_code),
         "errors": list(errors),
         "warnings": list(warnings),
@@ -473,30 +607,39 @@ def write_energy_map(folder, emap, units: str, scenario_name: str, scenario_path
     }
 
 
-def _write_map_csv(path, emap, units, scenario_name):
-    """One row per grid point: altitude, TAS, Mach, Ps, fuel flow, Ps / fuel flow, feasible."""
-    shape = emap.shape
-    alt, alt_u = to_display("altitude", np.broadcast_to(emap.altitude_m[:, None], shape), units)
-    tas, spd_u = to_display("speed", np.asarray(emap.tas_m_s), units)
-    ps, ps_u = to_display("rate", np.asarray(emap.fields.ps_m_s), units)
-    ff, m_u = to_display("mass", np.asarray(emap.fields.fuel_flow_kg_s), units)
-    fs = np.asarray(emap.fields.fuel_specific_energy_m_kg)
-    fs_u = "m/kg"
-    if units == "us":
-        from climbopt.units import lb_to_kg, m_to_ft
+def map_conditions_text(emap, units: str) -> str:
+    """The conditions of an energy map, one line: mass, load factor, rating, throttle,
+    temperature deviation from ISA."""
+    mass, m_u = to_display("mass", emap.mass_kg, units)
+    return (f"conditions: mass {mass:,.0f} {m_u}, load factor {emap.load_factor:g}, rating "
+            f"{emap.rating}, throttle {emap.throttle:g}, ISA {emap.temperature_offset_k:+g} K")
 
-        fs, fs_u = m_to_ft(fs) * lb_to_kg(1.0), "ft/lb"
-    header = [f"altitude [{alt_u}]", f"TAS [{spd_u}]", "Mach", f"Ps [{ps_u}]",
-              f"fuel flow [{m_u}/s]", f"Ps / fuel flow [{fs_u}]", "feasible"]
+
+def _write_map_csv(path, emap, units, scenario_name):
+    """One row per grid point: altitude, TAS, Mach, Ps, fuel flow, Ps / fuel flow, feasible;
+    each column rounded to the decimals of its unit (:data:`climbopt.units.UNIT_DIGITS`)."""
+    shape = emap.shape
+    cols, header, fmts = [], [], []
+    for kind, values, name in (
+            ("altitude", np.broadcast_to(emap.altitude_m[:, None], shape), "altitude"),
+            ("speed", np.asarray(emap.tas_m_s), "TAS"), ("none", np.asarray(emap.mach), "Mach"),
+            ("rate", np.asarray(emap.fields.ps_m_s), "Ps"),
+            ("mass_flow", np.asarray(emap.fields.fuel_flow_kg_s), "fuel flow"),
+            ("fuel_specific_energy", np.asarray(emap.fields.fuel_specific_energy_m_kg),
+             "Ps / fuel flow")):
+        disp, unit = to_display(kind, values, units)
+        unit = "" if unit == "-" else unit
+        cols.append(np.broadcast_to(disp, shape).ravel())
+        header.append(f"{name} [{unit}]" if unit else name)
+        fmts.append(f"%.{_units.UNIT_DIGITS.get(unit, 4)}f")
+    header.append("feasible")
     feas = np.broadcast_to(np.asarray(emap.feasible), shape)
-    cols = [np.broadcast_to(c, shape).ravel() for c in (alt, tas, emap.mach, ps, ff, fs)]
     table = np.column_stack(cols + [feas.ravel().astype(float)])
     buf = io.StringIO()
-    buf.write(f"# climbopt {__version__}: energy map; scenario: {scenario_name}; units: {units}; "
-              f"mass {emap.mass_kg:.1f} kg, load factor {emap.load_factor:g}, rating "
-              f"{emap.rating}\n# caution: {CAUTION}\n{','.join(header)}\n")
-    np.savetxt(buf, table, fmt=["%.1f", "%.2f", "%.4f", "%.3f", "%.5f", "%.4f", "%d"],
-               delimiter=",")
+    lines = header_lines(scenario_name, units, "energy map")
+    lines.insert(1, f"# {map_conditions_text(emap, units)}")
+    buf.write("\n".join(lines) + f"\n{','.join(header)}\n")
+    np.savetxt(buf, table, fmt=fmts + ["%d"], delimiter=",")
     Path(path).write_text(buf.getvalue().replace(",1\n", ",true\n").replace(",0\n", ",false\n"),
                           encoding="utf-8")
 

@@ -17,8 +17,8 @@ the optimum holds more nearly constant around that altitude.
 
 Everything is SI inside; :func:`schedule_records`, :func:`write_schedule_csv`,
 :func:`format_schedule` and :func:`schedule_summary` convert to the display units of
-:mod:`climbopt.report` (ft, kt, ft/min, lb, nmi for ``"us"``), speeds as flown: whole knots
-(0.1 m/s in SI), Mach to 0.01.
+:data:`climbopt.units.DISPLAY_UNITS` (ft, kt, ft/min, lb, nmi for ``"us"``), speeds as flown:
+whole knots (whole km/h in SI), Mach to 0.01; times in seconds and min:s.
 """
 
 from __future__ import annotations
@@ -39,12 +39,12 @@ STEP_US_M = ft_to_m(2000.0)
 STEP_SI_M = 500.0
 
 def default_step_m(units: str) -> float:
-    """Schedule row spacing for a unit system: 2,000 ft for ``"us"``, 500 m for ``"si"`` [m]."""
-    if units == "us":
-        return STEP_US_M
-    if units == "si":
-        return STEP_SI_M
-    raise ValueError(f"units must be 'si' or 'us', got {units!r}")
+    """Schedule row spacing for a unit system: 500 m for ``"si"``, 2,000 ft for the others
+    (altitudes in feet) [m]."""
+    from climbopt.units import check_unit_system
+
+    check_unit_system(units)
+    return STEP_SI_M if units == "si" else STEP_US_M
 
 
 def crossover_altitude_m(cas_m_s: float, mach: float) -> float:
@@ -345,11 +345,11 @@ def _units(units: str):
 
 
 def _speed_text(report, units: str, cas_m_s, mach, fly: str) -> str:
-    """A speed to fly: whole knots (0.1 m/s) for CAS, Mach to 0.01."""
+    """A speed to fly: whole knots or km/h for CAS, Mach to 0.01."""
     if fly == "Mach" and mach is not None:
         return f"M {mach:.2f}"
-    value, unit = report.to_display("speed", cas_m_s, units)
-    return f"{value:.0f} {unit}" if units == "us" else f"{value:.1f} {unit}"
+    value, unit = report.to_display("airspeed", cas_m_s, units)
+    return f"{value:.0f} {unit}"
 
 
 def _instruction(report, units: str, r: ScheduleRow, flown: bool) -> str:
@@ -369,29 +369,30 @@ def _instruction(report, units: str, r: ScheduleRow, flown: bool) -> str:
 
 
 def _min_s(seconds: float) -> str:
-    m, s = divmod(int(round(seconds)), 60)
-    return f"{m}:{s:02d}"
+    from climbopt.units import format_min_s
+
+    return format_min_s(seconds)
 
 
 def schedule_records(schedule: ClimbSchedule, units: str = "si") -> tuple[list[str], list[list]]:
     """Header and rows of a climb schedule in ``units``: altitude, what to fly, CAS (whole
-    knots or m/s), Mach (0.01), TAS, rate of climb (ft/min or m/s), cumulative time in s and
-    min:s, fuel, ground distance, point."""
+    knots or km/h), Mach (0.01), TAS, rate of climb (ft/min, or m/s to 0.1), cumulative time in
+    s and min:s, fuel, ground distance, point."""
     report = _units(units)
-    u = {k: report.DISPLAY_UNITS[k][units][0] for k in ("altitude", "speed", "mass", "distance",
-                                                           "rate")}
-    header = [f"altitude [{u['altitude']}]", "fly", f"CAS [{u['speed']}]", "Mach",
-              f"TAS [{u['speed']}]", f"rate of climb [{u['rate']}]", "time [s]", "time [min:s]",
+    u = {k: report.unit_label(k, units) for k in ("altitude", "airspeed", "mass", "distance",
+                                                  "rate")}
+    header = [f"altitude [{u['altitude']}]", "fly", f"CAS [{u['airspeed']}]", "Mach",
+              f"TAS [{u['airspeed']}]", f"rate of climb [{u['rate']}]", "time [s]", "time [min:s]",
               f"fuel [{u['mass']}]", f"distance [{u['distance']}]", "point"]
     rows = []
     for r in schedule.rows:
         def show(kind, value, digits):
             v = round(float(report.to_display(kind, value, units)[0]), digits)
             return int(v) if digits == 0 else v
-        fine = 0 if units == "us" else 1  # whole ft, kt, ft/min; m, 0.1 m/s
+        fine = 1 if u["rate"] == "m/s" else 0  # whole ft/min; 0.1 m/s
         rows.append([
             show("altitude", r.altitude_m, 0), _instruction(report, units, r, schedule.flown),
-            show("speed", r.cas_m_s, fine), round(r.mach, 2), show("speed", r.tas_m_s, fine),
+            show("airspeed", r.cas_m_s, 0), round(r.mach, 2), show("airspeed", r.tas_m_s, 0),
             show("rate", r.rate_of_climb_m_s, fine), round(r.time_s, 1),
             _min_s(r.time_s), show("mass", r.fuel_kg, 0), show("distance", r.distance_m, 1),
             r.point])
@@ -402,7 +403,7 @@ def schedule_summary(schedule: ClimbSchedule, units: str = "si") -> str:
     """One line: the schedule flown (holds and where each ends) or, for an optimum, that the
     rows give its own speeds; then the top of climb (altitude, time, fuel, distance)."""
     report = _units(units)
-    alt = report.DISPLAY_UNITS["altitude"][units][0]
+    alt = report.unit_label("altitude", units)
 
     def at(h):
         return f"{report.to_display('altitude', h, units)[0]:,.0f} {alt}"
@@ -423,33 +424,14 @@ def schedule_summary(schedule: ClimbSchedule, units: str = "si") -> str:
 
 def conditions_text(schedule: ClimbSchedule, units: str = "si") -> str:
     """The conditions line of the header: mass, temperature deviation, rating, profile,
-    limits ("" without conditions)."""
-    c = schedule.conditions
-    if c is None:
+    limits ("" without conditions); see :func:`climbopt.report.format_conditions`."""
+    if schedule.conditions is None:
         return ""
-    report = _units(units)
-
-    def q(kind, v, fmt="{:,.0f}"):
-        value, unit = report.to_display(kind, v, units)
-        return f"{fmt.format(value)} {unit}"
-
-    limits = []
-    if c.max_cas_m_s is not None:
-        limits.append(f"CAS {q('speed', c.max_cas_m_s)}")
-    if c.max_mach is not None:
-        limits.append(f"Mach {c.max_mach:.2f}")
-    if c.cas_restriction is not None:
-        limits.append(f"{q('speed', c.cas_restriction[0])} below "
-                      f"{q('altitude', c.cas_restriction[1])}")
-    if c.max_altitude_m is not None:
-        limits.append(f"altitude {q('altitude', c.min_altitude_m or 0.0)} to "
-                      f"{q('altitude', c.max_altitude_m)}")
-    return (f"conditions: mass {q('mass', c.mass_kg)}, ISA {c.temperature_offset_k:+g} K, "
-            f"rating {c.rating}, {c.profile} climb profile, target altitude "
-            f"{q('altitude', c.target_altitude_m)}; limits: {', '.join(limits) or 'none'}")
+    return _units(units).format_conditions(schedule.conditions, units)
 
 
-def _title(schedule: ClimbSchedule) -> str:
+def schedule_title(schedule: ClimbSchedule) -> str:
+    """The heading of a schedule: its name and kind (best schedule, flown schedule, optimum)."""
     if schedule.method == Method.BEST_SCHEDULE:
         return f"climb schedule {schedule.name} (best schedule, minimum {schedule.objective})"
     if schedule.flown:
@@ -463,7 +445,7 @@ def write_schedule_csv(path, schedule: ClimbSchedule, units: str = "si",
     conditions, the notes and the caution."""
     report = _units(units)
     header, rows = schedule_records(schedule, units)
-    comments = report.header_lines(scenario_name, units, _title(schedule))
+    comments = report.header_lines(scenario_name, units, schedule_title(schedule))
     comments.append(f"# {schedule_summary(schedule, units)}")
     if schedule.conditions is not None:
         comments.append(f"# {conditions_text(schedule, units)}")
@@ -478,7 +460,7 @@ def format_schedule(schedule: ClimbSchedule, units: str = "si") -> str:
     header, rows = schedule_records(schedule, units)
     cells = [header] + [[report.cell(v) for v in r] for r in rows]
     widths = [max(len(r[i]) for r in cells) for i in range(len(header))]
-    out = [_title(schedule), schedule_summary(schedule, units)]
+    out = [schedule_title(schedule), schedule_summary(schedule, units)]
     if schedule.conditions is not None:
         out.append(conditions_text(schedule, units))
     for j, r in enumerate(cells):

@@ -107,30 +107,120 @@ DIMENSIONS: dict[str, Dimension] = {
     )
 }
 
-#: Display unit of each kind of quantity in the two unit systems of printed output (kind ->
-#: {"si": unit text, "us": unit text}); the one table for every output module. Kinds are the
-#: :data:`DIMENSIONS` names plus "altitude", "distance" (long ground distances), "rate" (rate
-#: of climb, specific excess power) and "none" (plain numbers).
+#: The unit systems of printed and written output: ``"si"`` (m, km, kg, m/s; airspeeds to fly
+#: in km/h), ``"us"`` (ft, nmi, lb, kt, ft/min), ``"crew"`` (ft, nmi, kt, ft/min, masses in kg)
+#: and ``"crew-lb"`` (the crew set with masses in lb). The command line offers ``crew`` and
+#: picks kg or lb from the unit the scenario file wrote its mass in (:func:`unit_system_for`).
+UNIT_SYSTEMS = ("si", "us", "crew", "crew-lb")
+
+#: Display unit of each kind of quantity in each unit system of printed output (kind ->
+#: {system: unit text}); the one table for every output module. Kinds are the
+#: :data:`DIMENSIONS` names plus "altitude", "distance" (long ground distances), "airspeed"
+#: (a speed to fly, as crews read it), "rate" (rate of climb, specific excess power),
+#: "fuel_specific_energy" (Ps per unit fuel flow) and "none" (plain numbers).
 DISPLAY_UNITS: dict[str, dict[str, str]] = {
-    "length": {"si": "m", "us": "ft"},
-    "altitude": {"si": "m", "us": "ft"},
-    "distance": {"si": "km", "us": "nmi"},
-    "area": {"si": "m^2", "us": "ft^2"},
-    "mass": {"si": "kg", "us": "lb"},
-    "time": {"si": "s", "us": "s"},
-    "speed": {"si": "m/s", "us": "kt"},
-    "rate": {"si": "m/s", "us": "ft/min"},
-    "force": {"si": "N", "us": "lbf"},
-    "power": {"si": "W", "us": "hp"},
-    "pressure": {"si": "Pa", "us": "lbf/ft^2"},
-    "mass_flow": {"si": "kg/s", "us": "lb/h"},
-    "tsfc": {"si": "kg/N/s", "us": "lb/lbf/h"},
-    "psfc": {"si": "kg/W/s", "us": "lb/hp/h"},
-    "temperature_difference": {"si": "K", "us": "K"},
-    "angle": {"si": "rad", "us": "deg"},
-    "per_angle": {"si": "1/rad", "us": "1/rad"},
-    "none": {"si": "", "us": ""},
+    kind: dict(zip(UNIT_SYSTEMS, row)) for kind, row in {
+        #                        si         us          crew        crew-lb
+        "length":              ("m",      "ft",       "ft",       "ft"),
+        "altitude":            ("m",      "ft",       "ft",       "ft"),
+        "distance":            ("km",     "nmi",      "nmi",      "nmi"),
+        "area":                ("m^2",    "ft^2",     "m^2",      "ft^2"),
+        "mass":                ("kg",     "lb",       "kg",       "lb"),
+        "time":                ("s",      "s",        "s",        "s"),
+        "speed":               ("m/s",    "kt",       "kt",       "kt"),
+        "airspeed":            ("km/h",   "kt",       "kt",       "kt"),
+        "rate":                ("m/s",    "ft/min",   "ft/min",   "ft/min"),
+        "force":               ("N",      "lbf",      "N",        "lbf"),
+        "power":               ("W",      "hp",       "W",        "hp"),
+        "pressure":            ("Pa",     "lbf/ft^2", "hPa",      "lbf/ft^2"),
+        "mass_flow":           ("kg/s",   "lb/h",     "kg/h",     "lb/h"),
+        "tsfc":                ("kg/N/s", "lb/lbf/h", "kg/N/h",   "lb/lbf/h"),
+        "psfc":                ("kg/W/s", "lb/hp/h",  "kg/kW/h",  "lb/hp/h"),
+        "temperature_difference": ("K",   "K",        "K",        "K"),
+        "angle":               ("rad",    "deg",      "deg",      "deg"),
+        "per_angle":           ("1/rad",  "1/rad",    "1/rad",    "1/rad"),
+        "fuel_specific_energy": ("m/kg",  "ft/lb",    "ft/kg",    "ft/lb"),
+        "none":                ("",       "",         "",         ""),
+    }.items()
 }
+
+#: Decimal places of each display unit in written tables (CSV) and printed figures, chosen
+#: for what the number means: 0.1 s of time, 0.1 m or 1 ft of altitude, 0.01 km or nmi of
+#: ground distance, 0.01 m/s or 0.1 kt of speed (whole kt and km/h for a speed to fly, see
+#: :data:`SPEED_TO_FLY_DIGITS`), 0.1 kg or lb of mass, 0.01 m/s or 1 ft/min of climb rate,
+#: 1e-5 rad or 0.001 deg of angle, 4 decimals for Mach number and other plain numbers.
+UNIT_DIGITS: dict[str, int] = {
+    "s": 1, "m": 1, "ft": 0, "km": 2, "nmi": 2, "m/s": 2, "kt": 1, "km/h": 1, "kg": 1, "lb": 1,
+    "ft/min": 0, "rad": 5, "deg": 3, "Pa": 0, "hPa": 2, "lbf/ft^2": 2, "K": 2, "kg/s": 4,
+    "kg/h": 1, "lb/h": 1, "m/kg": 2, "ft/kg": 1, "ft/lb": 1, "%": 2, "": 4,
+}
+
+#: Decimal places of a speed to fly in crew tables: whole knots and km/h, Mach to 0.01.
+SPEED_TO_FLY_DIGITS = {"kt": 0, "km/h": 0, "m/s": 1, "": 2}
+
+
+def check_unit_system(units: str) -> None:
+    """Raise ``ValueError`` unless ``units`` is one of :data:`UNIT_SYSTEMS`."""
+    if units not in UNIT_SYSTEMS:
+        raise ValueError(f"units must be one of {', '.join(UNIT_SYSTEMS)}, got {units!r}")
+
+
+def display_unit(kind: str, units: str) -> str:
+    """The unit text quantity ``kind`` is shown in for unit system ``units``."""
+    check_unit_system(units)
+    return DISPLAY_UNITS[kind][units]
+
+
+def round_display(value, unit: str):
+    """``value`` (already in ``unit``) rounded to the decimals of :data:`UNIT_DIGITS` (4 for an
+    unknown unit; an int for none); None stays None, NaN stays NaN. Python's ``round``
+    (correctly rounded, ties to even)."""
+    if value is None:
+        return None
+    digits = UNIT_DIGITS.get(unit, 4)
+    if isinstance(value, float) and not math.isfinite(value):
+        return value
+    return round(float(value)) if digits == 0 else round(float(value), digits)
+
+
+def format_min_s(seconds) -> str:
+    """A duration as minutes and seconds, ``"16:04"`` for 963.6 s (hours as minutes:
+    ``"75:00"``); "-" for None or NaN."""
+    if seconds is None or not math.isfinite(float(seconds)):
+        return "-"
+    sign = "-" if seconds < 0 else ""
+    m, s = divmod(int(round(abs(float(seconds)))), 60)
+    return f"{sign}{m}:{s:02d}"
+
+
+#: Unit texts that make a file "US": lengths and altitudes in feet (or flight levels) and
+#: speeds in knots.
+_US_LENGTHS = ("ft", "kft", "foot", "feet")
+_US_SPEEDS = ("kt", "kn", "knot", "knots", "kts")
+
+
+def unit_system_for(choice: str, display_units: dict[str, str]) -> str:
+    """The unit system of an output for the command-line choice ``choice``: ``"file"`` (the
+    default) gives ``"us"`` when the file wrote its mission altitudes in ft (or flight levels)
+    and its speeds in kt, else ``"si"``; ``"crew"`` gives ``"crew-lb"`` when the file wrote the
+    aircraft mass in lb, else ``"crew"``; ``"si"`` and ``"us"`` stay as they are.
+
+    ``display_units`` maps dotted field names to the unit the file used
+    (:attr:`climbopt.scenario.Scenario.display_units`).
+    """
+    if choice == "crew":
+        mass = display_units.get("aircraft.mass", "").strip()
+        return "crew-lb" if mass in ("lb", "lbs", "pound", "pounds", "klb") else "crew"
+    if choice != "file":
+        check_unit_system(choice)
+        return choice
+    lengths = [u for k, u in display_units.items()
+               if k.startswith(("mission.", "limits.")) and k.endswith(("altitude", ".below"))]
+    speeds = [u for k, u in display_units.items()
+              if k.startswith(("mission.", "limits.")) and k.endswith(("cas", "tas", "eas"))]
+    us = (bool(lengths) and all(u.strip() in _US_LENGTHS for u in lengths)
+          and all(u.strip() in _US_SPEEDS for u in speeds))
+    return "us" if us else "si"
 
 
 class UnitError(ValueError):
