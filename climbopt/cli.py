@@ -1,5 +1,6 @@
-"""Command line: the only place that prints or exits. Exit codes: 0 ok, 2 bad input,
-3 infeasible mission, 4 solver failure."""
+"""Command line: the only place that prints or exits. Exit codes: 0 ok, 1 sweep workers or
+cluster failed, 2 bad input, 3 infeasible mission, 4 solver failure, 130 interrupted (Ctrl-C),
+143 terminated (SIGTERM)."""
 
 from __future__ import annotations
 
@@ -581,8 +582,7 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
 @click.argument("plan_file", metavar="TESTPLAN")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Output folder [default: out/<test plan stem>]. Replaced as a whole.")
-@click.option("--units", type=click.Choice(["si", "us"]), default="si", show_default=True,
-              help="Units of printed and written tables and plots (us: ft, kt, lb, ft/min).")
+@click.option("--units", **UNITS_OPTION)
 @click.option("--schedule", is_flag=True,
               help="Also solve the predicted scenario's minimum-time climb on the measured "
                    "aircraft and compare it with the predicted one (bootstrap uncertainty).")
@@ -591,7 +591,8 @@ def reduce_command(plan_file, out_dir, units, schedule, quiet):
     """Reduce the flight-test data of TESTPLAN: standardised Ps points (standard weight,
     standard day, 1 g), the fitted Ps surface with its bootstrap uncertainty and the plots;
     with --schedule the measured aircraft's minimum-time climb against the predicted one.
-    Exit codes: 0 ok, 2 bad input, 3 infeasible mission."""
+    --units file (the default) follows the predicted scenario's file (SI without one).
+    Exit codes: 0 ok, 2 bad input, 3 infeasible mission, 130 interrupted, 143 terminated."""
     from climbopt import flighttest_fit as ftf
     from climbopt import flighttest_report as ftr
     from climbopt import report
@@ -605,6 +606,7 @@ def reduce_command(plan_file, out_dir, units, schedule, quiet):
         lines = [f"{plan_file}: {n} problem{'s' if n != 1 else ''} found:"]
         lines += [f"  {f}: {w}: {m}" if w else f"  {f}: {m}" for f, w, m in exc.problems]
         _fail("\n".join(lines), EXIT_BAD_INPUT)
+    units = _units_for(units, plan.predicted)
     if schedule and plan.predicted is None:
         _fail(f"{plan_file}: --schedule needs a [predicted] scenario in the test plan",
               EXIT_BAD_INPUT)

@@ -380,12 +380,16 @@ def write_trajectory_csv(path, trajectory: Trajectory, units: str = "si",
                          scenario_name: str = "", conditions=None) -> None:
     """Write the full per-point table of one trajectory (column order of :data:`COLUMNS`),
     each column rounded to the decimals of its display unit
-    (:data:`climbopt.units.UNIT_DIGITS`)."""
+    (:data:`climbopt.units.UNIT_DIGITS`). In SI every column is in the SI unit its header
+    names (the ground distance in m, not km)."""
     check_units(units)
     header = [column_header(k, units) for k in COLUMNS]
     conv = []
     for k in COLUMNS:
-        values, unit = to_display(COLUMN_KINDS[k], np.asarray(trajectory.table[k]), units)
+        if units == "si":  # the SI headers are the keys: every column in its SI unit
+            values, unit = np.asarray(trajectory.table[k]), COLUMNS[k]
+        else:
+            values, unit = to_display(COLUMN_KINDS[k], np.asarray(trajectory.table[k]), units)
         unit = "" if unit == "-" else unit
         conv.append([cell(_units.round_display(float(v), unit)) for v in values])
     label = f"{trajectory.method}, minimum {trajectory.objective}"
