@@ -216,15 +216,21 @@ def display_record(rec: dict, units: str) -> dict:
     return out
 
 
-def text_table(header: list[str], rows: list[list[str]], left: int = 1) -> list[str]:
-    """Aligned plain-text table: the first ``left`` columns left-aligned, the rest right-aligned,
-    a rule under the header."""
-    widths = [max(len(r[i]) for r in [header, *rows]) for i in range(len(header))]
+def text_table(header: list[str], rows: list[list[str]], left=1) -> list[str]:
+    """Aligned plain-text table: the first ``left`` columns (or the column indices in the set
+    ``left``) left-aligned, the rest right-aligned, a rule under the header. A header "name [unit]" takes two lines, the unit under the name,
+    so that the columns stay narrow."""
+    heads = [h.split(" [", 1) for h in header]
+    lines = [[h[0] for h in heads], [f"[{h[1]}" if len(h) > 1 else "" for h in heads]]
+    if not any(lines[1]):
+        lines = lines[:1]
+    widths = [max(len(r[i]) for r in [*lines, *rows]) for i in range(len(header))]
+    lefts = set(left) if isinstance(left, (set, frozenset, list, tuple)) else set(range(left))
     out = []
-    for j, r in enumerate([header, *rows]):
-        out.append("  ".join(c.ljust(widths[i]) if i < left else c.rjust(widths[i])
+    for j, r in enumerate([*lines, *rows]):
+        out.append("  ".join(c.ljust(widths[i]) if i in lefts else c.rjust(widths[i])
                              for i, c in enumerate(r)).rstrip())
-        if j == 0:
+        if j == len(lines) - 1:
             out.append("  ".join("-" * w for w in widths))
     return out
 

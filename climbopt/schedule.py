@@ -458,14 +458,10 @@ def format_schedule(schedule: ClimbSchedule, units: str = "si") -> str:
     """The climb schedule as aligned plain text (summary, conditions, table, notes)."""
     report = _units(units)
     header, rows = schedule_records(schedule, units)
-    cells = [header] + [[report.cell(v) for v in r] for r in rows]
-    widths = [max(len(r[i]) for r in cells) for i in range(len(header))]
     out = [schedule_title(schedule), schedule_summary(schedule, units)]
     if schedule.conditions is not None:
         out.append(conditions_text(schedule, units))
-    for j, r in enumerate(cells):
-        out.append("  ".join(c.rjust(widths[i]) for i, c in enumerate(r)).rstrip())
-        if j == 0:
-            out.append("  ".join("-" * w for w in widths))
+    out += report.text_table(header, [[report.cell(v) for v in r] for r in rows],
+                             left={1, len(header) - 1})
     out += [f"note: {n}" for n in schedule.notes]
     return "\n".join(out)

@@ -5,6 +5,7 @@ interrupted runs."""
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import numpy as np
@@ -98,7 +99,7 @@ def test_run_table_and_units_us(tmp_path):
     result = _run(["run", scenario, "--method", "energy", "--objective", "time",
                    "--units", "us", "--out", out])
     assert result.exit_code == 0, result.output
-    assert "fuel [lb]" in result.output and "distance [nmi]" in result.output
+    assert re.search(r"\n\s+\[s\]\s+\[min:s\]\s+\[lb\]\s+\[nmi\]\s+\[lb\]", result.output)
     assert "%|" not in result.output          # no progress bar when not on a terminal
     assert result.output.rstrip().endswith(f"Caution: {CAUTION}")
     doc = json.loads((out / "summary.json").read_text())

@@ -157,7 +157,7 @@ def test_units_default_follows_the_file(tmp_path):
                    "--out", tmp_path / "ft"])
     assert result.exit_code == 0, result.output
     assert "units us (ft, kt, lb, nmi, ft/min)" in result.output
-    assert "fuel [lb]" in result.output and "target altitude 20,000 ft" in result.output
+    assert " [lb] " in result.output and "target altitude 20,000 ft" in result.output
     header, _ = _csv(tmp_path / "ft" / "energy-state_time_schedule.csv")
     assert header[:3] == ["altitude [ft]", "fly", "CAS [kt]"]
     text = TURBOPROP.read_text()

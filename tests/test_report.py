@@ -62,7 +62,8 @@ def test_comparison_failed_run_without_trajectory():
     figures, diagnostics = [ln for ln in text.splitlines() if ln.startswith("collocation")]
     assert "not ranked" in figures and "NO" not in figures
     assert diagnostics.split()[3] == "NO" and diagnostics.split()[4] == "1"
-    assert "fuel [lb]" in text.splitlines()[0]
+    names, units_ = text.splitlines()[:2]           # units under the names
+    assert names.split()[3] == "fuel" and units_.split()[2] == "[lb]"
 
 
 def test_to_display_us_units_by_hand():
@@ -205,7 +206,7 @@ def test_verification_miss_in_table():
     assert rows[1]["ranked"] is False and rows[1]["fuel_diff_pct"] is None
     text = report.format_table(rows, "si")
     lines = text.splitlines()
-    diagnostics = lines[lines.index("solver diagnostics:") + 3:]
+    diagnostics = lines[lines.index("solver diagnostics:") + 4:]
     assert diagnostics[0].endswith("0.025")
     assert diagnostics[1].endswith("3.000 FAILED")
     assert "re-simulation" in text

@@ -171,4 +171,4 @@ def test_schedule_csv_us(tmp_path, transport, flown):
     d = header.index("distance [nmi]")
     assert float(rows[-1][d]) == pytest.approx(flown.distance_m / 1852.0, abs=0.05)
     si = format_schedule(s, "si")
-    assert "CAS [km/h]" in si and "463 km/h to 3,048 m" in si  # 128.6 m/s = 463 km/h
+    assert "[km/h]" in si and "463 km/h to 3,048 m" in si  # 128.6 m/s = 463 km/h
