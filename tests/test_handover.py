@@ -331,3 +331,23 @@ def test_notebook_example_runs(tmp_path):
     assert done.returncode == 0, done.stderr[-2000:]
     assert (tmp_path / "nb" / "report.html").is_file()
     assert "65 t:" in done.stdout and CAUTION in done.stdout
+
+
+def test_scenario_format_doc_shows_the_real_error_output(tmp_path):
+    """The example in docs/scenario-format.md, "Errors", is exactly what `climbopt check`
+    prints for a file with those three mistakes (on standard error, exit 2)."""
+    doc = (ROOT / "docs" / "scenario-format.md").read_text()
+    block = doc[doc.index("## Errors"):].split("```")[1].strip().splitlines()
+    text = TRANSPORT.read_text()
+    for old, new in (('mass = "70000 kg"', 'mass = "70000 kgg"'),
+                     ('[mission]\nrating = "climb"', '[mission]\nrating = "climbing"'),
+                     ("max_mach = 0.82", 'max_mach = "fast"')):
+        assert old in text
+        text = text.replace(old, new)
+    (tmp_path / "scenarios").mkdir()
+    (tmp_path / "scenarios" / "x.toml").write_text(text)
+    done = subprocess.run([sys.executable, "-c", "from climbopt.cli import main; main()",
+                           "check", "scenarios/x.toml"],
+                          cwd=tmp_path, capture_output=True, text=True, timeout=120)
+    assert done.returncode == 2 and done.stdout == ""
+    assert done.stderr.strip().splitlines() == block
