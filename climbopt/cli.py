@@ -165,6 +165,14 @@ def _units_for(choice: str, scenario) -> str:
     return unit_system_for(choice, getattr(scenario, "display_units", {}) or {})
 
 
+def _wrapped(text: str, width: int = 100) -> str:
+    """Each line of ``text`` wrapped at ``width`` characters, continuation lines indented."""
+    import textwrap
+
+    return "\n".join(textwrap.fill(line, width, subsequent_indent="    ", break_on_hyphens=False,
+                                    break_long_words=False) for line in text.splitlines())
+
+
 def _method(value: str) -> str:
     """``energy-state`` (the label every output uses) is the same as ``energy``."""
     return "energy" if value == "energy-state" else value
@@ -275,13 +283,13 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
         click.echo(report.dumps_summary(doc))
     else:
         click.echo(f"{scenario.name}")
-        click.echo(f"units {report.units_words(units)}; {doc['conditions']['text']}")
+        click.echo(_wrapped(f"units {report.units_words(units)}; {doc['conditions']['text']}"))
         click.echo("")
         click.echo(report.format_table(records, units))
         for block in doc["text"].values():
             if block:
                 click.echo("")
-                click.echo(block)
+                click.echo(_wrapped(block))
         if not quiet:
             click.echo(f"\nWrote {out}/: report.html, report.txt, summary.json, comparison.csv, "
                        f"schedules (*_schedule.csv), per-point tables, plots "

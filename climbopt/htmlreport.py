@@ -91,8 +91,8 @@ nav.toc a { color: var(--accent); text-decoration: none; }
   html { background: none; }
   main { max-width: none; margin: 0; padding: 0; box-shadow: none; }
   h2 { break-before: auto; }
-  section.figures figure { break-before: page; }
-  section.figures figure:first-of-type { break-before: auto; }
+  section.figures { break-before: page; }
+  table.keep, div.glance { break-inside: avoid; }
   a { color: inherit; text-decoration: none; }
   thead { display: table-header-group; }
   tr { break-inside: avoid; }
@@ -128,6 +128,7 @@ def table(header, rows, *, css: str = "", numeric=None, cell_class=None,
             cells.append(f"<td{attr}>{esc(c)}</td>")
         rc = row_class(i) if row_class else ""
         body.append(f"<tr{f' class={chr(34)}{rc}{chr(34)}' if rc else ''}>{''.join(cells)}</tr>")
+    css = " ".join(c for c in (css, "keep" if len(rows) <= 12 else "") if c)
     cls = f' class="{css}"' if css else ""
     return f"<table{cls}><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
