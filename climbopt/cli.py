@@ -167,10 +167,14 @@ def _units_for(choice: str, scenario) -> str:
 
 def _wrapped(text: str, width: int = 100) -> str:
     """Each line of ``text`` wrapped at ``width`` characters, continuation lines indented."""
+    import re
     import textwrap
 
-    return "\n".join(textwrap.fill(line, width, subsequent_indent="    ", break_on_hyphens=False,
-                                    break_long_words=False) for line in text.splitlines())
+    keep = re.compile(r"(?<=\bM) (?=\d)| (?=%)")  # "M 0.72" and "0.44 %" stay on one line
+    return "\n".join(
+        textwrap.fill(keep.sub("\u00a0", line), width, subsequent_indent="    ",
+                      break_on_hyphens=False, break_long_words=False).replace("\u00a0", " ")
+        for line in text.splitlines())
 
 
 def _method(value: str) -> str:

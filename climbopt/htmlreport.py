@@ -44,7 +44,7 @@ p { margin: 1mm 0 2mm; }
 .meta { color: var(--muted); font-size: 8.5pt; margin: 0; }
 .caution { border: 1pt solid var(--warn); border-left: 4pt solid var(--warn); background: #fbf4ec;
            padding: 2mm 3mm; margin: 3mm 0; font-size: 9pt; break-inside: avoid; }
-.glance { display: grid; grid-template-columns: repeat(4, 1fr); gap: 2.5mm; margin: 3mm 0; }
+.glance { display: grid; grid-template-columns: repeat(2, 1fr); gap: 2.5mm; margin: 3mm 0; }
 .glance div { border: .6pt solid var(--rule); border-top: 2.5pt solid var(--accent);
               padding: 2mm 3mm; break-inside: avoid; }
 .glance .big { font-size: 13pt; font-weight: bold; color: var(--accent); }
@@ -58,6 +58,7 @@ td.num, th.num { text-align: right; }
 td.num { white-space: nowrap; }
 tr.highlight td { font-weight: bold; }
 td.best { color: var(--best); font-weight: bold; }
+table.results td:first-child { white-space: nowrap; }
 td.flag { color: var(--warn); font-weight: bold; }
 table.kv th { width: 32%; background: none; border-bottom: .5pt solid var(--rule);
               font-weight: 600; color: var(--muted); vertical-align: top; }
@@ -81,7 +82,8 @@ figcaption { font-size: 8.6pt; color: var(--muted); text-align: left; margin-top
 footer { margin-top: 8mm; border-top: .6pt solid var(--rule); padding-top: 2mm; font-size: 8pt;
          color: var(--muted); }
 table.office th.grp { text-align: center; border-left: .6pt solid var(--rule); }
-table.office tbody th { background: none; border-bottom: .5pt solid var(--rule); white-space: nowrap; }
+table.office tbody th { background: none; border-bottom: .5pt solid var(--rule);
+                        white-space: nowrap; }
 table.office td:nth-child(3n+2) { border-left: .6pt solid var(--rule); }
 nav.toc { font-size: 8.6pt; margin: 2mm 0; }
 nav.toc ul { list-style: none; padding: 0; margin: 0; columns: 2; }
@@ -127,7 +129,8 @@ def table(header, rows, *, css: str = "", numeric=None, cell_class=None,
             attr = f' class="{" ".join(classes)}"' if classes else ""
             cells.append(f"<td{attr}>{esc(c)}</td>")
         rc = row_class(i) if row_class else ""
-        body.append(f"<tr{f' class={chr(34)}{rc}{chr(34)}' if rc else ''}>{''.join(cells)}</tr>")
+        tr = f'<tr class="{rc}">' if rc else "<tr>"
+        body.append(f"{tr}{''.join(cells)}</tr>")
     css = " ".join(c for c in (css, "keep" if len(rows) <= 12 else "") if c)
     cls = f' class="{css}"' if css else ""
     return f"<table{cls}><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
@@ -180,18 +183,19 @@ def _glance(records, flown, units) -> str:
             continue
         disp = report.display_record(rec, units)
         boxes.append(
-            f'<div><span class="small">{esc(words)}</span><br><span class="big">'
-            f'{esc(format_min_s(rec["time_s"]))}</span> min:s ({rec["time_s"]:,.1f} s)<br>'
-            f'{disp[f"fuel [{m_u}]"]:,.0f} {esc(m_u)}, {disp[f"distance [{d_u}]"]:,.1f} '
-            f'{esc(d_u)}<br><span class="small">{esc(rec["label"])}</span></div>')
+            f'<div><span class="small">{esc(words)}: {esc(rec["label"])}</span><br>'
+            f'<span class="big">{esc(format_min_s(rec["time_s"]))}</span> min:s '
+            f'({rec["time_s"]:,.1f} s) &nbsp; <span class="big">{disp[f"fuel [{m_u}]"]:,.0f}'
+            f'</span>&nbsp;{esc(m_u)} &nbsp; {disp[f"distance [{d_u}]"]:,.1f}&nbsp;{esc(d_u)}'
+            '</div>')
     for rec in flown:
         if rec["kind"] != "best" or rec["penalty_pct"] is None:
             continue
         name = rec["label"]
         boxes.append(
             f'<div><span class="small">{esc(name)}</span><br><span class="big">'
-            f'{esc(rec["what"].split(":")[0].replace("schedule ", ""))}</span><br>'
-            f'<span class="small">penalty {rec["penalty_pct"]:+.2f} % against the '
+            f'{esc(rec["what"].split(":")[0].replace("schedule ", ""))}</span> &nbsp; '
+            f'penalty {rec["penalty_pct"]:+.2f} %<br><span class="small">against the '
             f'{esc(rec["against"])}</span></div>')
     return f'<div class="glance">{"".join(boxes)}</div>' if boxes else ""
 
@@ -208,7 +212,7 @@ def _comparison_section(records, flown, units) -> str:
             "<p>Time, fuel and ground distance from the start to the end of the mission; "
             "differences are to the least time and the least fuel among the ranked rows "
             "(converged, verified, within the fuel capacity).</p>",
-            table(header, rows, cell_class=best)]
+            table(header, rows, css="results", cell_class=best)]
     header, rows = report.comparison_cells(records, units, report.DIAGNOSTIC_COLUMNS)
     body += ["<h3>Solver diagnostics</h3>",
              table(header, rows, css="small",

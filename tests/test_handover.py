@@ -32,8 +32,7 @@ def _run(args):
 
 
 class _Page(HTMLParser):
-    """Collects the text, the section ids, the tables' header cells, the inline SVGs, images
-    and any script or external reference of a page."""
+    """Text, section ids, header cells, inline SVGs, scripts and external references of a page."""
 
     def __init__(self):
         super().__init__()
@@ -85,9 +84,8 @@ def transport_run(tmp_path_factory):
 
 
 def test_html_report_holds_conditions_comparison_schedules_and_figures(transport_run):
-    """The HTML report of the demo transport contains the conditions, the comparison rows, each
-    schedule and every figure; it is self-contained (no script, nothing fetched) and carries
-    the caution."""
+    """The demo's HTML report holds the conditions, comparison rows, each schedule, every figure."""
+    # also: self-contained (no script, nothing fetched) and the caution at top and foot
     scenario, result, doc, out = transport_run
     page = _Page()
     text = (out / "report.html").read_text(encoding="utf-8")
@@ -131,8 +129,7 @@ def _chromium_args(tmp_path):
 
 @pytest.mark.skipif(_chromium() is None, reason="chromium is not installed")
 def test_html_report_renders_in_a_browser(transport_run, tmp_path):
-    """The real-browser render of the report is not blank and its DOM shows the comparison
-    text (headless Chromium; skipped without it)."""
+    """A real browser renders the report, not blank, with the comparison text (needs chromium)."""
     from PIL import Image
 
     _, _, doc, out = transport_run
@@ -151,8 +148,8 @@ def test_html_report_renders_in_a_browser(transport_run, tmp_path):
 
 
 def test_units_default_follows_the_file(tmp_path):
-    """`--units` default follows the file: a scenario written in ft/kt prints ft/kt without the
-    option; the same scenario rewritten in m and m/s prints m and km/h."""
+    """`--units` default follows the file: a scenario written in ft/kt prints ft/kt."""
+    # and the same scenario rewritten in m and m/s prints m, with speeds to fly in km/h
     result = _run(["run", TURBOPROP, "--method", "energy", "--objective", "time",
                    "--out", tmp_path / "ft"])
     assert result.exit_code == 0, result.output
@@ -169,7 +166,7 @@ def test_units_default_follows_the_file(tmp_path):
         assert old in text
         text = text.replace(old, new)
     metric = tmp_path / "metric.toml"
-    metric.write_text(text)
+    metric.write_text(text)  # the same scenario in m and m/s: m, with speeds to fly in km/h
     assert unit_system_for("file", load_scenario(metric).display_units) == "si"
     result = _run(["run", metric, "--method", "energy", "--objective", "time",
                    "--out", tmp_path / "m"])
@@ -181,8 +178,7 @@ def test_units_default_follows_the_file(tmp_path):
 
 
 def test_crew_units_keep_the_file_mass_unit(tmp_path):
-    """`--units crew`: ft, kt, ft/min and nmi, with the mass in kg because the file writes kg
-    (and in lb for a file written in lb); `--method energy-state` is accepted."""
+    """`--units crew` keeps the file's mass unit; `--method energy-state` is accepted."""
     scenario = load_scenario(TURBOPROP)
     assert scenario.display_units["aircraft.mass"] == "kg"
     assert unit_system_for("crew", scenario.display_units) == "crew"
@@ -206,8 +202,7 @@ def _csv(path):
 
 
 def test_dataframe_and_xarray_round_trip_the_written_numbers(transport_run, tmp_path):
-    """`to_dataframe()` and `to_xarray()` round-trip the numbers of the CSV/NPZ outputs exactly
-    (at the CSV's stated rounding)."""
+    """`to_dataframe()`/`to_xarray()` equal the CSV/NPZ numbers (at the stated rounding)."""
     pytest.importorskip("pandas")
     pytest.importorskip("xarray")
     from climbopt.energy import build_energy_map
@@ -241,8 +236,7 @@ def test_dataframe_and_xarray_round_trip_the_written_numbers(transport_run, tmp_
 
 
 def test_office_table_of_a_3x3x2_sweep(tmp_path):
-    """The office table of a 3 x 3 x 2 sweep has 18 cells per quantity and matches the sweep
-    rows; it says that the sweep flew no schedules."""
+    """A 3 x 3 x 2 sweep's office table has 18 cells per quantity matching the rows."""
     from climbopt import sweep as sw
     from climbopt.office import office_table
 
@@ -286,8 +280,7 @@ def test_office_table_of_a_3x3x2_sweep(tmp_path):
 
 
 def test_map_options_change_the_conditions(tmp_path):
-    """`map --mass --load-factor --temperature-offset --rating` make the map for those
-    conditions (read like a scenario file) and refuse bad values with exit 2."""
+    """`map` options set mass, load factor, temperature, rating; bad values exit 2."""
     text = TURBOPROP.read_text().replace("grid_altitude_points = 300", "grid_altitude_points = 40") \
         .replace("grid_speed_points = 300", "grid_speed_points = 30")
     small = tmp_path / "small.toml"
@@ -315,8 +308,7 @@ def test_map_options_change_the_conditions(tmp_path):
 
 
 def test_min_s_and_rounding_rules():
-    """Times read as min:s (16:04 for 963.6 s), and rounding follows the stated digits
-    (ties to even, as Python's round)."""
+    """Times read as min:s (16:04 for 963.6 s) and rounding follows the stated digits."""
     assert format_min_s(963.6) == "16:04" and format_min_s(59.5) == "1:00"
     assert format_min_s(-30.0) == "-0:30" and format_min_s(float("nan")) == "-"
     assert round_display(1234.5, "ft") == 1234 and isinstance(round_display(1.5, "ft"), int)
@@ -325,8 +317,7 @@ def test_min_s_and_rounding_rules():
 
 
 def test_notebook_example_runs(tmp_path):
-    """The worked notebook example in docs/examples runs from start to end and writes its
-    results folder, report.html included."""
+    """The notebook example in docs/examples runs and writes report.html."""
     script = ROOT / "docs" / "examples" / "notebook_example.py"
     done = subprocess.run([sys.executable, str(script), str(tmp_path / "nb")], cwd=ROOT,
                           capture_output=True, text=True, timeout=600)
@@ -336,8 +327,7 @@ def test_notebook_example_runs(tmp_path):
 
 
 def test_scenario_format_doc_shows_the_real_error_output(tmp_path):
-    """The example in docs/scenario-format.md, "Errors", is exactly what `climbopt check`
-    prints for a file with those three mistakes (on standard error, exit 2)."""
+    """docs/scenario-format.md's error example is exactly what `check` prints."""
     doc = (ROOT / "docs" / "scenario-format.md").read_text()
     block = doc[doc.index("## Errors"):].split("```")[1].strip().splitlines()
     text = TRANSPORT.read_text()
