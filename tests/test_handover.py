@@ -343,3 +343,29 @@ def test_scenario_format_doc_shows_the_real_error_output(tmp_path):
                           cwd=tmp_path, capture_output=True, text=True, timeout=120)
     assert done.returncode == 2 and done.stdout == ""
     assert done.stderr.strip().splitlines() == block
+
+
+def test_html_report_marks_unranked_rows():
+    """An unconverged and a failed solve appear in the HTML as not ranked, with their issues."""
+    from synthetic_paths import simple_table
+
+    from climbopt import htmlreport, report
+    from climbopt.results import FailedRun, Trajectory
+
+    good = Trajectory(method="energy-state", objective="time", table=simple_table(
+        duration_s=300.0, fuel_kg=500.0), converged=True, status="ok")
+    bad = Trajectory(method="collocation", objective="time", table=simple_table(
+        duration_s=250.0, fuel_kg=400.0), converged=False,
+        status="iteration limit").with_issues("NOT CONVERGED: not an optimum")
+    lost = FailedRun("collocation", "fuel", status="Infeasible_Problem_Detected",
+                     message="IPOPT found no feasible point")
+    records = report.comparison([good, bad, lost])
+    page = _Page()
+    page.feed(htmlreport.run_report(scenario=load_scenario(TRANSPORT), units="si",
+                                    records=records, flown=[], schedules=[], procedure_costs=[],
+                                    figures=[]))
+    words = page.all_text
+    assert words.count("not ranked") >= 4                  # two rows x two difference columns
+    assert "NOT CONVERGED: not an optimum" in words and "IPOPT found no feasible point" in words
+    assert "5:00" in words and "4:10" in words             # 300 s and 250 s as min:s
+    assert "No figures" in words and page.sections[-1] == "notes"
