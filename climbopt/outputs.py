@@ -61,7 +61,7 @@ def _write_folder(folder: Path, result, scenario, units, model, exit_code, progr
     from climbopt.schedule import (climb_schedule, default_step_m, format_schedule,
                                    schedule_summary, write_schedule_csv)
 
-    records = report.comparison(list(result.results))
+    records = report.comparison(list(result.results), result.common_point)
     trajs = result.trajectories()
     schedules, files = {}, {}
     for traj in trajs:
@@ -80,9 +80,10 @@ def _write_folder(folder: Path, result, scenario, units, model, exit_code, progr
 
     costs = report.format_procedure_costs(result.procedure_costs, units)
     flown = report.format_flown_schedules(
-        result.results, {k: schedule_summary(v, units) for k, v in schedules.items()}, units)
+        records, {k: schedule_summary(v, units) for k, v in schedules.items()}, units)
     text = [f"climbopt {__version__}: {scenario.name}", "", report.format_table(records, units)]
-    text += [block for c in (flown, costs) if c for block in ("", c)]
+    common = report.format_common_point(result.common_point, units)
+    text += [block for c in (common, flown, costs) if c for block in ("", c)]
     for sched in schedules.values():
         text += ["", format_schedule(sched, units)]
     text += [""] + [f"error: {e}" for e in result.errors]
@@ -93,7 +94,7 @@ def _write_folder(folder: Path, result, scenario, units, model, exit_code, progr
         files=files, exit_code=exit_code, errors=result.errors, warnings=result.warnings,
         procedure_costs=result.procedure_costs)
     doc["figures"] = sorted(p.name for p in figures)
-    doc["text"] = {"schedules": flown, "procedure_cost": costs}
+    doc["text"] = {"common_point": common, "schedules": flown, "procedure_cost": costs}
     report.write_summary_json(folder / "summary.json", doc)
     return doc
 

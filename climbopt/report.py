@@ -109,7 +109,7 @@ def column_header(key: str, units: str) -> str:
 # ------------------------------------------------------------------------------------------
 # comparison
 
-def comparison(results: list[Result]) -> list[dict]:
+def comparison(results: list[Result], common_point=None) -> list[dict]:
     """One record per result (SI), with the differences to the best ranked row.
 
     Each record holds the :meth:`Trajectory.summary` keys plus ``time_diff_pct`` and
@@ -117,6 +117,11 @@ def comparison(results: list[Result]) -> list[dict]:
     converged and free of issues; ``None`` for the others, which are never ranked),
     ``best_time`` / ``best_fuel`` flags, ``verification_miss`` (the re-simulation's final miss
     as a fraction of the final energy height, or None), ``label`` and ``has_trajectory``.
+
+    With a ``common_point`` (:class:`climbopt.pipeline.CommonPoint`) every record also holds
+    ``common_point_distance_m``, ``time_to_common_point_s`` and ``fuel_to_common_point_kg``, and
+    the fuel ranking uses the fuel to the common point (the fair comparison when the ground
+    distances differ).
     """
     records = []
     for r in results:
@@ -136,15 +141,24 @@ def comparison(results: list[Result]) -> list[dict]:
             }
         rec["label"] = r.label
         records.append(rec)
+    fuel_key = "fuel_kg"
+    if common_point is not None:
+        fuel_key = "fuel_to_common_point_kg"
+        for rec, t, f in zip(records, common_point.time_s, common_point.fuel_kg, strict=True):
+            rec.update(common_point_distance_m=common_point.distance_m,
+                       time_to_common_point_s=t, fuel_to_common_point_kg=f)
+            if rec["ranked"] and f is None:
+                rec["ranked"] = False
+                rec["issues"] = list(rec["issues"]) + ["cannot reach the common point"]
     ranked = [rec for rec in records if rec["ranked"]]
     best_time = min((rec["time_s"] for rec in ranked), default=None)
-    best_fuel = min((rec["fuel_kg"] for rec in ranked), default=None)
+    best_fuel = min((rec[fuel_key] for rec in ranked), default=None)
     for rec in records:
         if rec["ranked"]:
             rec["time_diff_pct"] = _pct(rec["time_s"], best_time)
-            rec["fuel_diff_pct"] = _pct(rec["fuel_kg"], best_fuel)
+            rec["fuel_diff_pct"] = _pct(rec[fuel_key], best_fuel)
             rec["best_time"] = rec["time_s"] == best_time
-            rec["best_fuel"] = rec["fuel_kg"] == best_fuel
+            rec["best_fuel"] = rec[fuel_key] == best_fuel
         else:
             rec["time_diff_pct"] = None
             rec["fuel_diff_pct"] = None
@@ -167,13 +181,16 @@ def _fmt(value, digits: int = 1) -> str:
     return f"{value:,.{digits}f}"
 
 
-def comparison_columns(units: str) -> list[tuple[str, str]]:
-    """``(record key, header)`` pairs of the comparison table/CSV in ``units``."""
+def comparison_columns(units: str, common: bool = False) -> list[tuple[str, str]]:
+    """``(record key, header)`` pairs of the comparison table/CSV in ``units`` (``common``: with
+    the time and fuel to the common downrange point, the fuel ranking then uses)."""
     m = DISPLAY_UNITS["mass"][units][0]
     d = DISPLAY_UNITS["distance"][units][0]
+    extra = [("time_to_common_point_s", "time to common point [s]"),
+             ("fuel_to_common_point_kg", f"fuel to common point [{m}]")] if common else []
     return [
         ("label", "result"), ("time_s", "time [s]"),
-        ("fuel_kg", f"fuel [{m}]"), ("distance_m", f"distance [{d}]"),
+        ("fuel_kg", f"fuel [{m}]"), ("distance_m", f"distance [{d}]"), *extra,
         ("final_mass_kg", f"final mass [{m}]"), ("time_diff_pct", "time vs best [%]"),
         ("fuel_diff_pct", "fuel vs best [%]"), ("converged", "converged"),
         ("iterations", "iter."), ("wall_s", "wall [s]"),
@@ -181,14 +198,19 @@ def comparison_columns(units: str) -> list[tuple[str, str]]:
     ]
 
 
-_KINDS = {"time_s": "time", "fuel_kg": "mass", "distance_m": "distance", "final_mass_kg": "mass"}
+_KINDS = {"time_s": "time", "fuel_kg": "mass", "distance_m": "distance", "final_mass_kg": "mass",
+          "time_to_common_point_s": "time", "fuel_to_common_point_kg": "mass"}
+
+
+def _has_common(records) -> bool:
+    return any("common_point_distance_m" in r for r in records)
 
 
 def display_record(rec: dict, units: str) -> dict:
     """The comparison record's numbers in display units, keyed by the headers of
     :func:`comparison_columns` (numbers stay numbers; ``verification_miss`` in %)."""
     out = {}
-    for key, header in comparison_columns(units):
+    for key, header in comparison_columns(units, "common_point_distance_m" in rec):
         value = rec.get(key)
         if key in _KINDS:
             value = to_display(_KINDS[key], value, units)[0]
@@ -201,7 +223,7 @@ def display_record(rec: dict, units: str) -> dict:
 def format_table(records: list[dict], units: str = "si") -> str:
     """The comparison table as aligned plain text, with a legend line and the caution."""
     check_units(units)
-    cols = comparison_columns(units)
+    cols = comparison_columns(units, _has_common(records))
     lines = [[h for _, h in cols]]
     for rec in records:
         disp = display_record(rec, units)
@@ -311,7 +333,7 @@ def write_trajectory_csv(path, trajectory: Trajectory, units: str = "si",
 def write_comparison_csv(path, records: list[dict], units: str = "si",
                          scenario_name: str = "") -> None:
     """Write the comparison table as CSV in ``units``."""
-    cols = comparison_columns(units)
+    cols = comparison_columns(units, _has_common(records))
     rows = []
     for rec in records:
         disp = display_record(rec, units)
@@ -320,38 +342,36 @@ def write_comparison_csv(path, records: list[dict], units: str = "si",
                [h for _, h in cols], rows)
 
 
-def format_flown_schedules(results, schedule_lines: dict, units: str = "si") -> str:
-    """For each flown schedule (the best schedule per objective, the scenario's own): what is
-    flown (``schedule_lines``: result stem -> the crew schedule's one-line summary) and its cost
-    against the reference optimum of the same objective (best schedules) or against the best
-    ranked time and fuel of the run (the scenario's schedules)."""
-    ranked = [r for r in results if isinstance(r, Trajectory) and r.ranked]
-    best_t = min((r.time_s for r in ranked), default=None)
-    best_f = min((r.fuel_kg for r in ranked), default=None)
+def format_flown_schedules(records: list[dict], schedule_lines: dict, units: str = "si") -> str:
+    """For each flown schedule (the best schedule per objective, the scenario's own) in the
+    comparison ``records``: what is flown (``schedule_lines``: result stem -> the crew
+    schedule's one-line summary) and its cost against the reference optimum of the same
+    objective (best schedules) or against the best ranked rows of the run (the scenario's own
+    schedules; to the common point when there is one)."""
     m_u = DISPLAY_UNITS["mass"][units][0]
     lines = []
-    for r in results:
-        if r.method not in (Method.SCHEDULE, Method.BEST_SCHEDULE):
+    for rec in records:
+        if rec["method"] not in (Method.SCHEDULE, Method.BEST_SCHEDULE):
             continue
-        if not isinstance(r, Trajectory):
-            lines.append(f"{r.label}: cannot be flown: {r.message}")
+        if not rec["has_trajectory"]:
+            lines.append(f"{rec['label']}: cannot be flown: {'; '.join(rec['issues'])}")
             continue
-        what = schedule_lines.get(result_stem(r.method, r.objective, r.name), r.name)
-        c = r.reference
-        if c is not None:
-            cost = (f"against the {c.reference}: {c.time_difference_s:+,.1f} s, "
-                    f"{to_display('mass', c.fuel_difference_kg, units)[0]:+,.1f} {m_u} "
-                    f"(penalty {100 * c.objective_difference_relative:+.2f} % in "
-                    f"{c.objective})")
-        elif best_t is not None:
-            cost = (f"against the best of this run: {r.time_s - best_t:+,.1f} s "
-                    f"({_pct(r.time_s, best_t):+.2f} %), "
-                    f"{to_display('mass', r.fuel_kg - best_f, units)[0]:+,.1f} {m_u} "
-                    f"({_pct(r.fuel_kg, best_f):+.2f} %)")
+        stem = result_stem(rec["method"], rec["objective"], rec.get("name", ""))
+        what = schedule_lines.get(stem, rec["label"])
+        c = rec.get("reference")
+        if c:
+            cost = (f"against the {c['reference']}: {c['time_difference_s']:+,.1f} s, "
+                    f"{to_display('mass', c['fuel_difference_kg'], units)[0]:+,.1f} {m_u} "
+                    f"(penalty {100 * c['objective_difference_relative']:+.2f} % in "
+                    f"{c['objective']})")
+        elif rec["ranked"]:
+            where = " to the common point" if "common_point_distance_m" in rec else ""
+            cost = (f"against the best of this run{where}: time {rec['time_diff_pct']:+.2f} %, "
+                    f"fuel {rec['fuel_diff_pct']:+.2f} %")
         else:
-            cost = "no ranked optimum to compare with"
-        flag = "" if r.ranked else f" [not ranked: {'; '.join(r.issues)}]"
-        lines.append(f"{r.label}: {what}; {cost}{flag}")
+            cost = f"not ranked: {'; '.join(rec['issues'])}"
+        prefix = "" if what.startswith(rec["label"]) else f"{rec['label']}: "
+        lines.append(f"{prefix}{what}; {cost}")
     return "\n".join(lines)
 
 
@@ -362,6 +382,18 @@ def procedure_cost_records(costs) -> list[dict]:
              "free_time_s": c.free.time_s, "free_fuel_kg": c.free.fuel_kg,
              "procedure_time_s": c.procedure.time_s, "procedure_fuel_kg": c.procedure.fuel_kg,
              "time_cost_s": c.time_s, "fuel_cost_kg": c.fuel_kg} for c in costs]
+
+
+def format_common_point(point, units: str = "si") -> str:
+    """Which common downrange point the comparison used, in words ('' without one)."""
+    if point is None:
+        return ""
+    d, du = to_display("distance", point.distance_m, units)
+    text = (f"common point: {d:,.1f} {du} from the start (the farthest distance at which a "
+            "ranked result reaches the target state); results that get there earlier continue in "
+            "level flight at the target state (thrust = drag) to it; the fuel ranking uses the "
+            "fuel to this point")
+    return "\n".join([text] + [f"  {n}" for n in point.notes])
 
 
 def format_procedure_costs(costs, units: str = "si") -> str:

@@ -78,6 +78,7 @@ import numpy as np
 
 from climbopt.airspeed import cas_from_mach
 from climbopt.atmosphere import G0, energy_height_m
+from climbopt.cruise import LevelFlightImpossible, cruise, level_flight
 from climbopt.energy import energy_fields, maximise_on_lines
 from climbopt.envelope import FlightQuantities, envelope_for
 from climbopt.results import COLUMNS, Method, Trajectory, Zoom, derive_segments
@@ -129,7 +130,7 @@ class _Cost:
     fuel_weight: float
     time_weight: float
     dash_rate: float | None = None  # r_d, cost per second while dashing
-    dash_tas_m_s: float | None = None  # V_d
+    dash_tas_m_s: float | None = None  # V_d: ground speed of the dash (TAS + wind)
 
 
 @dataclass
@@ -146,6 +147,12 @@ class _Problem:
     refine: bool
     rounds: int = 6
     monotone: bool = False  # procedure profile: altitude never decreases
+
+
+def _wind(model, altitude_m):
+    """Along-track wind [m/s] at altitude [m] (0 for a model without wind)."""
+    wind = getattr(model, "wind_m_s", None)
+    return 0.0 if wind is None else wind(altitude_m)
 
 
 def _m_ft(x_m: float) -> str:
@@ -172,7 +179,7 @@ def _fields(prob: _Problem, he, tas, mass):
                          throttle=prob.throttle, rating=prob.rating)
 
 
-def _value(f, cost: _Cost | None, dash: bool):
+def _value(f, cost: _Cost | None, dash: bool, model=None):
     """Objective to maximise at points (``-inf`` where not allowed). ``cost=None``: plain Ps."""
     ps = f.ps_m_s
     ok = f.feasible & (ps > 0.0)
@@ -180,7 +187,8 @@ def _value(f, cost: _Cost | None, dash: bool):
         return np.where(ok, ps, -np.inf)
     denom = cost.fuel_weight * f.fuel_flow_kg_s + cost.time_weight
     if dash:
-        denom = denom - cost.dash_rate * f.tas_m_s / cost.dash_tas_m_s
+        ground = f.tas_m_s + _wind(model, f.altitude_m)
+        denom = denom - cost.dash_rate * ground / cost.dash_tas_m_s
     ok = ok & (denom > 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(ok, ps / denom, -np.inf)
@@ -201,7 +209,7 @@ def _optimise_levels(prob: _Problem, he, mass, cost: _Cost | None, dash: bool,
         def obj(v, line):
             r = rows[line]
             f = _fields(prob, he[r][:, None], v, mass[r][:, None])
-            return _value(f, cost, use_dash)
+            return _value(f, cost, use_dash, prob.model)
         return obj
 
     all_rows = np.arange(he.size)
@@ -390,7 +398,8 @@ def _integrate(prob, path: _Path, mass_fn, start_mass):
     seg = lambda g: np.where(free, 0.0, 0.5 * dhe * (g[:-1] + g[1:]))  # noqa: E731
     t = np.concatenate([[0.0], np.cumsum(seg(inv))])
     fuel = np.concatenate([[0.0], np.cumsum(seg(ff * inv))])
-    dist = np.concatenate([[0.0], np.cumsum(seg(path.tas * inv))])
+    ground = path.tas + _wind(prob.model, h)  # ground speed: TAS plus the along-track wind
+    dist = np.concatenate([[0.0], np.cumsum(seg(ground * inv))])
     return dict(time=t, fuel=fuel, distance=dist, mass=start_mass - fuel, fields=f)
 
 
@@ -407,55 +416,17 @@ def _mass_function(he_nodes, mass_nodes):
 # ------------------------------------------------------------------------------------ dash
 
 
-def _dash_throttle(prob, altitude_m, tas_m_s, mass_kg):
-    """Throttle and fuel flow holding level unaccelerated flight (thrust = drag) at a point.
-
-    Thrust is linear in throttle in the aircraft model, so throttle = D / T(1)."""
-    f = energy_fields(prob.model, altitude_m, tas_m_s, mass_kg, limits=prob.limits,
-                      load_factor=1.0, throttle=1.0, rating=prob.rating)
-    drag = float(f.drag_n)
-    thrust_full = float(f.thrust_n)
-    throttle = drag / thrust_full if thrust_full > 0 else math.inf
-    return throttle, drag, thrust_full, float(f.mach)
-
-
-def _dash(prob, target, mass0, distance_m, steps=16):
-    """Level flight at the target state over ``distance_m``; mass updated (RK4 in distance).
-
-    Returns dict with arrays distance, time, mass, fuel, throttle (relative to the dash start)."""
-    h, v = target.altitude_m, target.tas_m_s
-    model = prob.model
-
-    def rates(m):
-        thr, drag, thrust, mach = _dash_throttle(prob, h, v, m)
-        if thr > prob.throttle + 1e-12:
-            raise InfeasibleMission(
-                f"the dash at the target state (altitude {_m_ft(h)}, Mach {mach:.2f}) needs "
-                f"{drag:,.0f} N of thrust to hold level flight, more than the "
-                f"{thrust * prob.throttle:,.0f} N available with rating {prob.rating!r}",
-                math.nan, h, mach)
-        thr_used = max(thr, model.throttle_min)
-        ff = float(model.fuel_flow_kg_s(h, mach, thr_used, prob.rating))
-        return ff, thr_used
-
-    if distance_m <= 0.0:  # the climb already covers the distance: no dash
-        zero = np.zeros(1)
-        return dict(distance=zero, time=zero, mass=np.full(1, mass0), fuel=zero,
-                    throttle=np.full(1, np.nan))
-    x = np.linspace(0.0, distance_m, steps + 1)
-    m = np.empty_like(x)
-    thr = np.empty_like(x)
-    m[0] = mass0
-    for i in range(steps):
-        dx = x[i + 1] - x[i]
-        ff1, thr[i] = rates(m[i])
-        k1 = -ff1 / v
-        k2 = -rates(m[i] + 0.5 * dx * k1)[0] / v
-        k3 = -rates(m[i] + 0.5 * dx * k2)[0] / v
-        k4 = -rates(m[i] + dx * k3)[0] / v
-        m[i + 1] = m[i] + dx * (k1 + 2 * k2 + 2 * k3 + k4) / 6.0
-    thr[-1] = rates(m[-1])[1]
-    return dict(distance=x, time=x / v, mass=m, fuel=mass0 - m, throttle=thr)
+def _dash(prob, target, mass0, distance_m):
+    """Level flight at the target state over ``distance_m`` of ground (:func:`climbopt.cruise.
+    cruise`); dict with arrays distance, time, mass, fuel, throttle (from the dash start)."""
+    try:
+        leg = cruise(prob.model, target.altitude_m, target.tas_m_s, mass0, distance_m,
+                     rating=prob.rating)
+    except LevelFlightImpossible as exc:
+        raise InfeasibleMission(f"the dash at the target state cannot be flown: {exc} (rating "
+                                f"{prob.rating!r})", math.nan, exc.altitude_m, exc.mach) from None
+    return dict(distance=leg.distance, time=leg.time, mass=leg.mass, fuel=leg.fuel,
+                throttle=leg.throttle)
 
 
 # ------------------------------------------------------------------------------------ solve
@@ -659,13 +630,20 @@ def _climb_and_dash(prob, he_levels, start_mass, cost, target, dash_m, dash_clim
     hef = he_levels[-1]
 
     def dash_info(mass_kg):
-        thr, _, _, mach = _dash_throttle(prob, target.altitude_m, target.tas_m_s, mass_kg)
+        thr, _, _, mach = level_flight(model, target.altitude_m, target.tas_m_s, mass_kg,
+                                       prob.rating)
         ff = float(model.fuel_flow_kg_s(target.altitude_m, mach,
                                         min(max(thr, model.throttle_min), prob.throttle),
                                         prob.rating))
         return cost.fuel_weight * ff + cost.time_weight
 
-    cost = replace(cost, dash_rate=dash_info(start_mass), dash_tas_m_s=target.tas_m_s)
+    ground = target.tas_m_s + float(_wind(model, target.altitude_m))
+    if ground <= 0.0:
+        raise InfeasibleMission(
+            f"the dash cannot cover ground: the headwind at the target altitude "
+            f"({-float(_wind(model, target.altitude_m)):.1f} m/s) is not below the target's true "
+            f"airspeed ({target.tas_m_s:.1f} m/s)", math.nan, target.altitude_m)
+    cost = replace(cost, dash_rate=dash_info(start_mass), dash_tas_m_s=ground)
     variants = {}
     if dash_climb in ("best", "plain"):
         variants["plain"] = _solve_climb(prob, he_levels, start_mass, cost, None, hef, progress,
