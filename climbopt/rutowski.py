@@ -39,7 +39,11 @@ dash itself; there the problem is degenerate (the cheapest plan would cruise the
 dash at the target), so such points are left out and, on any level that has no other climbing
 point, the plain objective is used (reported in the notes). ``r_d`` is taken at the mass at the
 end of the climb (first order). The "climb on the plain path, then dash" answer is computed too;
-both totals appear in the notes and the cheaper one is returned.
+both totals appear in the notes and the cheaper one is returned. When the range-aware climb
+covers more than the dash distance (its premise fails) while the plain climb covers less, the
+climb that ends exactly at the dash distance is found as well: the distance credit becomes a
+Lagrange multiplier, ``Ps / (r - c r_d V / V_d)`` with ``c`` in [0, 1] set by halving until the
+climb's distance is the dash distance (:func:`_matched_climb`).
 
 Numerics
 --------
@@ -130,6 +134,7 @@ class _Cost:
     fuel_weight: float
     time_weight: float
     dash_rate: float | None = None  # r_d, cost per second while dashing
+    credit: float = 1.0  # share of the dash-equivalent credit for distance (see _matched_climb)
     dash_tas_m_s: float | None = None  # V_d: ground speed of the dash (TAS + wind)
 
 
@@ -188,7 +193,7 @@ def _value(f, cost: _Cost | None, dash: bool, model=None):
     denom = cost.fuel_weight * f.fuel_flow_kg_s + cost.time_weight
     if dash:
         ground = f.tas_m_s + _wind(model, f.altitude_m)
-        denom = denom - cost.dash_rate * ground / cost.dash_tas_m_s
+        denom = denom - cost.credit * cost.dash_rate * ground / cost.dash_tas_m_s
     ok = ok & (denom > 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(ok, ps / denom, -np.inf)
@@ -651,6 +656,11 @@ def _climb_and_dash(prob, he_levels, start_mass, cost, target, dash_m, dash_clim
     if dash_climb in ("best", "range-aware"):
         variants["range-aware"] = _solve_climb(prob, he_levels, start_mass, cost, dash_info, hef,
                                                progress, objective + " (range-aware)")
+        plain = variants.get("plain")
+        if (variants["range-aware"][1]["distance"][-1] > dash_m
+                and (plain is None or plain[1]["distance"][-1] < dash_m)):
+            variants["distance-matched"] = _matched_climb(prob, he_levels, start_mass, cost,
+                                                          dash_info, dash_m)
     totals, dashes, notes = {}, {}, []
     for name, (_, integ, _, _) in variants.items():
         x_c = integ["distance"][-1]
@@ -663,6 +673,9 @@ def _climb_and_dash(prob, he_levels, start_mass, cost, target, dash_m, dash_clim
     for name, (tt, ff, xc) in totals.items():
         over = (" - more than the dash distance, so the range-aware premise (a dash after "
                 "the climb) fails" if name == "range-aware" and xc > dash_m else "")
+        if name == "distance-matched":
+            over = (f"; the range-aware credit for distance scaled by "
+                    f"{variants[name][3].credit:.3f} so that the climb ends at the dash distance")
         notes.append(
             f"dash to {dash_m / 1000:.1f} km: {name} energy climb then dash: total time "
             f"{tt:.1f} s, fuel {ff:.1f} kg (climb covers {xc / 1000:.1f} km{over})")
@@ -677,6 +690,33 @@ def _climb_and_dash(prob, he_levels, start_mass, cost, target, dash_m, dash_clim
             "distance more cheaply than the dash itself (degenerate range-aware objective); "
             "the plain objective was used there")
     return variants[variant], dashes[variant], notes
+
+
+#: Halvings of the distance credit in :func:`_matched_climb`, and its coarse grid.
+_MATCH_STEPS = 12
+_MATCH_GRID = (100, 80)
+
+
+def _matched_climb(prob, he_levels, start_mass, cost, dash_info, dash_m):
+    """The climb that reaches the target state exactly at the dash distance, for a mission where
+    the range-aware climb overshoots it and the plain climb falls short.
+
+    Minimising the cost of the climb subject to its ground distance being the dash distance
+    makes the distance credit of the range-aware objective a Lagrange multiplier: on each level
+    maximise Ps / (r - c r_d V_g / V_d) with c in [0, 1] (c = 0 the plain climb, c = 1 the
+    range-aware one). c is found by halving its interval (:data:`_MATCH_STEPS` times, on a
+    coarse grid of energy levels x speeds) until the climb covers the dash distance, then the
+    path is solved on the full grid at that c."""
+    coarse = replace(prob, points=min(prob.points, _MATCH_GRID[1]), rounds=4)
+    levels = np.linspace(he_levels[0], he_levels[-1], min(he_levels.size, _MATCH_GRID[0]))
+    lo, hi = 0.0, 1.0
+    for _ in range(_MATCH_STEPS):
+        c = 0.5 * (lo + hi)
+        _, integ, _, _ = _solve_climb(coarse, levels, start_mass, replace(cost, credit=c),
+                                      dash_info, levels[-1], None, "")
+        lo, hi = (c, hi) if integ["distance"][-1] < dash_m else (lo, c)
+    return _solve_climb(prob, he_levels, start_mass, replace(cost, credit=0.5 * (lo + hi)),
+                        dash_info, he_levels[-1], None, "distance-matched")
 
 
 def _gamma_along(path: _Path, ps, tas):
