@@ -144,6 +144,7 @@ class AircraftModel:
         self.thrust_alignment = prop.thrust_alignment
         self.thrust_scale = float(prop.thrust_scale)
         self.default_rating = scenario.mission.rating or prop.default_rating
+        self._wind = _WindFit(getattr(scenario.atmosphere, "wind", None))
 
         drag = ac.drag
         self.drag_kind = drag.kind
@@ -259,6 +260,19 @@ class AircraftModel:
         """Fuel flow of all engines [kg/s] (see :meth:`thrust_and_fuel_flow`)."""
         return self.thrust_and_fuel_flow(altitude_m, mach, throttle, rating, check=check)[1]
 
+    # ------------------------------------------------------------------ wind
+    @property
+    def has_wind(self) -> bool:
+        """True when the scenario gives an along-track wind."""
+        return self._wind.kind != "none"
+
+    def wind_m_s(self, altitude_m):
+        """Along-track wind [m/s] (positive: tailwind) at altitude [m] (numpy or CasADi): zero,
+        the scenario's constant, or its table (see :class:`_WindFit`). Ground speed is the true
+        airspeed's horizontal component plus this (air-mass physics: the wind moves the air,
+        so time and fuel of a climb do not depend on it, its ground distance does)."""
+        return self._wind(altitude_m)
+
     # ------------------------------------------------------------------ domain
     def in_domain(self, altitude_m, mach) -> np.ndarray:
         """Boolean mask: True where (altitude, Mach) lies inside every table's data."""
@@ -366,3 +380,30 @@ def fast_scalar_function(function):
 def build_model(scenario: Scenario) -> AircraftModel:
     """Build the shared aircraft model (fits are made once here)."""
     return AircraftModel(scenario)
+
+
+class _WindFit:
+    """Along-track wind against altitude: none, a constant, or a C2 fit of the table (monotone
+    PCHIP samples through a cubic spline, :class:`climbopt.fits.Fit1D`), held at the end values
+    beyond the table (the table is padded with its end values 10 km beyond each end before
+    fitting, so the fit is flat there)."""
+
+    def __init__(self, wind):
+        self.kind, self.value, self.fit = "none", 0.0, None
+        if wind is None:
+            return
+        if not wind.altitude_m or len(wind.altitude_m) == 1:
+            self.kind, self.value = "constant", float(wind.along_track_m_s[0])
+            return
+        h = np.asarray(wind.altitude_m, dtype=float)
+        w = np.asarray(wind.along_track_m_s, dtype=float)
+        h = np.concatenate([[h[0] - 10_000.0], h, [h[-1] + 10_000.0]])
+        w = np.concatenate([[w[0]], w, [w[-1]]])
+        self.kind, self.fit = "table", Fit1D(h, w, "wind(altitude)")
+
+    def __call__(self, altitude_m):
+        if self.kind == "table":
+            return self.fit(altitude_m, check=False)
+        if is_casadi(altitude_m):
+            return 0.0 * altitude_m + self.value
+        return np.full(np.shape(altitude_m), self.value) if np.ndim(altitude_m) else self.value

@@ -176,8 +176,21 @@ def _propulsion_lines(s: Scenario) -> list[str]:
 
 
 def _atmosphere_lines(s: Scenario) -> list[str]:
-    return [f"Atmosphere: US Standard Atmosphere 1976, temperature offset "
-            f"{_q(s.atmosphere.temperature_offset_k, _u(s, 'atmosphere.temperature_offset', 'K'))}"]
+    out = [f"Atmosphere: US Standard Atmosphere 1976, temperature offset "
+           f"{_q(s.atmosphere.temperature_offset_k, _u(s, 'atmosphere.temperature_offset', 'K'))}"]
+    wind = s.atmosphere.wind
+    if wind is not None:
+        u_w = _u(s, "atmosphere.wind.along_track", "kt")
+        if not wind.altitude_m:
+            w = wind.along_track_m_s[0]
+            out.append(f"  along-track wind {_q(w, u_w)} at all altitudes "
+                       f"({'headwind' if w < 0 else 'tailwind' if w > 0 else 'calm'})")
+        else:
+            u_a = _u(s, "atmosphere.wind.altitude", "ft")
+            pairs = ", ".join(f"{_q(w, u_w)} at {_q(h, u_a)}"
+                              for h, w in zip(wind.altitude_m, wind.along_track_m_s))
+            out.append(f"  along-track wind (negative: headwind): {pairs}; held beyond the ends")
+    return out
 
 
 _PROFILE_WORDS = {
@@ -186,9 +199,25 @@ _PROFILE_WORDS = {
 }
 
 
+def _rating_words(s: Scenario) -> str:
+    """The rating in force, or the rating schedule in words ('max' to 3000 ft, then 'climb' at
+    95 % thrust)."""
+    steps = s.mission.rating_schedule
+    if not steps:
+        return f"'{s.mission.rating or s.propulsion.default_rating}'"
+    words = []
+    for i, st in enumerate(steps):
+        w = f"'{st.rating}'" + (f" at {100 * st.thrust_fraction:g} % thrust"
+                                if st.thrust_fraction != 1.0 else "")
+        if st.until_m is not None:
+            w += f" to {_alt(s, f'mission.rating[{i}].until', st.until_m, 'ft')}"
+        words.append(w)
+    return ", then ".join(words)
+
+
 def _mission_lines(s: Scenario) -> list[str]:
     mis, dt_k = s.mission, s.atmosphere.temperature_offset_k
-    out = [f"Mission: climb with rating '{mis.rating or s.propulsion.default_rating}', profile "
+    out = [f"Mission: climb with rating {_rating_words(s)}, profile "
            f"{_PROFILE_WORDS[mis.profile]}, acceleration share {_fmt(mis.acceleration_share)}"]
     out.extend(_point_lines(s, "start", mis.start, dt_k))
     out.extend(_point_lines(s, "target", mis.target, dt_k))
@@ -254,6 +283,10 @@ def _limits_lines(s: Scenario) -> list[str]:
                f"max dynamic pressure "
                f"{_q(lim.max_dynamic_pressure_pa, _u(s, 'limits.max_dynamic_pressure', 'kPa')) if lim.max_dynamic_pressure_pa is not None else none}, "
                f"max load factor {_fmt(lim.max_load_factor)}")
+    if lim.buffet_load_factor is not None:
+        out.append(f"  buffet margin: lift coefficient at most CLmax / "
+                   f"{_fmt(lim.buffet_load_factor)} (a {_fmt(lim.buffet_load_factor)} g manoeuvre "
+                   "margin to buffet onset)")
     if lim.cas_restriction is not None:
         rc, below = lim.cas_restriction
         out.append(f"  CAS at most {_q(rc, _u(s, 'limits.cas_restriction.cas', 'kt'))} below "

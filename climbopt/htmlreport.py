@@ -182,12 +182,14 @@ def _glance(records, flown, units) -> str:
         if rec is None:
             continue
         disp = report.display_record(rec, units)
+        to_cp = disp.get(f"fuel to common point [{m_u}]")
+        cp = "" if to_cp is None else f"<br>{to_cp:,.0f}&nbsp;{esc(m_u)} to the common point"
         boxes.append(
             f'<div><span class="small">{esc(words)}: {esc(rec["label"])}</span><br>'
             f'<span class="big">{esc(format_min_s(rec["time_s"]))}</span> min:s '
             f'({rec["time_s"]:,.1f} s) &nbsp; <span class="big">{disp[f"fuel [{m_u}]"]:,.0f}'
             f'</span>&nbsp;{esc(m_u)} &nbsp; {disp[f"distance [{d_u}]"]:,.1f}&nbsp;{esc(d_u)}'
-            '</div>')
+            f'{cp}</div>')
     for rec in flown:
         if rec["kind"] != "best" or rec["penalty_pct"] is None:
             continue
@@ -200,10 +202,12 @@ def _glance(records, flown, units) -> str:
     return f'<div class="glance">{"".join(boxes)}</div>' if boxes else ""
 
 
-def _comparison_section(records, flown, units) -> str:
+def _comparison_section(records, flown, units, common_text: str = "") -> str:
     from climbopt import report
 
-    header, rows = report.comparison_cells(records, units, report.comparison_columns(units))
+    columns = report.comparison_columns(units, any("common_point_distance_m" in r
+                                                   for r in records))
+    header, rows = report.comparison_cells(records, units, columns)
 
     def best(i, j, text):
         return "best" if text == "best" else ("flag" if text == "not ranked" else "")
@@ -213,6 +217,9 @@ def _comparison_section(records, flown, units) -> str:
             "differences are to the least time and the least fuel among the ranked rows "
             "(converged, verified, within the fuel capacity).</p>",
             table(header, rows, css="results", cell_class=best)]
+    if common_text:
+        body.append('<ul class="notes">' + "".join(f"<li>{esc(line.strip())}</li>"
+                                                   for line in common_text.splitlines()) + "</ul>")
     header, rows = report.comparison_cells(records, units, report.DIAGNOSTIC_COLUMNS)
     body += ["<h3>Solver diagnostics</h3>",
              table(header, rows, css="small",
@@ -324,19 +331,20 @@ def _figures_section(figures) -> str:
 
 
 def run_report(*, scenario, units: str, records, flown, schedules, procedure_costs, figures,
-               errors=(), warnings=()) -> str:
+               errors=(), warnings=(), common_point: str = "") -> str:
     """The ``report.html`` page of a run.
 
     ``records``: :func:`climbopt.report.comparison`; ``flown``:
     :func:`climbopt.report.flown_schedule_records`; ``schedules``: the crew schedules in the
     order to show (flown first); ``procedure_costs``: :class:`climbopt.pipeline.ProcedureCost`
-    list; ``figures``: ``(title, caption, svg text)`` triples.
+    list; ``figures``: ``(title, caption, svg text)`` triples; ``common_point``: the text of
+    :func:`climbopt.report.format_common_point` ("" without a common downrange point).
     """
     from climbopt import report
 
     sections = [("conditions", "Conditions", conditions_table(scenario, units)),
                 ("comparison", "Comparison of the results",
-                 _comparison_section(records, flown, units))]
+                 _comparison_section(records, flown, units, common_point))]
     if flown:
         sections.append(("flown", "Flown schedules and their cost", _flown_section(flown, units)))
     sections.append(("schedules", "Climb schedules",
@@ -390,6 +398,14 @@ def conditions_table(scenario, units: str) -> str:
     if lim.cas_restriction is not None:
         rows.append(("speed restriction", f"{q('airspeed', lim.cas_restriction[0])} below "
                                           f"{q('altitude', lim.cas_restriction[1])}"))
+    if getattr(lim, "buffet_load_factor", None):
+        rows.append(("buffet margin", f"{lim.buffet_load_factor:g} g (CL at most CLmax / "
+                                      f"{lim.buffet_load_factor:g})"))
+    extras = (("wind", report.wind_text(getattr(scenario.atmosphere, "wind", None), units)),
+              ("rating schedule", report.rating_schedule_text(
+                  getattr(m, "rating_schedule", ()), units)))
+    rows[5:5] = [(k, v.split(" ", 1)[1] if k == "wind" else v.replace("rating schedule ", ""))
+                 for k, v in extras if v]
     if scenario.description:
         rows.insert(0, ("scenario", scenario.description))
     body = "".join(f"<tr><th>{esc(k)}</th><td>{esc(v)}</td></tr>" for k, v in rows)

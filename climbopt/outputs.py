@@ -89,7 +89,7 @@ def _write_folder(folder: Path, result, scenario, units, model, exit_code, progr
     from climbopt.schedule import climb_schedule, conditions_of, default_step_m, \
         schedule_summary, write_schedule_csv
 
-    records = report.comparison(list(result.results))
+    records = report.comparison(list(result.results), result.common_point)
     conditions = conditions_of(scenario)
     trajs = result.trajectories()
     schedules, files = {}, {}
@@ -110,12 +110,14 @@ def _write_folder(folder: Path, result, scenario, units, model, exit_code, progr
     figures, svgs = _figures(folder, scenario, trajs, units, model)
 
     lines = {k: schedule_summary(v, units) for k, v in schedules.items()}
-    flown = report.flown_schedule_records(result.results, lines, units)
+    flown = report.flown_schedule_records(records, lines, units)
     ordered = sorted(schedules.values(), key=_schedule_rank)
-    texts = {"schedules": report.format_flown_schedules(result.results, lines, units),
+    texts = {"common_point": report.format_common_point(result.common_point, units),
+             "schedules": report.format_flown_schedules(records, lines, units),
              "procedure_cost": report.format_procedure_costs(result.procedure_costs, units)}
     _write_report_txt(folder, scenario, units, records, texts, ordered, result, conditions)
-    _write_report_html(folder, scenario, units, records, flown, ordered, result, svgs)
+    _write_report_html(folder, scenario, units, records, flown, ordered, result, svgs,
+                       texts["common_point"])
     doc = report.summary_document(
         records, scenario_name=scenario.name, scenario_path=scenario.source_path, units=units,
         files=files, exit_code=exit_code, errors=result.errors, warnings=result.warnings,
@@ -143,7 +145,8 @@ def _write_report_txt(folder, scenario, units, records, texts, schedules, result
     report.write_text_atomic(folder / "report.txt", "\n".join(text) + "\n")
 
 
-def _write_report_html(folder, scenario, units, records, flown, schedules, result, svgs):
+def _write_report_html(folder, scenario, units, records, flown, schedules, result, svgs,
+                       common_point=""):
     """``report.html``: the whole run in one self-contained page (:mod:`climbopt.htmlreport`)."""
     from climbopt import htmlreport, report
 
@@ -151,7 +154,7 @@ def _write_report_html(folder, scenario, units, records, flown, schedules, resul
     page = htmlreport.run_report(
         scenario=scenario, units=units, records=records, flown=flown, schedules=schedules,
         procedure_costs=result.procedure_costs, figures=figures, errors=result.errors,
-        warnings=result.warnings)
+        warnings=result.warnings, common_point=common_point)
     report.write_text_atomic(folder / "report.html", page)
 
 

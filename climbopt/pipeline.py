@@ -19,8 +19,8 @@ from dataclasses import dataclass
 
 from climbopt.results import FailedRun, Method, Objective, Result, Trajectory
 
-__all__ = ["METHODS", "ProcedureCost", "RunResult", "TimeLimitExceeded", "assess",
-           "run_mission", "solve_case"]
+__all__ = ["METHODS", "CommonPoint", "ProcedureCost", "RunResult", "TimeLimitExceeded",
+           "assess", "common_point", "run_mission", "solve_case"]
 
 #: Method choices of a run: energy-state only, collocation only (energy-state as its warm start
 #: and fallback), or both.
@@ -55,6 +55,24 @@ class ProcedureCost:
 
 
 @dataclass(frozen=True)
+class CommonPoint:
+    """Time and fuel of every result to one common downrange point (common practice for a fair
+    comparison of climbs that end at different distances): the farthest ground distance at
+    which a ranked result reaches its target state; every result that gets there earlier
+    continues in level flight at its target state (thrust = drag, :func:`climbopt.cruise.cruise`).
+
+    ``distance_m`` [m]; ``time_s`` [s] and ``fuel_kg`` [kg] per result (aligned with
+    ``RunResult.results``; None for a row without a trajectory or that cannot cruise there);
+    ``notes`` say why a row has none.
+    """
+
+    distance_m: float
+    time_s: tuple[float | None, ...]
+    fuel_kg: tuple[float | None, ...]
+    notes: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
 class RunResult:
     """Everything a run produced.
 
@@ -67,6 +85,7 @@ class RunResult:
     errors: tuple[str, ...] = ()
     warnings: tuple[str, ...] = ()
     procedure_costs: tuple[ProcedureCost, ...] = ()
+    common_point: CommonPoint | None = None
 
     @property
     def solver_failure(self) -> bool:
@@ -236,7 +255,41 @@ def run_mission(scenario, model=None, *, method: str = "both", objectives=("time
                                                   progress)
         results += rows
         errors += sched_errors
-    return RunResult(tuple(results), tuple(errors), tuple(warnings), tuple(costs))
+    return RunResult(tuple(results), tuple(errors), tuple(warnings), tuple(costs),
+                     common_point(results, scenario, model))
+
+
+#: Ground distances within this fraction of each other count as the same (no common point).
+COMMON_POINT_TOLERANCE = 1e-3
+
+
+def common_point(results, scenario, model) -> CommonPoint | None:
+    """The :class:`CommonPoint` of ``results`` (None when every ranked trajectory covers the same
+    ground distance to within :data:`COMMON_POINT_TOLERANCE`, e.g. with a dash distance)."""
+    from climbopt.cruise import LevelFlightImpossible, cruise
+
+    ranked = [r.distance_m for r in results if isinstance(r, Trajectory) and r.ranked]
+    if not ranked or max(ranked) - min(ranked) <= COMMON_POINT_TOLERANCE * max(ranked):
+        return None
+    far = max(ranked)
+    target = scenario.mission.target
+    times, fuels, notes = [], [], []
+    for r in results:
+        if not isinstance(r, Trajectory):
+            times.append(None)
+            fuels.append(None)
+            continue
+        try:
+            leg = cruise(model, target.altitude_m, target.tas_m_s, r.final_mass_kg,
+                         max(far - r.distance_m, 0.0))
+        except LevelFlightImpossible as exc:
+            times.append(None)
+            fuels.append(None)
+            notes.append(f"{r.label}: no level flight to the common point: {exc}")
+            continue
+        times.append(r.time_s + leg.time_s)
+        fuels.append(r.fuel_kg + leg.fuel_kg)
+    return CommonPoint(far, tuple(times), tuple(fuels), tuple(notes))
 
 
 def solve_case(scenario, method: str, objective: str, *, model=None) -> Trajectory:

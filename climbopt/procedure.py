@@ -42,8 +42,8 @@ aircraft model, atmosphere and engine rating as the solvers):
   by fixed-point iteration from gamma = 0 (three passes inside the model evaluation; each pass
   shrinks the error by a factor of about (dPs/dcos gamma) tan(gamma) / V, below 0.01 for
   transport climbs, so the residual is below 1e-6 of cos gamma);
-* dm/dt = -fuel flow; dx/dt = V cos(gamma) is the *air* distance, turned into ground distance
-  in one place (:func:`_ground_speed`; no wind yet, so the two are equal).
+* dm/dt = -fuel flow; dx/dt = V cos(gamma) + w(h), the ground speed with the along-track wind
+  w (:func:`_ground_speed`, the one place where air distance becomes ground distance).
 
 Integration: scipy ``solve_ivp`` (RK45, relative tolerance :data:`RTOL`, absolute tolerances
 scaled per state) with events for the crossover (Mach reaches the scheduled Mach), the
@@ -265,10 +265,14 @@ class _Memo:
         return self.value
 
 
-def _ground_speed(tas_m_s, cos_gamma):
+def _ground_speed(model, altitude_m, tas_m_s, cos_gamma):
     """Ground speed [m/s] from true airspeed and flight-path angle: the one place where air
-    distance becomes ground distance (no wind yet: V cos(gamma))."""
-    return tas_m_s * cos_gamma
+    distance becomes ground distance, V cos(gamma) plus the along-track wind at the altitude
+    (:meth:`climbopt.aircraft.AircraftModel.wind_m_s`)."""
+    ground = tas_m_s * cos_gamma
+    if getattr(model, "has_wind", False):
+        ground += float(model.wind_m_s(altitude_m))
+    return ground
 
 
 def _event(fn, direction: float):
@@ -368,7 +372,7 @@ class _Flight:
 
         def rhs(t, y):
             o = ev(y[0], value, y[1], thr, 0.0)
-            return [o[_V] * o[_SIN], -o[_FF], _ground_speed(o[_V], o[_COS])]
+            return [o[_V] * o[_SIN], -o[_FF], _ground_speed(self.model, y[0], o[_V], o[_COS])]
 
         events = {"altitude": _event(lambda t, y: y[0] - ceiling, 1.0),
                   "ps": _event(lambda t, y: ev(y[0], value, y[1], thr, 0.0)[_PS], -1.0)}
@@ -426,7 +430,8 @@ class _Flight:
         def rhs(t, y):
             o = out(y)
             dh = y[1] * o[_SIN]
-            return [dh, G0 * (o[_PS] - dh) / y[1], -o[_FF], _ground_speed(y[1], o[_COS])]
+            return [dh, G0 * (o[_PS] - dh) / y[1], -o[_FF],
+                    _ground_speed(self.model, y[0], y[1], o[_COS])]
 
         # Ps must keep the sign that drives the speed change: > 0 to accelerate or climb,
         # < 0 for the level deceleration at minimum throttle
@@ -467,10 +472,15 @@ class _Flight:
         def rhs(t, y):
             o = ev(y[0], y[1], y[2], 1.0, 0.0)
             throttle = max(o[_D] / (o[_T] * math.cos(o[_ALPHA])), self.model.throttle_min)
-            return [0.0, 0.0, -throttle * o[_FF], _ground_speed(y[1], 1.0)]
+            return [0.0, 0.0, -throttle * o[_FF], _ground_speed(self.model, y[0], y[1], 1.0)]
 
+        ground = _ground_speed(self.model, h, v, 1.0)
+        if not ground > 0.0:
+            raise self.not_flyable(f"the headwind at the target altitude is not below the true "
+                                   f"airspeed {v:.1f} m/s: no ground is covered", h, v, m,
+                                   limit="ps", excess=0.0)
         sol, _ = self.integrate(rhs, [h, v, m, x], {}, [_SCALE_H, _SCALE_V, self.scale_m,
-                                                        _SCALE_X], t_end=t0 + distance_m / v)
+                                                        _SCALE_X], t_end=t0 + distance_m / ground)
         self.state = [float(sol.t[-1]), *(float(c) for c in sol.y[:, -1])]
         self.add(_Piece("cruise", f"cruise at Mach {o[_MACH]:.3f}", "free", math.nan, 0.0,
                         math.nan, sol.t, sol.y, None, float(o[_MACH])), sol, climbing=False,

@@ -106,7 +106,7 @@ def column_header(key: str, units: str) -> str:
 # ------------------------------------------------------------------------------------------
 # comparison
 
-def comparison(results: list[Result]) -> list[dict]:
+def comparison(results: list[Result], common_point=None) -> list[dict]:
     """One record per result (SI), with the differences to the best ranked row.
 
     Each record holds the :meth:`Trajectory.summary` keys plus ``time_diff_pct`` and
@@ -114,6 +114,11 @@ def comparison(results: list[Result]) -> list[dict]:
     converged and free of issues; ``None`` for the others, which are never ranked),
     ``best_time`` / ``best_fuel`` flags, ``verification_miss`` (the re-simulation's final miss
     as a fraction of the final energy height, or None), ``label`` and ``has_trajectory``.
+
+    With a ``common_point`` (:class:`climbopt.pipeline.CommonPoint`) every record also holds
+    ``common_point_distance_m``, ``time_to_common_point_s`` and ``fuel_to_common_point_kg``, and
+    the fuel ranking uses the fuel to the common point (the fair comparison when the ground
+    distances differ).
     """
     records = []
     for r in results:
@@ -133,15 +138,24 @@ def comparison(results: list[Result]) -> list[dict]:
             }
         rec["label"] = r.label
         records.append(rec)
+    fuel_key = "fuel_kg"
+    if common_point is not None:
+        fuel_key = "fuel_to_common_point_kg"
+        for rec, t, f in zip(records, common_point.time_s, common_point.fuel_kg, strict=True):
+            rec.update(common_point_distance_m=common_point.distance_m,
+                       time_to_common_point_s=t, fuel_to_common_point_kg=f)
+            if rec["ranked"] and f is None:
+                rec["ranked"] = False
+                rec["issues"] = list(rec["issues"]) + ["cannot reach the common point"]
     ranked = [rec for rec in records if rec["ranked"]]
     best_time = min((rec["time_s"] for rec in ranked), default=None)
-    best_fuel = min((rec["fuel_kg"] for rec in ranked), default=None)
+    best_fuel = min((rec[fuel_key] for rec in ranked), default=None)
     for rec in records:
         if rec["ranked"]:
             rec["time_diff_pct"] = _pct(rec["time_s"], best_time)
-            rec["fuel_diff_pct"] = _pct(rec["fuel_kg"], best_fuel)
+            rec["fuel_diff_pct"] = _pct(rec[fuel_key], best_fuel)
             rec["best_time"] = rec["time_s"] == best_time
-            rec["best_fuel"] = rec["fuel_kg"] == best_fuel
+            rec["best_fuel"] = rec[fuel_key] == best_fuel
         else:
             rec["time_diff_pct"] = None
             rec["fuel_diff_pct"] = None
@@ -164,15 +178,18 @@ def _fmt(value, digits: int = 1) -> str:
     return f"{value:,.{digits}f}"
 
 
-def comparison_columns(units: str) -> list[tuple[str, str]]:
+def comparison_columns(units: str, common: bool = False) -> list[tuple[str, str]]:
     """``(record key, header)`` pairs of the engineering figures of the comparison in
-    ``units``: result, time (s and min:s), fuel, ground distance, final mass, and the
+    ``units``: result, time (s and min:s), fuel, ground distance, with ``common`` the time and
+    fuel to the common downrange point (the fuel ranking then uses), final mass, and the
     differences to the best ranked time and fuel."""
     m = unit_label("mass", units)
     d = unit_label("distance", units)
+    extra = [("time_to_common_point_s", "time to common point [s]"),
+             ("fuel_to_common_point_kg", f"fuel to common point [{m}]")] if common else []
     return [
         ("label", "result"), ("time_s", "time [s]"), ("time_min_s", "time [min:s]"),
-        ("fuel_kg", f"fuel [{m}]"), ("distance_m", f"distance [{d}]"),
+        ("fuel_kg", f"fuel [{m}]"), ("distance_m", f"distance [{d}]"), *extra,
         ("final_mass_kg", f"final mass [{m}]"), ("time_diff_pct", "time vs best [%]"),
         ("fuel_diff_pct", "fuel vs best [%]"),
     ]
@@ -185,12 +202,17 @@ DIAGNOSTIC_COLUMNS: list[tuple[str, str]] = [
 ]
 
 
-def all_columns(units: str) -> list[tuple[str, str]]:
+def all_columns(units: str, common: bool = False) -> list[tuple[str, str]]:
     """Engineering figures, then the solver diagnostics (the columns of ``comparison.csv``)."""
-    return comparison_columns(units) + DIAGNOSTIC_COLUMNS[1:]
+    return comparison_columns(units, common) + DIAGNOSTIC_COLUMNS[1:]
 
 
-_KINDS = {"time_s": "time", "fuel_kg": "mass", "distance_m": "distance", "final_mass_kg": "mass"}
+_KINDS = {"time_s": "time", "fuel_kg": "mass", "distance_m": "distance", "final_mass_kg": "mass",
+          "time_to_common_point_s": "time", "fuel_to_common_point_kg": "mass"}
+
+
+def _has_common(records) -> bool:
+    return any("common_point_distance_m" in r for r in records)
 
 
 def display_record(rec: dict, units: str) -> dict:
@@ -199,7 +221,7 @@ def display_record(rec: dict, units: str) -> dict:
     to 0.01, the re-simulation miss to three significant digits, in %), the time also as
     min:s text."""
     out = {}
-    for key, header in all_columns(units):
+    for key, header in all_columns(units, "common_point_distance_m" in rec):
         value = rec.get(key)
         if key in _KINDS:
             value = rounded(_KINDS[key], value, units)
@@ -218,12 +240,17 @@ def display_record(rec: dict, units: str) -> dict:
 
 def text_table(header: list[str], rows: list[list[str]], left=1) -> list[str]:
     """Aligned plain-text table: the first ``left`` columns (or the column indices in the set
-    ``left``) left-aligned, the rest right-aligned, a rule under the header. A header "name [unit]" takes two lines, the unit under the name,
-    so that the columns stay narrow."""
+    ``left``) left-aligned, the rest right-aligned, a rule under the header. A header
+    "name [unit]" is wrapped to about 8 characters a line with the unit under the name, so that
+    the columns stay narrow."""
+    import textwrap
+
     heads = [h.split(" [", 1) for h in header]
-    lines = [[h[0] for h in heads], [f"[{h[1]}" if len(h) > 1 else "" for h in heads]]
-    if not any(lines[1]):
-        lines = lines[:1]
+    cols = [textwrap.wrap(h[0], 8, break_long_words=False) or [""] for h in heads]
+    cols = [c + [f"[{h[1]}"] if len(h) > 1 else c for c, h in zip(cols, heads)]
+    depth = max(len(c) for c in cols)
+    cols = [[""] * (depth - len(c)) + c for c in cols]  # names sit on the rule
+    lines = [[c[k] for c in cols] for k in range(depth)]
     widths = [max(len(r[i]) for r in [*lines, *rows]) for i in range(len(header))]
     lefts = set(left) if isinstance(left, (set, frozenset, list, tuple)) else set(range(left))
     out = []
@@ -265,7 +292,8 @@ def comparison_cells(records: list[dict], units: str, columns) -> tuple[list[str
             elif key == "distance_m":
                 row.append(_fmt(v, 1))
             else:
-                row.append(_fmt(v, 0 if key in ("fuel_kg", "final_mass_kg") else 1))
+                row.append(_fmt(v, 0 if key in ("fuel_kg", "final_mass_kg",
+                                                "fuel_to_common_point_kg") else 1))
         rows.append(row)
     return [h for _, h in columns], rows
 
@@ -286,11 +314,16 @@ def comparison_legend(records: list[dict]) -> list[str]:
 
 def format_table(records: list[dict], units: str = "si") -> str:
     """The comparison as aligned plain text: the engineering figures (time, fuel, distance,
-    final mass, differences to the best), then the solver diagnostics in a small table of their
-    own, then what NO, FAILED and "not ranked" mean."""
+    with a common downrange point the time and fuel to it ("CP"), final mass, differences to
+    the best), then the solver diagnostics in a small table of their own, then what NO,
+    FAILED and "not ranked" mean."""
     check_units(units)
-    header, rows = comparison_cells(records, units, comparison_columns(units))
-    text = text_table(header, rows)
+    common = _has_common(records)
+    header, rows = comparison_cells(records, units, comparison_columns(units, common))
+    text = text_table([h.replace("common point", "CP") for h in header], rows)
+    if common:
+        text.append("CP = the common downrange point (see below); the fuel ranking uses the fuel "
+                    "to it.")
     header, rows = comparison_cells(records, units, DIAGNOSTIC_COLUMNS)
     text += ["", "solver diagnostics:"] + text_table(header, rows)
     return "\n".join(text + comparison_legend(records))
@@ -347,9 +380,43 @@ def format_conditions(c, units: str) -> str:
     if c.max_altitude_m is not None:
         limits.append(f"altitude {q('altitude', c.min_altitude_m or 0.0)} to "
                       f"{q('altitude', c.max_altitude_m)}")
+    if getattr(c, "buffet_load_factor", None):
+        limits.append(f"buffet margin {c.buffet_load_factor:g} g")
+    extra = "".join(f"; {x}" for x in (wind_text(getattr(c, "wind", None), units),
+                                       rating_schedule_text(getattr(c, "rating_schedule", ()),
+                                                            units)) if x)
     return (f"conditions: mass {q('mass', c.mass_kg)}, ISA {c.temperature_offset_k:+g} K, "
             f"rating {c.rating}, {c.profile} climb profile, target altitude "
-            f"{q('altitude', c.target_altitude_m)}; limits: {', '.join(limits) or 'none'}")
+            f"{q('altitude', c.target_altitude_m)}; limits: {', '.join(limits) or 'none'}{extra}")
+
+
+def wind_text(wind, units: str) -> str:
+    """The along-track wind in words ("" without wind): "wind -50 kt (headwind)", or the
+    column "wind -10 kt at 0 ft, -40 kt at 20,000 ft" (negative: headwind)."""
+    if wind is None:
+        return ""
+    spd = lambda v: f"{to_display('airspeed', v, units)[0]:+,.0f} {unit_label('airspeed', units)}"  # noqa: E731
+    if not wind.altitude_m:
+        w = wind.along_track_m_s[0]
+        return f"wind {spd(w)} ({'headwind' if w < 0 else 'tailwind' if w > 0 else 'calm'})"
+    alt = lambda h: f"{to_display('altitude', h, units)[0]:,.0f} {unit_label('altitude', units)}"  # noqa: E731
+    return "wind (negative: headwind) " + ", ".join(
+        f"{spd(w)} at {alt(h)}" for h, w in zip(wind.altitude_m, wind.along_track_m_s))
+
+
+def rating_schedule_text(steps, units: str) -> str:
+    """A rating schedule in words ("" for a single rating): "rating max to 1,500 ft, then
+    climb at 90 % thrust"."""
+    if not steps:
+        return ""
+    parts = []
+    for st in steps:
+        derate = "" if st.thrust_fraction == 1.0 else f" at {100 * st.thrust_fraction:g} % thrust"
+        until = ("" if st.until_m is None else
+                 f" to {to_display('altitude', st.until_m, units)[0]:,.0f} "
+                 f"{unit_label('altitude', units)}")
+        parts.append(f"{st.rating}{derate}{until}")
+    return "rating schedule " + ", then ".join(parts)
 
 
 def read_csv(path) -> tuple[list[str], list[list[str]]]:
@@ -407,9 +474,10 @@ def write_trajectory_csv(path, trajectory: Trajectory, units: str = "si",
 
 def write_comparison_csv(path, records: list[dict], units: str = "si",
                          scenario_name: str = "", conditions=None) -> None:
-    """Write the comparison as CSV in ``units``: engineering figures, then the solver
-    diagnostics (:func:`all_columns`), rounded as :func:`display_record` says."""
-    cols = all_columns(units)
+    """Write the comparison as CSV in ``units``: engineering figures (with the time and fuel to
+    the common downrange point when there is one), then the solver diagnostics
+    (:func:`all_columns`), rounded as :func:`display_record` says."""
+    cols = all_columns(units, _has_common(records))
     rows = []
     for rec in records:
         disp = display_record(rec, units)
@@ -418,67 +486,78 @@ def write_comparison_csv(path, records: list[dict], units: str = "si",
               [h for _, h in cols], rows)
 
 
-def flown_schedule_records(results, schedule_lines: dict, units: str = "si") -> list[dict]:
-    """One record per flown schedule (the best schedule per objective, the scenario's own):
-    ``label``, ``kind`` ("best" or "scenario"), ``what`` (the crew schedule's one-line summary
-    from ``schedule_lines``, result stem -> text, or why it cannot be flown), ``against`` (the
-    reference it is measured against), ``time_diff_s`` [s], ``time_diff_pct``, ``fuel_diff``
-    (display units), ``fuel_diff_pct``, ``penalty_pct`` (best schedules: in their objective),
-    ``ranked`` and ``issues``. Differences are None where there is nothing to compare with."""
-    ranked = [r for r in results if isinstance(r, Trajectory) and r.ranked]
-    best_t = min((r.time_s for r in ranked), default=None)
-    best_f = min((r.fuel_kg for r in ranked), default=None)
+def flown_schedule_records(records: list[dict], schedule_lines: dict,
+                           units: str = "si") -> list[dict]:
+    """One record per flown schedule (the best schedule per objective, the scenario's own) in
+    the comparison ``records``: ``label``, ``kind`` ("best" or "scenario"), ``what`` (the crew
+    schedule's one-line summary from ``schedule_lines``, result stem -> text, or why it cannot
+    be flown), ``against`` (the reference it is measured against: the optimum of the same
+    objective for a best schedule, the best ranked rows of the run, to the common point when
+    there is one, for the scenario's own), ``time_diff_s`` [s], ``time_diff_pct``,
+    ``fuel_diff`` (display units), ``fuel_diff_pct``, ``penalty_pct`` (best schedules: in
+    their objective), ``ranked`` and ``issues``; differences None where there is nothing to
+    compare with."""
+    fuel_key = "fuel_to_common_point_kg" if _has_common(records) else "fuel_kg"
+    ranked = [r for r in records if r["ranked"]]
+    best_t = min((r["time_s"] for r in ranked), default=None)
+    best_f = min((r[fuel_key] for r in ranked), default=None)
     out = []
-    for r in results:
-        if r.method not in (Method.SCHEDULE, Method.BEST_SCHEDULE):
+    for rec in records:
+        if rec["method"] not in (Method.SCHEDULE, Method.BEST_SCHEDULE):
             continue
-        rec = {"label": r.label, "kind": "best" if r.method == Method.BEST_SCHEDULE
+        row = {"label": rec["label"], "kind": "best" if rec["method"] == Method.BEST_SCHEDULE
                else "scenario", "against": None, "time_diff_s": None, "time_diff_pct": None,
                "fuel_diff": None, "fuel_diff_pct": None, "penalty_pct": None,
-               "ranked": bool(r.ranked), "objective": str(r.objective)}
-        if not isinstance(r, Trajectory):
-            rec.update(what=f"cannot be flown: {r.message}", issues=[r.message])
-            out.append(rec)
+               "ranked": bool(rec["ranked"]), "objective": str(rec["objective"]),
+               "issues": list(rec["issues"])}
+        if not rec["has_trajectory"]:
+            row["what"] = f"cannot be flown: {'; '.join(rec['issues'])}"
+            out.append(row)
             continue
-        what = schedule_lines.get(result_stem(r.method, r.objective, r.name), r.name)
-        if what.startswith(f"schedule {r.name}: ") and r.method == Method.SCHEDULE:
-            what = what[len(f"schedule {r.name}: "):]
-        rec.update(what=what, issues=list(r.issues))
-        c = r.reference
-        if c is not None:
-            rec.update(against=c.reference, time_diff_s=c.time_difference_s,
-                       time_diff_pct=_pct(r.time_s, c.time_s),
-                       fuel_diff=to_display("mass", c.fuel_difference_kg, units)[0],
-                       fuel_diff_pct=_pct(r.fuel_kg, c.fuel_kg),
-                       penalty_pct=100.0 * c.objective_difference_relative)
-        elif best_t is not None:
-            rec.update(against="best of this run", time_diff_s=r.time_s - best_t,
-                       time_diff_pct=_pct(r.time_s, best_t),
-                       fuel_diff=to_display("mass", r.fuel_kg - best_f, units)[0],
-                       fuel_diff_pct=_pct(r.fuel_kg, best_f))
-        out.append(rec)
+        name = rec.get("name", "")
+        what = schedule_lines.get(result_stem(rec["method"], rec["objective"], name), name)
+        if rec["method"] == Method.SCHEDULE and what.startswith(f"schedule {name}: "):
+            what = what[len(f"schedule {name}: "):]
+        row["what"] = what
+        c = rec.get("reference")
+        if c:
+            row.update(against=c["reference"], time_diff_s=c["time_difference_s"],
+                       time_diff_pct=_pct(rec["time_s"], c["time_s"]),
+                       fuel_diff=to_display("mass", c["fuel_difference_kg"], units)[0],
+                       fuel_diff_pct=_pct(rec["fuel_kg"], c["fuel_kg"]),
+                       penalty_pct=100.0 * c["objective_difference_relative"])
+        elif rec["ranked"] and best_t is not None:
+            where = " to the common point" if fuel_key != "fuel_kg" else ""
+            row.update(against=f"best of this run{where}", time_diff_s=rec["time_s"] - best_t,
+                       time_diff_pct=rec["time_diff_pct"],
+                       fuel_diff=to_display("mass", rec[fuel_key] - best_f, units)[0],
+                       fuel_diff_pct=rec["fuel_diff_pct"])
+        out.append(row)
     return out
 
 
-def format_flown_schedules(results, schedule_lines: dict, units: str = "si") -> str:
-    """For each flown schedule (the best schedule per objective, the scenario's own): what is
-    flown (``schedule_lines``: result stem -> the crew schedule's one-line summary) and its cost
-    against the reference optimum of the same objective (best schedules) or against the best
-    ranked time and fuel of the run (the scenario's schedules)."""
+def format_flown_schedules(records: list[dict], schedule_lines: dict, units: str = "si") -> str:
+    """For each flown schedule (the best schedule per objective, the scenario's own) in the
+    comparison ``records``: what is flown (``schedule_lines``: result stem -> the crew
+    schedule's one-line summary) and its cost against the reference optimum of the same
+    objective (best schedules) or against the best ranked rows of the run (the scenario's own
+    schedules; to the common point when there is one); see :func:`flown_schedule_records`."""
     m_u = unit_label("mass", units)
     lines = []
-    for rec in flown_schedule_records(results, schedule_lines, units):
-        if rec["against"] is None:
-            cost = "" if rec["what"].startswith("cannot") else "; no ranked optimum to compare with"
-        else:
+    for rec in flown_schedule_records(records, schedule_lines, units):
+        if rec["against"] is not None:
             cost = (f"; against the {rec['against']}: {rec['time_diff_s']:+,.1f} s "
                     f"({rec['time_diff_pct']:+.2f} %), {rec['fuel_diff']:+,.1f} {m_u} "
                     f"({rec['fuel_diff_pct']:+.2f} %)")
             if rec["penalty_pct"] is not None:
                 cost += f", penalty {rec['penalty_pct']:+.2f} % in {rec['objective']}"
-        flag = "" if rec["ranked"] or not rec["issues"] else \
-            f" [not ranked: {'; '.join(rec['issues'])}]"
-        lines.append(f"{rec['label']}: {rec['what']}{cost}{flag}")
+        elif rec["what"].startswith("cannot be flown"):
+            cost = ""
+        elif rec["issues"]:
+            cost = f"; not ranked: {'; '.join(rec['issues'])}"
+        else:
+            cost = "; no ranked optimum to compare with"
+        lines.append(f"{rec['label']}: {rec['what']}{cost}")
     return "\n".join(lines)
 
 
@@ -508,6 +587,18 @@ def procedure_cost_rows(costs, units: str = "si") -> tuple[list[str], list[list[
             f"{c.time_s:+,.1f} s ({_pct(c.procedure.time_s, c.free.time_s):+.2f} %)",
             f"{f_diff:+,.1f} {m_u} ({_pct(c.procedure.fuel_kg, c.free.fuel_kg):+.2f} %)"])
     return header, rows
+
+
+def format_common_point(point, units: str = "si") -> str:
+    """Which common downrange point the comparison used, in words ('' without one)."""
+    if point is None:
+        return ""
+    d, du = to_display("distance", point.distance_m, units)
+    text = (f"common point: {d:,.1f} {du} from the start (the farthest distance at which a "
+            "ranked result reaches the target state); results that get there earlier continue in "
+            "level flight at the target state (thrust = drag) to it; the fuel ranking uses the "
+            "fuel to this point")
+    return "\n".join([text] + [f"  {n}" for n in point.notes])
 
 
 def format_procedure_costs(costs, units: str = "si") -> str:

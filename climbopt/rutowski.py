@@ -39,7 +39,11 @@ dash itself; there the problem is degenerate (the cheapest plan would cruise the
 dash at the target), so such points are left out and, on any level that has no other climbing
 point, the plain objective is used (reported in the notes). ``r_d`` is taken at the mass at the
 end of the climb (first order). The "climb on the plain path, then dash" answer is computed too;
-both totals appear in the notes and the cheaper one is returned.
+both totals appear in the notes and the cheaper one is returned. When the range-aware climb
+covers more than the dash distance (its premise fails) while the plain climb covers less, the
+climb that ends exactly at the dash distance is found as well: the distance credit becomes a
+Lagrange multiplier, ``Ps / (r - c r_d V / V_d)`` with ``c`` in [0, 1] set by halving until the
+climb's distance is the dash distance (:func:`_matched_climb`).
 
 Numerics
 --------
@@ -78,6 +82,7 @@ import numpy as np
 
 from climbopt.airspeed import cas_from_mach
 from climbopt.atmosphere import G0, energy_height_m
+from climbopt.cruise import LevelFlightImpossible, cruise, level_flight
 from climbopt.energy import energy_fields, maximise_on_lines
 from climbopt.envelope import FlightQuantities, envelope_for
 from climbopt.results import COLUMNS, Method, Trajectory, Zoom, derive_segments
@@ -129,7 +134,8 @@ class _Cost:
     fuel_weight: float
     time_weight: float
     dash_rate: float | None = None  # r_d, cost per second while dashing
-    dash_tas_m_s: float | None = None  # V_d
+    credit: float = 1.0  # share of the dash-equivalent credit for distance (see _matched_climb)
+    dash_tas_m_s: float | None = None  # V_d: ground speed of the dash (TAS + wind)
 
 
 @dataclass
@@ -146,6 +152,12 @@ class _Problem:
     refine: bool
     rounds: int = 6
     monotone: bool = False  # procedure profile: altitude never decreases
+
+
+def _wind(model, altitude_m):
+    """Along-track wind [m/s] at altitude [m] (0 for a model without wind)."""
+    wind = getattr(model, "wind_m_s", None)
+    return 0.0 if wind is None else wind(altitude_m)
 
 
 def _m_ft(x_m: float) -> str:
@@ -172,7 +184,7 @@ def _fields(prob: _Problem, he, tas, mass):
                          throttle=prob.throttle, rating=prob.rating)
 
 
-def _value(f, cost: _Cost | None, dash: bool):
+def _value(f, cost: _Cost | None, dash: bool, model=None):
     """Objective to maximise at points (``-inf`` where not allowed). ``cost=None``: plain Ps."""
     ps = f.ps_m_s
     ok = f.feasible & (ps > 0.0)
@@ -180,7 +192,8 @@ def _value(f, cost: _Cost | None, dash: bool):
         return np.where(ok, ps, -np.inf)
     denom = cost.fuel_weight * f.fuel_flow_kg_s + cost.time_weight
     if dash:
-        denom = denom - cost.dash_rate * f.tas_m_s / cost.dash_tas_m_s
+        ground = f.tas_m_s + _wind(model, f.altitude_m)
+        denom = denom - cost.credit * cost.dash_rate * ground / cost.dash_tas_m_s
     ok = ok & (denom > 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(ok, ps / denom, -np.inf)
@@ -201,7 +214,7 @@ def _optimise_levels(prob: _Problem, he, mass, cost: _Cost | None, dash: bool,
         def obj(v, line):
             r = rows[line]
             f = _fields(prob, he[r][:, None], v, mass[r][:, None])
-            return _value(f, cost, use_dash)
+            return _value(f, cost, use_dash, prob.model)
         return obj
 
     all_rows = np.arange(he.size)
@@ -390,7 +403,8 @@ def _integrate(prob, path: _Path, mass_fn, start_mass):
     seg = lambda g: np.where(free, 0.0, 0.5 * dhe * (g[:-1] + g[1:]))  # noqa: E731
     t = np.concatenate([[0.0], np.cumsum(seg(inv))])
     fuel = np.concatenate([[0.0], np.cumsum(seg(ff * inv))])
-    dist = np.concatenate([[0.0], np.cumsum(seg(path.tas * inv))])
+    ground = path.tas + _wind(prob.model, h)  # ground speed: TAS plus the along-track wind
+    dist = np.concatenate([[0.0], np.cumsum(seg(ground * inv))])
     return dict(time=t, fuel=fuel, distance=dist, mass=start_mass - fuel, fields=f)
 
 
@@ -407,55 +421,17 @@ def _mass_function(he_nodes, mass_nodes):
 # ------------------------------------------------------------------------------------ dash
 
 
-def _dash_throttle(prob, altitude_m, tas_m_s, mass_kg):
-    """Throttle and fuel flow holding level unaccelerated flight (thrust = drag) at a point.
-
-    Thrust is linear in throttle in the aircraft model, so throttle = D / T(1)."""
-    f = energy_fields(prob.model, altitude_m, tas_m_s, mass_kg, limits=prob.limits,
-                      load_factor=1.0, throttle=1.0, rating=prob.rating)
-    drag = float(f.drag_n)
-    thrust_full = float(f.thrust_n)
-    throttle = drag / thrust_full if thrust_full > 0 else math.inf
-    return throttle, drag, thrust_full, float(f.mach)
-
-
-def _dash(prob, target, mass0, distance_m, steps=16):
-    """Level flight at the target state over ``distance_m``; mass updated (RK4 in distance).
-
-    Returns dict with arrays distance, time, mass, fuel, throttle (relative to the dash start)."""
-    h, v = target.altitude_m, target.tas_m_s
-    model = prob.model
-
-    def rates(m):
-        thr, drag, thrust, mach = _dash_throttle(prob, h, v, m)
-        if thr > prob.throttle + 1e-12:
-            raise InfeasibleMission(
-                f"the dash at the target state (altitude {_m_ft(h)}, Mach {mach:.2f}) needs "
-                f"{drag:,.0f} N of thrust to hold level flight, more than the "
-                f"{thrust * prob.throttle:,.0f} N available with rating {prob.rating!r}",
-                math.nan, h, mach)
-        thr_used = max(thr, model.throttle_min)
-        ff = float(model.fuel_flow_kg_s(h, mach, thr_used, prob.rating))
-        return ff, thr_used
-
-    if distance_m <= 0.0:  # the climb already covers the distance: no dash
-        zero = np.zeros(1)
-        return dict(distance=zero, time=zero, mass=np.full(1, mass0), fuel=zero,
-                    throttle=np.full(1, np.nan))
-    x = np.linspace(0.0, distance_m, steps + 1)
-    m = np.empty_like(x)
-    thr = np.empty_like(x)
-    m[0] = mass0
-    for i in range(steps):
-        dx = x[i + 1] - x[i]
-        ff1, thr[i] = rates(m[i])
-        k1 = -ff1 / v
-        k2 = -rates(m[i] + 0.5 * dx * k1)[0] / v
-        k3 = -rates(m[i] + 0.5 * dx * k2)[0] / v
-        k4 = -rates(m[i] + dx * k3)[0] / v
-        m[i + 1] = m[i] + dx * (k1 + 2 * k2 + 2 * k3 + k4) / 6.0
-    thr[-1] = rates(m[-1])[1]
-    return dict(distance=x, time=x / v, mass=m, fuel=mass0 - m, throttle=thr)
+def _dash(prob, target, mass0, distance_m):
+    """Level flight at the target state over ``distance_m`` of ground (:func:`climbopt.cruise.
+    cruise`); dict with arrays distance, time, mass, fuel, throttle (from the dash start)."""
+    try:
+        leg = cruise(prob.model, target.altitude_m, target.tas_m_s, mass0, distance_m,
+                     rating=prob.rating)
+    except LevelFlightImpossible as exc:
+        raise InfeasibleMission(f"the dash at the target state cannot be flown: {exc} (rating "
+                                f"{prob.rating!r})", math.nan, exc.altitude_m, exc.mach) from None
+    return dict(distance=leg.distance, time=leg.time, mass=leg.mass, fuel=leg.fuel,
+                throttle=leg.throttle)
 
 
 # ------------------------------------------------------------------------------------ solve
@@ -659,13 +635,20 @@ def _climb_and_dash(prob, he_levels, start_mass, cost, target, dash_m, dash_clim
     hef = he_levels[-1]
 
     def dash_info(mass_kg):
-        thr, _, _, mach = _dash_throttle(prob, target.altitude_m, target.tas_m_s, mass_kg)
+        thr, _, _, mach = level_flight(model, target.altitude_m, target.tas_m_s, mass_kg,
+                                       prob.rating)
         ff = float(model.fuel_flow_kg_s(target.altitude_m, mach,
                                         min(max(thr, model.throttle_min), prob.throttle),
                                         prob.rating))
         return cost.fuel_weight * ff + cost.time_weight
 
-    cost = replace(cost, dash_rate=dash_info(start_mass), dash_tas_m_s=target.tas_m_s)
+    ground = target.tas_m_s + float(_wind(model, target.altitude_m))
+    if ground <= 0.0:
+        raise InfeasibleMission(
+            f"the dash cannot cover ground: the headwind at the target altitude "
+            f"({-float(_wind(model, target.altitude_m)):.1f} m/s) is not below the target's true "
+            f"airspeed ({target.tas_m_s:.1f} m/s)", math.nan, target.altitude_m)
+    cost = replace(cost, dash_rate=dash_info(start_mass), dash_tas_m_s=ground)
     variants = {}
     if dash_climb in ("best", "plain"):
         variants["plain"] = _solve_climb(prob, he_levels, start_mass, cost, None, hef, progress,
@@ -673,6 +656,11 @@ def _climb_and_dash(prob, he_levels, start_mass, cost, target, dash_m, dash_clim
     if dash_climb in ("best", "range-aware"):
         variants["range-aware"] = _solve_climb(prob, he_levels, start_mass, cost, dash_info, hef,
                                                progress, objective + " (range-aware)")
+        plain = variants.get("plain")
+        if (variants["range-aware"][1]["distance"][-1] > dash_m
+                and (plain is None or plain[1]["distance"][-1] < dash_m)):
+            variants["distance-matched"] = _matched_climb(prob, he_levels, start_mass, cost,
+                                                          dash_info, dash_m)
     totals, dashes, notes = {}, {}, []
     for name, (_, integ, _, _) in variants.items():
         x_c = integ["distance"][-1]
@@ -685,6 +673,9 @@ def _climb_and_dash(prob, he_levels, start_mass, cost, target, dash_m, dash_clim
     for name, (tt, ff, xc) in totals.items():
         over = (" - more than the dash distance, so the range-aware premise (a dash after "
                 "the climb) fails" if name == "range-aware" and xc > dash_m else "")
+        if name == "distance-matched":
+            over = (f"; the range-aware credit for distance scaled by "
+                    f"{variants[name][3].credit:.3f} so that the climb ends at the dash distance")
         notes.append(
             f"dash to {dash_m / 1000:.1f} km: {name} energy climb then dash: total time "
             f"{tt:.1f} s, fuel {ff:.1f} kg (climb covers {xc / 1000:.1f} km{over})")
@@ -699,6 +690,33 @@ def _climb_and_dash(prob, he_levels, start_mass, cost, target, dash_m, dash_clim
             "distance more cheaply than the dash itself (degenerate range-aware objective); "
             "the plain objective was used there")
     return variants[variant], dashes[variant], notes
+
+
+#: Halvings of the distance credit in :func:`_matched_climb`, and its coarse grid.
+_MATCH_STEPS = 12
+_MATCH_GRID = (100, 80)
+
+
+def _matched_climb(prob, he_levels, start_mass, cost, dash_info, dash_m):
+    """The climb that reaches the target state exactly at the dash distance, for a mission where
+    the range-aware climb overshoots it and the plain climb falls short.
+
+    Minimising the cost of the climb subject to its ground distance being the dash distance
+    makes the distance credit of the range-aware objective a Lagrange multiplier: on each level
+    maximise Ps / (r - c r_d V_g / V_d) with c in [0, 1] (c = 0 the plain climb, c = 1 the
+    range-aware one). c is found by halving its interval (:data:`_MATCH_STEPS` times, on a
+    coarse grid of energy levels x speeds) until the climb covers the dash distance, then the
+    path is solved on the full grid at that c."""
+    coarse = replace(prob, points=min(prob.points, _MATCH_GRID[1]), rounds=4)
+    levels = np.linspace(he_levels[0], he_levels[-1], min(he_levels.size, _MATCH_GRID[0]))
+    lo, hi = 0.0, 1.0
+    for _ in range(_MATCH_STEPS):
+        c = 0.5 * (lo + hi)
+        _, integ, _, _ = _solve_climb(coarse, levels, start_mass, replace(cost, credit=c),
+                                      dash_info, levels[-1], None, "")
+        lo, hi = (c, hi) if integ["distance"][-1] < dash_m else (lo, c)
+    return _solve_climb(prob, he_levels, start_mass, replace(cost, credit=0.5 * (lo + hi)),
+                        dash_info, he_levels[-1], None, "distance-matched")
 
 
 def _gamma_along(path: _Path, ps, tas):

@@ -154,10 +154,33 @@ class Propulsion:
 
 
 @dataclass(frozen=True)
+class RatingStep:
+    """One step of a mission's rating schedule: engine rating ``rating`` at ``thrust_fraction``
+    of its thrust (a derate; fuel flow in proportion, as for the throttle) up to the altitude
+    ``until_m`` [m] (None: to the end of the mission)."""
+
+    rating: str
+    until_m: float | None = None
+    thrust_fraction: float = 1.0
+
+
+@dataclass(frozen=True)
+class WindProfile:
+    """Along-track wind component [m/s] (positive: tailwind, negative: headwind) against
+    altitude [m]: one constant value (``altitude_m`` empty) or a table (strictly increasing
+    altitudes, one value each; held constant beyond its ends)."""
+
+    along_track_m_s: tuple[float, ...]
+    altitude_m: tuple[float, ...] = ()
+
+
+@dataclass(frozen=True)
 class AtmosphereSpec:
-    """Standard atmosphere (US 1976) with a temperature offset [K] (ISA + dT)."""
+    """Standard atmosphere (US 1976) with a temperature offset [K] (ISA + dT) and an optional
+    along-track wind."""
 
     temperature_offset_k: float = 0.0
+    wind: WindProfile | None = None
 
 
 @dataclass(frozen=True)
@@ -190,6 +213,7 @@ class Mission:
     rating: str | None = None
     profile: Literal["procedure", "free"] = "procedure"
     acceleration_share: float = 0.5
+    rating_schedule: tuple[RatingStep, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -223,6 +247,7 @@ class Limits:
     max_altitude_m: float | None = None
     max_load_factor: float = 3.0
     cas_restriction: tuple[float, float] | None = None
+    buffet_load_factor: float | None = None
 
 
 @dataclass(frozen=True)
@@ -324,11 +349,14 @@ _PROPULSION_KEYS = ("default_rating", "throttle_min", "throttle_max", "thrust_al
                     "thrust_scale", "ratings")
 _RATING_KEYS = ("kind", "mach", "altitude", "thrust", "shaft_power", "propeller_efficiency",
                 "fuel_flow", "tsfc", "specific_impulse", "psfc")
-_ATMOSPHERE_KEYS = ("temperature_offset",)
+_ATMOSPHERE_KEYS = ("temperature_offset", "wind")
+_WIND_KEYS = ("along_track", "altitude")
+_RATING_STEP_KEYS = ("rating", "until", "thrust_fraction")
 _MISSION_KEYS = ("start", "target", "dash_distance", "rating", "profile", "acceleration_share")
 _POINT_KEYS = ("altitude", "mach", "tas", "cas", "eas", "flight_path_angle")
 _SPEED_KINDS = ("mach", "tas", "cas", "eas")
 _LIMITS_KEYS = ("max_dynamic_pressure", "max_mach", "max_cas", "min_altitude", "max_altitude",
+                "buffet_load_factor",
                 "max_load_factor", "cas_restriction")
 _CAS_RESTRICTION_KEYS = ("cas", "below")
 _SOLVER_KEYS = ("grid_altitude_points", "grid_speed_points", "intervals", "transcription",
@@ -1070,7 +1098,41 @@ def _read_atmosphere(r: _Reader, doc: dict) -> AtmosphereSpec | None:
     dt = r.quantity(node, "temperature_offset", "atmosphere", "temperature_difference", required=False,
                     default=0.0, minimum=-80.0, maximum=80.0,
                     expect="an offset from the standard temperature between -80 K and +80 K")
-    return None if dt is None else AtmosphereSpec(temperature_offset_k=dt)
+    n_before = r.count
+    wind = _read_wind(r, node) if "wind" in node else None
+    if dt is None or r.count != n_before:
+        return None
+    return AtmosphereSpec(temperature_offset_k=dt, wind=wind)
+
+
+#: Largest wind speed accepted [m/s] (about 300 kt: beyond any jet stream).
+_MAX_WIND_M_S = 155.0
+
+
+def _read_wind(r: _Reader, atmosphere: dict) -> WindProfile | None:
+    """``[atmosphere.wind]``: ``along_track = "-50 kt"`` (constant; negative is a headwind) or
+    ``altitude = [...]`` with an ``along_track = [...]`` column of the same length."""
+    path = "atmosphere.wind"
+    node = r.section(atmosphere, "wind", "atmosphere", _WIND_KEYS)
+    if node is None:
+        return None
+    expect = "a wind speed within +-300 kt, e.g. \"-50 kt\" (negative: headwind)"
+    if "altitude" not in node:
+        w = r.quantity(node, "along_track", path, "speed", minimum=-_MAX_WIND_M_S,
+                       maximum=_MAX_WIND_M_S, expect=expect)
+        return None if w is None else WindProfile((w,))
+    alt = r.grid(node, "altitude", path, "altitude")
+    values = r.array(node, "along_track", path, "speed")
+    if alt is None or values is None:
+        return None
+    if len(values) != len(alt):
+        r.problem(f"{path}.along_track", f"has {len(values)} values but {path}.altitude has "
+                                         f"{len(alt)}; expected one wind per altitude")
+        return None
+    if not r.check_values(values, f"{path}.along_track", minimum=-_MAX_WIND_M_S,
+                          maximum=_MAX_WIND_M_S, what=expect):
+        return None
+    return WindProfile(tuple(values), tuple(alt))
 
 
 def _read_point(r: _Reader, mission: dict, key: str, dt_k: float | None) -> FlightPoint | None:
@@ -1122,9 +1184,14 @@ def _read_mission(r: _Reader, doc: dict, dt_k: float | None) -> Mission | None:
     target = _read_point(r, node, "target", dt_k)
     dash = r.quantity(node, "dash_distance", "mission", "length", required=False, minimum=0.0,
                       strict_min=True, expect="a positive ground distance, e.g. \"150 nmi\"")
-    rating = r.string(node, "rating", "mission", required=False)
-    if rating is not None and r.rating_names is not None and rating not in r.rating_names:
-        _unknown_rating(r, "mission.rating", rating, r.rating_names)
+    steps = ()
+    if isinstance(node.get("rating"), list):
+        steps = _read_rating_schedule(r, node["rating"])
+        rating = steps[0].rating if steps else None
+    else:
+        rating = r.string(node, "rating", "mission", required=False)
+        if rating is not None and r.rating_names is not None and rating not in r.rating_names:
+            _unknown_rating(r, "mission.rating", rating, r.rating_names)
     profile = r.string(node, "profile", "mission", required=False, default="procedure",
                        choices=("procedure", "free"))
     share = r.quantity(node, "acceleration_share", "mission", "dimensionless", required=False,
@@ -1133,7 +1200,48 @@ def _read_mission(r: _Reader, doc: dict, dt_k: float | None) -> Mission | None:
     if r.count != n_before or None in (start, target):
         return None
     return Mission(start=start, target=target, dash_distance_m=dash, rating=rating, profile=profile,
-                   acceleration_share=share)
+                   acceleration_share=share, rating_schedule=steps)
+
+
+def _read_rating_schedule(r: _Reader, raw: list) -> tuple[RatingStep, ...]:
+    """``mission.rating = [{ rating = "max", until = "1500 ft" }, { rating = "climb" }]``: the
+    ratings in force, each up to its altitude (the last one without ``until``), optionally
+    derated (``thrust_fraction``). Problems are recorded; () when any."""
+    n_before = r.count
+    steps, previous = [], None
+    if not raw:
+        r.problem("mission.rating", "empty array; expected a rating name or an array of "
+                                    "{ rating = \"...\", until = \"...\" } tables")
+    for i, item in enumerate(raw):
+        fld = f"mission.rating[{i}]"
+        if not isinstance(item, dict):
+            r.problem(fld, f"expected a table {{ rating = \"...\", until = \"...\" }}, got "
+                           f"{_type_name(item)} {_show(item)}")
+            continue
+        r.check_keys(item, fld, _RATING_STEP_KEYS)
+        name = r.string(item, "rating", fld)
+        if name is not None and r.rating_names is not None and name not in r.rating_names:
+            _unknown_rating(r, f"{fld}.rating", name, r.rating_names)
+        last = i == len(raw) - 1
+        until = None
+        if "until" in item:
+            until = r.quantity(item, "until", fld, "altitude", minimum=_ALTITUDE_RANGE_M[0],
+                               maximum=_ALTITUDE_RANGE_M[1], expect="an altitude, e.g. \"1500 ft\"")
+            if last and until is not None:
+                r.problem(f"{fld}.until", "the last rating applies to the end of the mission; "
+                                          "expected no 'until' on it")
+            if until is not None and previous is not None and until <= previous:
+                r.problem(f"{fld}.until", f"{_show(item['until'])} is not above the previous "
+                                          "step's; expected increasing altitudes")
+            previous = until if until is not None else previous
+        elif not last:
+            r.problem(f"{fld}.until", "missing; expected the altitude up to which this rating "
+                                      "applies, e.g. \"1500 ft\"")
+        frac = r.quantity(item, "thrust_fraction", fld, "dimensionless", required=False,
+                          default=1.0, minimum=0.0, maximum=1.0, strict_min=True,
+                          expect="a fraction of the rating's thrust > 0 and <= 1")
+        steps.append(RatingStep(name or "", until, frac if frac is not None else 1.0))
+    return tuple(steps) if r.count == n_before else ()
 
 
 def _read_limits(r: _Reader, doc: dict) -> Limits | None:
@@ -1154,6 +1262,10 @@ def _read_limits(r: _Reader, doc: dict) -> Limits | None:
                       expect="an altitude from -500 m to 70 km")
     nmax = r.quantity(node, "max_load_factor", path, "dimensionless", required=False, default=3.0,
                       minimum=1.0, maximum=15.0, expect="a load factor >= 1 and <= 15")
+    buffet = r.quantity(node, "buffet_load_factor", path, "dimensionless", required=False,
+                        minimum=1.0, maximum=2.5,
+                        expect="a manoeuvre margin to buffet onset as a load factor from 1 to "
+                               "2.5, e.g. 1.3")
     if hmin is not None and hmax is not None and hmax <= hmin:
         r.problem("limits.max_altitude", f"{_show(node['max_altitude'])} is not above min_altitude "
                                          f"{_show(node.get('min_altitude', '0 m'))}; expected max_altitude > "
@@ -1170,7 +1282,8 @@ def _read_limits(r: _Reader, doc: dict) -> Limits | None:
     if r.count != n_before:
         return None
     return Limits(max_dynamic_pressure_pa=q, max_mach=mach, max_cas_m_s=cas, min_altitude_m=hmin,
-                  max_altitude_m=hmax, max_load_factor=nmax, cas_restriction=restriction)
+                  max_altitude_m=hmax, max_load_factor=nmax, cas_restriction=restriction,
+                  buffet_load_factor=buffet)
 
 
 def _read_solver(r: _Reader, doc: dict) -> SolverOptions | None:
@@ -1876,6 +1989,17 @@ def _point_doc(point: FlightPoint) -> dict:
             "flight_path_angle": _si_text(point.flight_path_angle_rad, "rad")}
 
 
+def _atmosphere_doc(atm: AtmosphereSpec) -> dict:
+    out: dict = {"temperature_offset": _si_text(atm.temperature_offset_k, "K")}
+    w = atm.wind
+    if w is not None and not w.altitude_m:
+        out["wind"] = {"along_track": _si_text(w.along_track_m_s[0], "m/s")}
+    elif w is not None:
+        out["wind"] = {"altitude": {"unit": "m", "values": list(w.altitude_m)},
+                       "along_track": {"unit": "m/s", "values": list(w.along_track_m_s)}}
+    return out
+
+
 def _optional(pairs) -> dict:
     """A table of the pairs whose value is not None."""
     return {k: v for k, v in pairs if v is not None}
@@ -1900,8 +2024,14 @@ def _document_of(s: Scenario) -> dict:
                   "throttle_max": prop.throttle_max, "thrust_alignment": prop.thrust_alignment,
                   "thrust_scale": prop.thrust_scale,
                   "ratings": {name: _rating_doc(rt) for name, rt in prop.ratings.items()}}
+    rating = mis.rating
+    if mis.rating_schedule:
+        rating = [_optional([("rating", st.rating),
+                             ("until", None if st.until_m is None else si(st.until_m, "m")),
+                             ("thrust_fraction", st.thrust_fraction)])
+                  for st in mis.rating_schedule]
     mission = _optional([("start", _point_doc(mis.start)), ("target", _point_doc(mis.target)),
-                         ("rating", mis.rating), ("profile", mis.profile),
+                         ("rating", rating), ("profile", mis.profile),
                          ("acceleration_share", mis.acceleration_share),
                          ("dash_distance", None if mis.dash_distance_m is None else si(mis.dash_distance_m, "m"))])
     rc = lim.cas_restriction
@@ -1910,7 +2040,7 @@ def _document_of(s: Scenario) -> dict:
         ("max_mach", lim.max_mach), ("max_cas", None if lim.max_cas_m_s is None else si(lim.max_cas_m_s, "m/s")),
         ("min_altitude", si(lim.min_altitude_m, "m")),
         ("max_altitude", None if lim.max_altitude_m is None else si(lim.max_altitude_m, "m")),
-        ("max_load_factor", lim.max_load_factor),
+        ("max_load_factor", lim.max_load_factor), ("buffet_load_factor", lim.buffet_load_factor),
         ("cas_restriction", None if rc is None else {"cas": si(rc[0], "m/s"), "below": si(rc[1], "m")})])
     solver = {"grid_altitude_points": sol.grid_altitude_points, "grid_speed_points": sol.grid_speed_points,
               "intervals": sol.intervals, "transcription": sol.transcription,
@@ -1918,7 +2048,7 @@ def _document_of(s: Scenario) -> dict:
               "cost_weight": si(sol.cost_weight_kg_per_s, "kg/s"), "time_limit": si(sol.time_limit_s, "s"),
               "ipopt": dict(sol.ipopt)}
     doc = {"scenario": {"name": s.name, "description": s.description}, "aircraft": aircraft,
-           "propulsion": propulsion, "atmosphere": {"temperature_offset": si(s.atmosphere.temperature_offset_k, "K")},
+           "propulsion": propulsion, "atmosphere": _atmosphere_doc(s.atmosphere),
            "mission": mission, "limits": limits, "solver": solver}
     if s.schedules:
         doc["schedules"] = [_optional([

@@ -88,7 +88,9 @@ class Conditions:
     """What a schedule was computed for (SI): start mass [kg], temperature deviation from the
     standard day [K], engine rating, climb profile ("procedure" or "free"), target altitude [m]
     and the limits: max CAS [m/s], max Mach, CAS restriction (CAS [m/s], below altitude [m]),
-    altitude range [m] (None: no limit)."""
+    altitude range [m] (None: no limit); the rating schedule (``RatingStep`` tuple, empty for
+    one rating), the along-track wind (``WindProfile`` or None) and the buffet margin (load
+    factor or None)."""
 
     mass_kg: float
     temperature_offset_k: float
@@ -100,6 +102,9 @@ class Conditions:
     cas_restriction: tuple[float, float] | None = None
     min_altitude_m: float | None = None
     max_altitude_m: float | None = None
+    rating_schedule: tuple = ()
+    wind: object = None
+    buffet_load_factor: float | None = None
 
 
 def conditions_of(scenario, profile: str | None = None) -> Conditions:
@@ -112,7 +117,10 @@ def conditions_of(scenario, profile: str | None = None) -> Conditions:
         profile=profile or getattr(scenario.mission, "profile", "free"),
         target_altitude_m=float(scenario.mission.target.altitude_m),
         max_cas_m_s=lim.max_cas_m_s, max_mach=lim.max_mach, cas_restriction=lim.cas_restriction,
-        min_altitude_m=lim.min_altitude_m, max_altitude_m=lim.max_altitude_m)
+        min_altitude_m=lim.min_altitude_m, max_altitude_m=lim.max_altitude_m,
+        rating_schedule=tuple(getattr(scenario.mission, "rating_schedule", ()) or ()),
+        wind=getattr(scenario.atmosphere, "wind", None),
+        buffet_load_factor=getattr(lim, "buffet_load_factor", None))
 
 
 @dataclass(frozen=True)

@@ -229,6 +229,7 @@ def _rhs_factory(model, rating, body):
 
     forces = fast_scalar_function(model.force_function(rating, body=body))
     dom = model.fit_domain
+    wind = getattr(model, "has_wind", False)
 
     def rhs_for(t0, t1, cl_c, th_c):
         inv = 1.0 / (t1 - t0)
@@ -248,7 +249,7 @@ def _rhs_factory(model, rating, body):
                 (thrust * math.cos(alpha) - drag) / m - G0 * math.sin(gam),
                 (thrust * math.sin(alpha) + lift) / (m * v) - G0 * math.cos(gam) / v,
                 -ff,
-                v * math.cos(gam),
+                v * math.cos(gam) + (float(model.wind_m_s(h)) if wind else 0.0),
             ]
         return rhs
     return rhs_for

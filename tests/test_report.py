@@ -62,8 +62,10 @@ def test_comparison_failed_run_without_trajectory():
     figures, diagnostics = [ln for ln in text.splitlines() if ln.startswith("collocation")]
     assert "not ranked" in figures and "NO" not in figures
     assert diagnostics.split()[3] == "NO" and diagnostics.split()[4] == "1"
-    names, units_ = text.splitlines()[:2]           # units under the names
-    assert names.split()[3] == "fuel" and units_.split()[2] == "[lb]"
+    lines = text.splitlines()
+    rule = next(i for i, ln in enumerate(lines) if ln.startswith("---"))
+    assert lines[rule - 1].split()[3] == "[lb]"          # the units sit under the names
+    assert lines[rule - 2].split()[2] == "fuel"
 
 
 def test_to_display_us_units_by_hand():
@@ -206,7 +208,9 @@ def test_verification_miss_in_table():
     assert rows[1]["ranked"] is False and rows[1]["fuel_diff_pct"] is None
     text = report.format_table(rows, "si")
     lines = text.splitlines()
-    diagnostics = lines[lines.index("solver diagnostics:") + 4:]
+    start = lines.index("solver diagnostics:")
+    rule = next(i for i in range(start, len(lines)) if lines[i].startswith("---"))
+    diagnostics = lines[rule + 1:]
     assert diagnostics[0].endswith("0.025")
     assert diagnostics[1].endswith("3.000 FAILED")
     assert "re-simulation" in text
