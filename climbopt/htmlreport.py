@@ -59,6 +59,7 @@ td.num { white-space: nowrap; }
 tr.highlight td { font-weight: bold; }
 td.best { color: var(--best); font-weight: bold; }
 table.results td:first-child { white-space: nowrap; }
+table.results th, table.results td { padding: .9mm 1.2mm; }
 td.flag { color: var(--warn); font-weight: bold; }
 table.kv th { width: 32%; background: none; border-bottom: .5pt solid var(--rule);
               font-weight: 600; color: var(--muted); vertical-align: top; }
@@ -215,7 +216,9 @@ def _comparison_section(records, flown, units, common_text: str = "") -> str:
     body = [_glance(records, flown, units),
             "<p>Time, fuel and ground distance from the start to the end of the mission; "
             "differences are to the least time and the least fuel among the ranked rows "
-            "(converged, verified, within the fuel capacity).</p>",
+            "(converged, verified, within the fuel capacity)"
+            + ("; the fuel ranking uses the fuel to the common downrange point, see below"
+               if common_text else "") + ".</p>",
             table(header, rows, css="results", cell_class=best)]
     if common_text:
         body.append('<ul class="notes">' + "".join(f"<li>{esc(line.strip())}</li>"

@@ -369,3 +369,26 @@ def test_html_report_marks_unranked_rows():
     assert "NOT CONVERGED: not an optimum" in words and "IPOPT found no feasible point" in words
     assert "5:00" in words and "4:10" in words             # 300 s and 250 s as min:s
     assert "No figures" in words and page.sections[-1] == "notes"
+
+
+def test_conditions_line_states_wind_rating_schedule_and_buffet_margin():
+    """The conditions line names the wind, the rating schedule and the buffet margin when set."""
+    import dataclasses
+
+    from climbopt.report import format_conditions
+    from climbopt.scenario import RatingStep, WindProfile
+    from climbopt.schedule import conditions_of
+
+    plain = conditions_of(load_scenario(TRANSPORT))
+    assert "wind" not in format_conditions(plain, "us") and "buffet" not in format_conditions(
+        plain, "us")
+    c = dataclasses.replace(
+        plain, wind=WindProfile((-50 * KT,)), buffet_load_factor=1.3,
+        rating_schedule=(RatingStep("max", until_m=1500 * FT),
+                         RatingStep("climb", thrust_fraction=0.9)))
+    text = format_conditions(c, "us")
+    assert "buffet margin 1.3 g" in text and "wind -50 kt (headwind)" in text
+    assert "rating schedule max to 1,500 ft, then climb at 90 % thrust" in text
+    column = dataclasses.replace(c, wind=WindProfile((-10 * KT, -40 * KT), (0.0, 6096.0)))
+    assert "wind (negative: headwind) -10 kt at 0 ft, -40 kt at 20,000 ft" in format_conditions(
+        column, "us")
