@@ -83,6 +83,8 @@ class _RatingFits:
             t = rating.fuel_flow_kg_s
             self.fuel = Fit2D(t.mach, t.altitude_m, t.values,
                               f"fuel flow[{rating.name}](Mach,altitude)", "Mach", "altitude [m]")
+        #: thrust (or power) and fuel flow share one Mach x altitude grid: one basis serves both
+        self.shared_grid = self.fuel is not None and self.main.same_grid(self.fuel)
         self.domain = _intersect(
             Domain(self.main.data_v.low, self.main.data_v.high,
                    self.main.data_u.low, self.main.data_u.high),
@@ -235,14 +237,22 @@ class AircraftModel:
         r = self._rating(rating)
         thrust_factor, sfc_factor = self._day_factors(altitude_m)
         scale = throttle * self.thrust_scale * thrust_factor
-        main = r.main(mach, altitude_m, check=check) * scale  # thrust [N] or shaft power [W]
+        fuel_table = None
+        if r.shared_grid and not (is_casadi(mach) or is_casadi(altitude_m)):
+            basis = r.main.basis(mach, altitude_m, check=check)  # one basis for both tables
+            main, fuel_table = r.main.at(basis), r.fuel.at(basis)
+        else:
+            main = r.main(mach, altitude_m, check=check)
+        main = main * scale  # thrust [N] or shaft power [W]
         if r.kind == "jet":
             thrust = main
         else:
             tas = mach * self.atmosphere(altitude_m).speed_of_sound_m_s
             thrust = r.eta(mach, check=check) * main / tas
         if r.fuel is not None:
-            fuel = r.fuel(mach, altitude_m, check=check) * (scale * sfc_factor)
+            if fuel_table is None:
+                fuel_table = r.fuel(mach, altitude_m, check=check)
+            fuel = fuel_table * (scale * sfc_factor)
         else:
             sfc = r.tsfc_kg_per_n_s if r.kind == "jet" else r.psfc_kg_per_w_s
             fuel = sfc * main * sfc_factor
