@@ -143,6 +143,27 @@ def _default_out(scenario_file: str, suffix: str = "") -> Path:
     return Path("out") / (Path(scenario_file).stem + suffix)
 
 
+#: Figure file formats of ``--format`` (climbopt.plots.FIGURE_FORMATS, not imported here so that
+#: ``climbopt --help`` does not load matplotlib).
+_FIGURE_FORMATS = ("png", "svg", "pdf")
+
+
+def _figure_formats(ctx, param, value: str) -> tuple[str, ...]:
+    """``--format png,svg`` -> ("png", "svg"); unknown names are a usage error (exit 2)."""
+    names = tuple(dict.fromkeys(v.strip().lower() for v in value.split(",") if v.strip()))
+    bad = [n for n in names if n not in _FIGURE_FORMATS]
+    if bad or not names:
+        raise click.BadParameter(f"{value!r}: give one or more of {', '.join(_FIGURE_FORMATS)}, "
+                                 "separated by commas (e.g. png,svg)")
+    return names
+
+
+def _format_option(f):
+    return click.option("--format", "formats", default="png", show_default=True,
+                        callback=_figure_formats, metavar="FORMATS",
+                        help="Figure file formats, comma-separated: png, svg, pdf.")(f)
+
+
 def _check_out_dir(out: Path) -> None:
     """Refuse an unusable output folder before any work (exit 2)."""
     from climbopt.report import OutputFolderError, check_output_folder
@@ -185,7 +206,7 @@ def _stoppable(out: Path):
 
 
 def _write_run_folder(folder: Path, scenario, scenario_file, run, records, code, units, model,
-                      bar):
+                      bar, formats=("png",)):
     """Write every output of ``run`` into ``folder`` (a temporary folder); return the summary
     document and the crew schedules."""
     from climbopt import plots, report
@@ -217,10 +238,10 @@ def _write_run_folder(folder: Path, scenario, scenario_file, run, records, code,
                             ("ps_tas", plots.plot_ps_map, "tas"),
                             ("fs_mach", plots.plot_fs_map, "mach")):
             ax = fn(emap, trajs, x=x, units=units)
-            figures += plots.save_figure(ax.figure, folder / name)
+            figures += plots.save_figure(ax.figure, folder / name, formats)
         axes = plots.plot_time_histories(trajs, units=units)
         axes[0].set_title(scenario.name, fontsize=10)
-        figures += plots.save_figure(axes[0].figure, folder / "time_histories")
+        figures += plots.save_figure(axes[0].figure, folder / "time_histories", formats)
     bar.done()
 
     costs = report.format_procedure_costs(run.procedure_costs, units)
@@ -255,11 +276,12 @@ def _write_run_folder(folder: Path, scenario, scenario_file, run, records, code,
 @click.option("--quiet", is_flag=True, help="No progress bars and no list of files.")
 @click.option("--json", "as_json", is_flag=True,
               help="Print the summary as JSON on stdout (and nothing else).")
-def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
+@_format_option
+def run(scenario_file, method, objective, out_dir, units, quiet, as_json, formats):
     """Solve SCENARIO, print the comparison table and write the results folder.
 
     Writes summary.json, comparison.csv, report.txt, a per-point CSV and a climb schedule CSV for
-    each result, and the plots (PNG and SVG). Exit codes: 0 ok, 2 bad input, 3 infeasible
+    each result, and the plots (PNG; SVG and PDF with --format). Exit codes: 0 ok, 2 bad input, 3 infeasible
     mission, 4 solver failure (an unconverged, unverified or over-capacity optimisation; the
     results are still written and labelled), 130 interrupted (Ctrl-C), 143 terminated.
     """
@@ -293,7 +315,7 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
         records = report.comparison(list(result.results))
         with report.atomic_output_dir(out, "climbopt run") as folder:
             doc, schedules = _write_run_folder(folder, scenario, scenario_file, result, records,
-                                               code, units, model, bar)
+                                               code, units, model, bar, formats)
     if as_json:
         click.echo(report.dumps_summary(doc))
     else:
@@ -328,9 +350,11 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
 @click.option("--units", type=click.Choice(["si", "us"]), default="si", show_default=True,
               help="Units of the plots and of the CSV (us: ft, kt, lb, ft/min).")
 @click.option("--quiet", is_flag=True, help="No progress and no list of files.")
-def map_command(scenario_file, out_dir, units, quiet):
+@_format_option
+def map_command(scenario_file, out_dir, units, quiet, formats):
     """Write the energy-state fields of SCENARIO (Ps, fuel flow, Ps / fuel flow, envelope) at
-    the start mass over altitude x true airspeed, as energy_map.npz and .csv, and their plots."""
+    the start mass over altitude x true airspeed, as energy_map.npz and .csv, and their plots
+    (PNG; SVG and PDF with --format)."""
     from climbopt import plots, report
     from climbopt.aircraft import build_model
     from climbopt.energy import build_energy_map
@@ -352,7 +376,7 @@ def map_command(scenario_file, out_dir, units, quiet):
                             ("ps_tas", plots.plot_ps_map, "tas"),
                             ("fs_mach", plots.plot_fs_map, "mach")):
             ax = fn(emap, [], x=x, units=units)
-            figures += plots.save_figure(ax.figure, folder / name)
+            figures += plots.save_figure(ax.figure, folder / name, formats)
         doc["files"] += sorted(p.name for p in figures)
         report.write_summary_json(folder / "map.json", doc)
         bar.done()
@@ -493,7 +517,7 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
             from climbopt import plots
 
             for stem, fig in plots.sweep_figures(plan, result.rows).items():
-                written += [p for p in plots.save_figure(fig, folder / stem) if p.suffix == ".png"]
+                written += plots.save_figure(fig, folder / stem)
     except sw.SweepError as exc:
         _fail(str(exc), EXIT_BAD_INPUT)
     except Exception as exc:  # outputs after the table: report, keep the table
