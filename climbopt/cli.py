@@ -417,8 +417,11 @@ def map_command(scenario_file, out_dir, units, quiet, formats):
 @click.option("--retry-failed", is_flag=True, help="Solve again the cases recorded as failed.")
 @click.option("--no-plots", is_flag=True, help="Write the table only.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
+@click.option("--compile/--no-compile", "compile_", default=None,
+              help="Collocation: compile the aircraft's point function to C once (cached on "
+                   "disk) and use it in every case [default: the scenario's solver.compile].")
 def sweep_command(scenario_file, vary, zip_values, method, objective, workers, serial, cluster,
-                  out_dir, parquet, max_cases, retry_failed, no_plots, quiet):
+                  out_dir, parquet, max_cases, retry_failed, no_plots, quiet, compile_):
     """Solve SCENARIO for every combination of the --vary values (a trade study).
 
     Rows stream to the table as cases finish; a re-run of the same command skips the cases
@@ -495,7 +498,7 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
     try:
         result = sw.run_sweep(plan, table, executor=executor, workers=workers, cluster=cluster,
                               max_cases=max_cases, retry_failed=retry_failed, on_start=on_start,
-                              on_case=on_case)
+                              on_case=on_case, compile=compile_)
     except KeyboardInterrupt:
         close_bar()
         click.echo(f"interrupted: the finished cases are in {table}; run the same command again "

@@ -213,10 +213,6 @@ class Fit1D:
         self._power = np.einsum("jpr,jr->jp", self._axis.power, windows)  # (interval, power)
         self._ca = None
 
-    def fingerprint(self) -> bytes:
-        """Bytes that identify the fit (knots and coefficients), for caches of compiled code."""
-        return self.knots.tobytes() + b"|" + self.coefficients.tobytes()
-
     def _casadi_function(self):
         if self._ca is None:
             s = ca.MX.sym("x")
@@ -278,11 +274,6 @@ class Fit2D:
         self._power = np.einsum("ipa,jqb,ijab->ijpq", self._axis_u.power, self._axis_v.power,
                                 win, optimize=True)
         self._ca = None
-
-    def fingerprint(self) -> bytes:
-        """Bytes that identify the fit (knots and coefficients), for caches of compiled code."""
-        return b"|".join([self.knots_u.tobytes(), self.knots_v.tobytes(),
-                          self.coefficients.tobytes()])
 
     def same_grid(self, other: "Fit2D") -> bool:
         """True when ``other`` has the same knots and domain (one basis serves both)."""

@@ -124,8 +124,9 @@ def _energy_state(scenario, model, objective, progress):
     return rutowski.solve_energy_state(scenario, objective, model=model, progress=cb)
 
 
-def _collocation(scenario, model, objective, guess, progress, clock):
-    """Collocation warm-started from ``guess``, re-simulated; (trajectory or FailedRun, error)."""
+def _collocation(scenario, model, objective, guess, progress, clock, compile=None):
+    """Collocation warm-started from ``guess``, re-simulated; (trajectory or FailedRun, error).
+    ``compile``: see :func:`climbopt.collocation.solve_collocation`."""
     from climbopt.collocation import SolverFailure, solve_collocation
     from climbopt.verify import resimulate
 
@@ -133,7 +134,8 @@ def _collocation(scenario, model, objective, guess, progress, clock):
     t0 = time.perf_counter()
     try:
         traj = solve_collocation(scenario, objective, model=model, guess=guess, progress=cb,
-                                 time_limit_s=clock.remaining(f"collocation, minimum {objective}"))
+                                 time_limit_s=clock.remaining(f"collocation, minimum {objective}"),
+                                 compile=compile)
     except SolverFailure as exc:
         error = (f"collocation, minimum {objective}: not converged ({exc.status}, "
                  f"{exc.iterations} iterations): {exc}")
@@ -239,9 +241,14 @@ def run_mission(scenario, model=None, *, method: str = "both", objectives=("time
     return RunResult(tuple(results), tuple(errors), tuple(warnings), tuple(costs))
 
 
-def solve_case(scenario, method: str, objective: str, *, model=None) -> Trajectory:
+def solve_case(scenario, method: str, objective: str, *, model=None,
+               compile: bool | None = None) -> Trajectory:
     """One result for a sweep case: the energy-state solution (``method="energy"``), or the
     collocation solution warm-started from it and re-simulated (``"collocation"``), assessed.
+    ``compile``: evaluate the collocation point function from compiled C (default: the
+    scenario's ``solver.compile``; see :func:`climbopt.collocation.solve_collocation`). The
+    collocation problem built for one case is reused by the next cases of the same aircraft in
+    the same process (:mod:`climbopt.collocation`).
 
     Raises the solvers' exceptions (InfeasibleMission, SolverFailure, TimeLimitExceeded); an
     unranked result is returned with its issues.
@@ -257,7 +264,8 @@ def solve_case(scenario, method: str, objective: str, *, model=None) -> Trajecto
     energy = _energy_state(scenario, model, objective, None)
     if method == "energy":
         return assess(energy, env)
-    row, error = _collocation(scenario, model, objective, energy, None, _Clock(scenario))
+    row, error = _collocation(scenario, model, objective, energy, None, _Clock(scenario),
+                              compile)
     if isinstance(row, FailedRun):
         raise SolverFailure(error, status=row.status, iterations=row.iterations)
     return assess(row, env)

@@ -566,11 +566,11 @@ def test_cli_sweep_ctrl_c_keeps_the_finished_rows_and_exits_130(small_toml, tmp_
     real = sw.run_case
     calls = []
 
-    def interrupted_on_second(scenario, case):
+    def interrupted_on_second(scenario, case, **options):
         calls.append(case.index)
         if len(calls) == 2:
             raise KeyboardInterrupt
-        return real(scenario, case)
+        return real(scenario, case, **options)
 
     monkeypatch.setattr(sw, "run_case", interrupted_on_second)
     out = tmp_path / "o"
@@ -588,3 +588,30 @@ def test_cli_sweep_ctrl_c_keeps_the_finished_rows_and_exits_130(small_toml, tmp_
     assert [x["thrust_scale"] for x in rows] == [0.9, 1.0, 1.1]
     # more thrust: a faster climb (common practice, no source)
     assert rows[0]["time_s"] > rows[1]["time_s"] > rows[2]["time_s"]
+
+
+def test_compile_only_where_it_pays(twin, tmp_path, monkeypatch):
+    """Collocation sweeps compile the point function once, in the parent, when told to or when
+    at least COMPILE_MIN_CASES cases are to be solved; never for energy-state sweeps, never
+    with --no-compile, and not for a few cases whose artefact is not cached yet."""
+    from climbopt import collocation
+
+    monkeypatch.setenv(collocation.CACHE_ENV, str(tmp_path / "cache"))
+    monkeypatch.setattr(collocation, "_LOADED", {})
+    attempts = []
+
+    def fake_compile(F, path):
+        attempts.append(path)
+        raise OSError("no C compiler here")
+
+    monkeypatch.setattr(collocation, "_compile", fake_compile)
+    energy = _plan(twin, "mass=60,70 t")
+    few = _plan(twin, "mass=60,70 t", method="collocation")
+    assert sw._compile_choice(energy, True, 40) is False
+    assert sw._compile_choice(few, False, 40) is False
+    assert sw._compile_choice(few, None, 2) is False and attempts == []
+    assert sw._compile_choice(few, None, sw.COMPILE_MIN_CASES) is True and len(attempts) == 1
+    assert sw._compile_choice(few, True, 2) is True and len(attempts) == 2
+    # the cases fall back to CasADi's own evaluation and say so
+    _, _, note = collocation.compiled_point_function(twin)
+    assert "compiling failed" in note and "no C compiler here" in note
