@@ -281,8 +281,8 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json, format
     """Solve SCENARIO, print the comparison table and write the results folder.
 
     Writes summary.json, comparison.csv, report.txt, a per-point CSV and a climb schedule CSV for
-    each result, and the plots (PNG; SVG and PDF with --format). Exit codes: 0 ok, 2 bad input, 3 infeasible
-    mission, 4 solver failure (an unconverged, unverified or over-capacity optimisation; the
+    each result, and the plots (PNG; SVG and PDF with --format). Exit codes: 0 ok, 2 bad input,
+    3 infeasible mission, 4 solver failure (an unconverged, unverified or over-capacity optimisation; the
     results are still written and labelled), 130 interrupted (Ctrl-C), 143 terminated.
     """
     from climbopt import report
@@ -343,6 +343,11 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json, format
         raise SystemExit(code)
 
 
+#: Largest grid (each axis) the map figures are drawn from: a figure 110 dpi wide shows no more,
+#: and contouring a finer grid costs time and memory (800 x 800: about 2.5 times the memory).
+_PLOT_GRID = 400
+
+
 @cli.command("map")
 @click.argument("scenario_file", metavar="SCENARIO")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
@@ -371,6 +376,9 @@ def map_command(scenario_file, out_dir, units, quiet, formats):
     with _stoppable(out), report.atomic_output_dir(out, "climbopt map") as folder:
         bar.step("energy map")
         doc = report.write_energy_map(folder, emap, units, scenario.name, scenario_file)
+        if max(emap.shape) > _PLOT_GRID:  # the figures need no finer grid than this
+            emap = build_energy_map(scenario, model=model,
+                                    shape=tuple(min(n, _PLOT_GRID) for n in emap.shape))
         figures = []
         for name, fn, x in (("ps_mach", plots.plot_ps_map, "mach"),
                             ("ps_tas", plots.plot_ps_map, "tas"),
@@ -380,7 +388,8 @@ def map_command(scenario_file, out_dir, units, quiet, formats):
         doc["files"] += sorted(p.name for p in figures)
         report.write_summary_json(folder / "map.json", doc)
         bar.done()
-    click.echo(f"{scenario.name}: energy map {emap.shape[0]} altitudes x {emap.shape[1]} speeds "
+    nh, nv = doc["shape"]
+    click.echo(f"{scenario.name}: energy map {nh} altitudes x {nv} speeds "
                f"at {emap.mass_kg:,.0f} kg, rating {emap.rating}")
     if not quiet:
         click.echo(f"Wrote {out}/: map.json, energy_map.npz, energy_map.csv, plots "

@@ -132,7 +132,8 @@ class _Axis:
         self.n = widths.size
         self.inv_width = 1.0 / widths
         self.bucket = 0.5 * float(widths.min())
-        starts = self.lo + self.bucket * np.arange(int(np.ceil((self.hi - self.lo) / self.bucket)) + 1)
+        n_buckets = int(np.ceil((self.hi - self.lo) / self.bucket)) + 1
+        starts = self.lo + self.bucket * np.arange(n_buckets)
         self.table = np.clip(np.searchsorted(self.breaks, starts, side="right") - 1, 0, self.n - 1)
         nodes = np.array([0.0, 1.0 / 3.0, 2.0 / 3.0, 1.0])
         j = np.repeat(np.arange(self.n), 4)
