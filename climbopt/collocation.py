@@ -1320,10 +1320,12 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
     time_limit_s : float, optional
         Wall-clock budget of the whole solve [s] (IPOPT is stopped when it is spent).
     compile : bool, optional
-        Evaluate the point function from C code compiled with the system C compiler and kept
-        in the on-disk cache (:func:`compiled_point_function`): a few seconds the first time
-        for an aircraft, nothing afterwards, and faster IPOPT iterations; pays in sweeps and
-        repeated runs. Default: the scenario's ``solver.compile`` (false when absent).
+        True: evaluate the point function from C code compiled with the system C compiler and
+        kept in the on-disk cache (:func:`compiled_point_function`): a few seconds the first
+        time for an aircraft, nothing afterwards, and faster IPOPT iterations (it pays in sweeps
+        and repeated runs). None (default): the scenario's ``solver.compile`` when given, else
+        the compiled function only when it is already in the cache (it costs nothing then).
+        False: never.
 
     Returns
     -------
@@ -1355,7 +1357,7 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
     st = _setup(scenario, model, objective)
     solver_opts = scenario.solver
     if compile is None:
-        compile = bool(getattr(solver_opts, "compile", False))
+        compile = getattr(solver_opts, "compile", None)
     n0 = int(intervals or solver_opts.intervals)
     user = dict(solver_opts.ipopt or {})
     user.update(ipopt_options or {})
@@ -1378,10 +1380,11 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
         raise ValueError("guess must be a Trajectory, 'straight' or None")
 
     F, key = _keyed_point_function(st)
-    if compile:
-        F, note = _compiled(F, key)
-        notes.append(note)
-        key += ":compiled"
+    if compile is not False:  # True: compile unless cached; None: use it if cached
+        compiled, note = _compiled(F, key, build=bool(compile))
+        if compiled is not None:
+            F, key = compiled, key + (":compiled" if compiled is not F else "")
+            notes.append(note)
     deadline = None if time_limit_s is None else wall0 + time_limit_s
     mesh = np.linspace(0.0, 1.0, n0 + 1)
     climb0 = _phase_from_guess(g, mesh)

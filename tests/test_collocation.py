@@ -451,8 +451,9 @@ def _cc():
 @pytest.mark.skipif(_cc() is None, reason="no C compiler")
 def test_compiled_point_function_cached_and_invalidated(tmp_path, monkeypatch):
     """The compiled point function equals CasADi's own evaluation to 1e-12 relative; once in
-    the on-disk cache it is loaded, not compiled again; another table value is another
-    artefact (not cached yet), so a changed aircraft never uses a stale one."""
+    the on-disk cache it is loaded, not compiled again, and a solve uses it without being asked
+    to; another table value is another artefact (not cached yet), so a changed aircraft never
+    uses a stale one."""
     from climbopt import collocation
 
     monkeypatch.setenv(collocation.CACHE_ENV, str(tmp_path / "cache"))
@@ -478,8 +479,11 @@ def test_compiled_point_function_cached_and_invalidated(tmp_path, monkeypatch):
     monkeypatch.setattr(collocation, "_LOADED", {})
     again, path2, note2 = collocation.compiled_point_function(scenario)
     assert path2 == path and "from the cache" in note2
-    tr = solve_case(scenario, "collocation", "time", model=model, compile=True)
+    tr = solve_case(scenario, "collocation", "time", model=model)
     assert tr.ranked and any(path.name in n for n in tr.notes)
+    plain = solve_case(scenario, "collocation", "time", model=model, compile=False)
+    assert not any("compiled" in n for n in plain.notes)
+    assert tr.time_s == pytest.approx(plain.time_s, rel=1e-6)
     rating = scenario.propulsion.ratings[scenario.propulsion.default_rating]
     power = rating.shaft_power_w
     values = np.array(power.values, dtype=float)
