@@ -979,15 +979,19 @@ class _Transcription:
 #: Built NLPs of this process, most recently used last (see :func:`_transcription`).
 _TRANSCRIPTIONS: "dict[tuple, _Transcription]" = {}
 #: How many built NLPs a process keeps (a sweep case needs its first mesh and a few refined
-#: ones; the first mesh is shared by every case of the same aircraft).
-TRANSCRIPTION_CACHE_SIZE = 16
+#: ones; the first mesh is shared by every case of the same aircraft and stays in).
+TRANSCRIPTION_CACHE_SIZE = 8
 
 
 def _transcription(F, key: str, mesh: np.ndarray, n_u: int, has_dash: bool,
                    ipopt_opts: dict) -> tuple[_Transcription, bool]:
     """The NLP for (point function ``key``, mesh, dash, options): from this process's cache or
-    built now. Returns (transcription, reused)."""
-    full = (key, mesh.tobytes(), n_u, has_dash, repr(sorted(ipopt_opts.items())))
+    built now. Returns (transcription, reused). Each thread has its own (a solver object and
+    its iteration callback serve one solve at a time; Dask workers may run several)."""
+    import threading
+
+    full = (threading.get_ident(), key, mesh.tobytes(), n_u, has_dash,
+            repr(sorted(ipopt_opts.items())))
     tr = _TRANSCRIPTIONS.pop(full, None)
     reused = tr is not None
     if tr is None:
