@@ -107,25 +107,43 @@ def median_runs(variants: dict, repeat: int) -> dict:
 # 1. climbopt run
 
 
+def _prepare_compiled(path: Path, cache: Path) -> None:
+    """Compile the point function of ``path`` into ``cache`` (what a first sweep or a run with
+    ``solver.compile`` leaves behind)."""
+    code = ("import sys; from climbopt.scenario import load_scenario; "
+            "from climbopt.collocation import compiled_point_function; "
+            "compiled_point_function(load_scenario(sys.argv[1]))")
+    subprocess.run([sys.executable, "-c", code, str(path)], check=True, cwd=ROOT,
+                   env={**os.environ, "PYTHONPATH": str(ROOT), "CLIMBOPT_CACHE_DIR": str(cache)})
+
+
 def section_run(prev: Path, repeat: int, demos) -> None:
-    print("\n1. climbopt run SCENARIO (both methods, both objectives, plots): CPU s (wall s)")
+    print("\n1. climbopt run SCENARIO (both methods, both objectives, plots): CPU s (wall s); "
+          "'this' with an empty cache of compiled code (a first run), 'compiled' with the "
+          "aircraft's point function compiled before (a later run)")
     load("before")
-    print(f"  {'scenario':<26} {'previous (png+svg)':>20} {'this (png)':>14} {'ratio':>6} "
-          f"{'this (png,svg)':>16} {'target':>7}")
+    print(f"  {'scenario':<20} {'previous (png+svg)':>19} {'this (png)':>14} {'ratio':>6} "
+          f"{'this (png,svg)':>15} {'compiled (png)':>15} {'ratio':>6} {'target':>7}")
     work = Path(tempfile.mkdtemp(prefix="bench-run-"))
+    empty, filled = {"CLIMBOPT_CACHE_DIR": str(work / "empty")}, work / "filled"
     try:
         for path in demos:
-            def run(tree, *extra, _path=path):
+            _prepare_compiled(path, filled)
+
+            def run(tree, *extra, env=empty, _path=path):
                 out = work / f"{tree.name}-{len(extra)}"
                 shutil.rmtree(out, ignore_errors=True)
-                return measure(cli("run", _path, "--out", out, "--quiet", *extra), tree)[:3]
+                return measure(cli("run", _path, "--out", out, "--quiet", *extra), tree, env)[:3]
 
-            res = median_runs({"prev": lambda: run(prev), "png": lambda: run(ROOT),
-                               "svg": lambda: run(ROOT, "--format", "png,svg")}, repeat)
-            p, n, s = res["prev"], res["png"], res["svg"]
+            res = median_runs({
+                "prev": lambda: run(prev), "png": lambda: run(ROOT),
+                "svg": lambda: run(ROOT, "--format", "png,svg"),
+                "compiled": lambda: run(ROOT, env={"CLIMBOPT_CACHE_DIR": str(filled)})}, repeat)
+            p, n, s, c = res["prev"], res["png"], res["svg"], res["compiled"]
             ok = "met" if n[0] <= 0.5 * p[0] else "NOT met"
-            print(f"  {path.stem:<26} {p[0]:>11.2f} ({p[1]:5.2f}) {n[0]:>6.2f} ({n[1]:5.2f}) "
-                  f"{n[0] / p[0]:>6.2f} {s[0]:>7.2f} ({s[1]:5.2f}) {ok:>7}")
+            print(f"  {path.stem:<20} {p[0]:>10.2f} ({p[1]:5.2f}) {n[0]:>6.2f} ({n[1]:5.2f}) "
+                  f"{n[0] / p[0]:>6.2f} {s[0]:>6.2f} ({s[1]:5.2f}) {c[0]:>6.2f} ({c[1]:5.2f}) "
+                  f"{c[0] / p[0]:>6.2f} {ok:>7}")
     finally:
         shutil.rmtree(work, ignore_errors=True)
     load("after")

@@ -428,7 +428,8 @@ def map_command(scenario_file, out_dir, units, quiet, formats):
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 @click.option("--compile/--no-compile", "compile_", default=None,
               help="Collocation: compile the aircraft's point function to C once (cached on "
-                   "disk) and use it in every case [default: the scenario's solver.compile].")
+                   "disk) and use it in every case [default: solver.compile of the scenario, "
+                   "else only when already cached or at least 16 cases are to be solved].")
 def sweep_command(scenario_file, vary, zip_values, method, objective, workers, serial, cluster,
                   out_dir, parquet, max_cases, retry_failed, no_plots, quiet, compile_):
     """Solve SCENARIO for every combination of the --vary values (a trade study).
