@@ -1055,6 +1055,36 @@ def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init: tuple, ipopt_opts: dict,
     )
 
 
+#: Last converged first mesh pass per (thread, point function, mesh, objective, dash), for
+#: :func:`solve_collocation`'s ``from_neighbour``: (climb phase, dash phase, multipliers).
+_NEIGHBOURS: dict = {}
+
+
+def _neighbour_key(key: str, mesh: np.ndarray, st: _Setup) -> tuple:
+    import threading
+
+    return (threading.get_ident(), key, mesh.tobytes(), st.objective, st.dash_m is not None)
+
+
+def _remember_neighbour(near: tuple, sol: _Solution) -> None:
+    _NEIGHBOURS.pop(near, None)
+    while len(_NEIGHBOURS) >= TRANSCRIPTION_CACHE_SIZE:
+        _NEIGHBOURS.pop(next(iter(_NEIGHBOURS)))
+    _NEIGHBOURS[near] = (sol.climb, sol.dash, (sol.lam_x, sol.lam_g))
+
+
+def _neighbour_pass(st: _Setup, F, mesh: np.ndarray, opts: dict, report, key: str,
+                    deadline, near: tuple):
+    """(solution or None, iterations spent): the first mesh pass warm-started from the last
+    converged first pass under ``near`` (IPOPT's warm-start options, as on refinement
+    passes); None when there is none or IPOPT did not converge from it."""
+    start = _NEIGHBOURS.get(near)
+    if start is None:
+        return None, 0
+    sol = _solve_mesh(st, F, mesh, start, opts, report, key=key, deadline=deadline)
+    return (sol if sol.success else None), sol.iterations
+
+
 def _function_key(F) -> str:
     """A hash of a CasADi Function's serialised form: equal keys, equal functions (the table
     data, the limits and the algebra are all in it)."""
@@ -1301,7 +1331,8 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
                       progress=None, intervals: int | None = None,
                       ipopt_options: dict | None = None,
                       time_limit_s: float | None = None,
-                      compile: bool | None = None) -> Trajectory:
+                      compile: bool | None = None,
+                      from_neighbour: bool = False) -> Trajectory:
     """Optimal climb by Hermite-Simpson collocation and IPOPT (see the module docstring).
 
     Parameters
@@ -1330,6 +1361,12 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
         and repeated runs). None (default): the scenario's ``solver.compile`` when given, else
         the compiled function only when it is already in the cache (it costs nothing then).
         False: never.
+    from_neighbour : bool
+        Start the first mesh pass from the solution and multipliers of the last solve with
+        ``from_neighbour`` of the same aircraft, first mesh and objective in this thread (in a
+        sweep: the neighbouring case), which takes about half the IPOPT iterations of a start
+        from ``guess``; ``guess`` is used when there is none or that start fails. The optimum
+        is the same to IPOPT's tolerance (the first mesh, and so the refinement, are the same).
 
     Returns
     -------
@@ -1391,6 +1428,7 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
             notes.append(note)
     deadline = None if time_limit_s is None else wall0 + time_limit_s
     mesh = np.linspace(0.0, 1.0, n0 + 1)
+    near = _neighbour_key(key, mesh, st) if from_neighbour else None
     climb0 = _phase_from_guess(g, mesh)
     dash0 = None
     if st.dash_m is not None:
@@ -1418,8 +1456,19 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
             say(f"mesh pass {npass + 1}: IPOPT iteration {k}, scaled objective {f:.6g}", None)
 
         opts = first_opts if npass == 0 else refine_opts
-        sol = _solve_mesh(st, F, mesh, init, opts, report if progress is not None else None,
-                          key=key, deadline=deadline)
+        sol = None
+        if npass == 0 and near is not None:
+            sol, spent = _neighbour_pass(st, F, mesh, refine_opts, report if progress else None,
+                                         key, deadline, near)
+            total_iter += spent
+            if sol is not None:
+                notes.append("first mesh pass started from the previous case's solution and "
+                             "multipliers (same aircraft, mesh and objective, this process)")
+        if sol is None:
+            sol = _solve_mesh(st, F, mesh, init, opts, report if progress is not None else None,
+                              key=key, deadline=deadline)
+        if npass == 0 and near is not None and sol.success:
+            _remember_neighbour(near, sol)
         total_iter += sol.iterations
         ipopt_s += sol.ipopt_s
         history.append((sol.intervals, sol.iterations, sol.objective_value, sol.ipopt_s))

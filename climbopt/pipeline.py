@@ -124,9 +124,10 @@ def _energy_state(scenario, model, objective, progress):
     return rutowski.solve_energy_state(scenario, objective, model=model, progress=cb)
 
 
-def _collocation(scenario, model, objective, guess, progress, clock, compile=None):
+def _collocation(scenario, model, objective, guess, progress, clock, compile=None,
+                 from_neighbour=False):
     """Collocation warm-started from ``guess``, re-simulated; (trajectory or FailedRun, error).
-    ``compile``: see :func:`climbopt.collocation.solve_collocation`."""
+    ``compile``, ``from_neighbour``: see :func:`climbopt.collocation.solve_collocation`."""
     from climbopt.collocation import SolverFailure, solve_collocation
     from climbopt.verify import resimulate
 
@@ -135,7 +136,7 @@ def _collocation(scenario, model, objective, guess, progress, clock, compile=Non
     try:
         traj = solve_collocation(scenario, objective, model=model, guess=guess, progress=cb,
                                  time_limit_s=clock.remaining(f"collocation, minimum {objective}"),
-                                 compile=compile)
+                                 compile=compile, from_neighbour=from_neighbour)
     except SolverFailure as exc:
         error = (f"collocation, minimum {objective}: not converged ({exc.status}, "
                  f"{exc.iterations} iterations): {exc}")
@@ -242,13 +243,14 @@ def run_mission(scenario, model=None, *, method: str = "both", objectives=("time
 
 
 def solve_case(scenario, method: str, objective: str, *, model=None,
-               compile: bool | None = None) -> Trajectory:
+               compile: bool | None = None, from_neighbour: bool = False) -> Trajectory:
     """One result for a sweep case: the energy-state solution (``method="energy"``), or the
     collocation solution warm-started from it and re-simulated (``"collocation"``), assessed.
     ``compile``: evaluate the collocation point function from compiled C (default: the
     scenario's ``solver.compile``; see :func:`climbopt.collocation.solve_collocation`). The
     collocation problem built for one case is reused by the next cases of the same aircraft in
-    the same process (:mod:`climbopt.collocation`).
+    the same process (:mod:`climbopt.collocation`); with ``from_neighbour`` its first mesh pass
+    also starts from the previous case's solution (same optimum to IPOPT's tolerance).
 
     Raises the solvers' exceptions (InfeasibleMission, SolverFailure, TimeLimitExceeded); an
     unranked result is returned with its issues.
@@ -265,7 +267,7 @@ def solve_case(scenario, method: str, objective: str, *, model=None,
     if method == "energy":
         return assess(energy, env)
     row, error = _collocation(scenario, model, objective, energy, None, _Clock(scenario),
-                              compile)
+                              compile, from_neighbour)
     if isinstance(row, FailedRun):
         raise SolverFailure(error, status=row.status, iterations=row.iterations)
     return assess(row, env)

@@ -443,10 +443,12 @@ def _error_text(exc: BaseException, status: str) -> str:
 
 
 def _solve(scenario: Scenario, method: str, objective: str, compile: bool | None = None):
-    """The case's result through the one pipeline (:func:`climbopt.pipeline.solve_case`)."""
+    """The case's result through the one pipeline (:func:`climbopt.pipeline.solve_case`); a
+    collocation case starts from the solution of the case this process solved before (same
+    optimum to IPOPT's tolerance, about half the iterations of its first mesh pass)."""
     from climbopt.pipeline import solve_case
 
-    return solve_case(scenario, method, objective, compile=compile)
+    return solve_case(scenario, method, objective, compile=compile, from_neighbour=True)
 
 
 def run_case(scenario: Scenario, case: Case, *, compile: bool | None = None) -> dict:

@@ -493,3 +493,24 @@ def test_compiled_point_function_cached_and_invalidated(tmp_path, monkeypatch):
         rating.name: replace(rating, shaft_power_w=replace(power, values=values))}))
     none, path3, note3 = collocation.compiled_point_function(changed, build=False)
     assert none is None and path3 != path and not path3.exists()
+
+
+def test_neighbouring_cases_start_from_each_other_with_the_same_optimum(interceptor):
+    """Sweep-style solves (from_neighbour) start each case's first mesh pass from the previous
+    case's solution and reach the same optimum as independent solves, to 1e-6 relative."""
+    from climbopt import collocation
+
+    scenario, model = interceptor
+    cases = [_changed(scenario, mass=f * model.mass_kg, temperature_offset=dt)
+             for f, dt in ((1.0, 0.0), (0.98, 3.0), (0.96, 6.0))]
+    guesses = [solve_energy_state(c, "time", model=build_model(c)) for c in cases]
+    collocation._NEIGHBOURS.clear()
+    chained = [solve_collocation(c, "time", model=build_model(c), guess=g, from_neighbour=True)
+               for c, g in zip(cases, guesses)]
+    started = ["previous case's solution" in " ".join(t.notes) for t in chained]
+    assert started == [False, True, True]
+    for case, guess, tr in zip(cases, guesses, chained):
+        alone = solve_collocation(case, "time", model=build_model(case), guess=guess)
+        assert tr.time_s == pytest.approx(alone.time_s, rel=1e-6)
+        assert tr.fuel_kg == pytest.approx(alone.fuel_kg, rel=1e-6)
+    assert abs(chained[2].time_s / chained[0].time_s - 1.0) > 1e-3  # the cases really differ
