@@ -1075,14 +1075,14 @@ def _remember_neighbour(near: tuple, sol: _Solution) -> None:
 
 def _neighbour_pass(st: _Setup, F, mesh: np.ndarray, opts: dict, report, key: str,
                     deadline, near: tuple):
-    """(solution or None, iterations spent): the first mesh pass warm-started from the last
-    converged first pass under ``near`` (IPOPT's warm-start options, as on refinement
+    """(solution or None, iterations spent in vain): the first mesh pass warm-started from the
+    last converged first pass under ``near`` (IPOPT's warm-start options, as on refinement
     passes); None when there is none or IPOPT did not converge from it."""
     start = _NEIGHBOURS.get(near)
     if start is None:
         return None, 0
     sol = _solve_mesh(st, F, mesh, start, opts, report, key=key, deadline=deadline)
-    return (sol if sol.success else None), sol.iterations
+    return (sol, 0) if sol.success else (None, sol.iterations)
 
 
 def _function_key(F) -> str:
@@ -1091,6 +1091,21 @@ def _function_key(F) -> str:
     import hashlib
 
     return hashlib.sha256(F.serialize().encode()).hexdigest()
+
+
+def _point_function_for(st: _Setup, compile: bool | None, notes: list):
+    """(point function, key) for a solve: CasADi's own, or the compiled one (``compile`` True:
+    compiled unless cached; None: the scenario's ``solver.compile``, else the cached one only;
+    False: never); what was used is added to ``notes``."""
+    if compile is None:
+        compile = getattr(st.scenario.solver, "compile", None)
+    F, key = _keyed_point_function(st)
+    if compile is not False:
+        compiled, note = _compiled(F, key, build=bool(compile))
+        if compiled is not None:
+            F, key = compiled, key + (":compiled" if compiled is not F else "")
+            notes.append(note)
+    return F, key
 
 
 def _keyed_point_function(st: _Setup):
@@ -1397,8 +1412,6 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
         model = build_model(scenario)
     st = _setup(scenario, model, objective)
     solver_opts = scenario.solver
-    if compile is None:
-        compile = getattr(solver_opts, "compile", None)
     n0 = int(intervals or solver_opts.intervals)
     user = dict(solver_opts.ipopt or {})
     user.update(ipopt_options or {})
@@ -1420,12 +1433,7 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
     else:
         raise ValueError("guess must be a Trajectory, 'straight' or None")
 
-    F, key = _keyed_point_function(st)
-    if compile is not False:  # True: compile unless cached; None: use it if cached
-        compiled, note = _compiled(F, key, build=bool(compile))
-        if compiled is not None:
-            F, key = compiled, key + (":compiled" if compiled is not F else "")
-            notes.append(note)
+    F, key = _point_function_for(st, compile, notes)
     deadline = None if time_limit_s is None else wall0 + time_limit_s
     mesh = np.linspace(0.0, 1.0, n0 + 1)
     near = _neighbour_key(key, mesh, st) if from_neighbour else None
