@@ -212,7 +212,8 @@ class Fit1D:
         self.coefficients = np.asarray(self._spline.c, dtype=float)
         self._axis = _Axis(self.knots)
         windows = self.coefficients[np.arange(self._axis.n)[:, None] + np.arange(4)]
-        self._power = np.einsum("jpr,jr->jp", self._axis.power, windows)  # (interval, power)
+        power = np.einsum("jpr,jr->jp", self._axis.power, windows)  # (interval, power)
+        self._power = np.ascontiguousarray(power.T)  # (power, interval): one gather per power
         self._ca = None
 
     def _casadi_function(self):
@@ -243,7 +244,8 @@ class Fit1D:
         if check:
             _domain_check(self.name, "input", x, self.fit)
         j, s = self._axis.locate(np.clip(x, self.fit.low, self.fit.high).ravel())
-        out = _horner(self._power[j], s)
+        c = self._power
+        out = ((c[3].take(j) * s + c[2].take(j)) * s + c[1].take(j)) * s + c[0].take(j)
         return out.reshape(x.shape) if x.ndim else out[0]
 
 
@@ -279,6 +281,9 @@ class Fit2D:
         # bicubic power form of each cell (i, j): P[i, j, p, q] s^p r^q
         self._power = np.einsum("ipa,jqb,ijab->ijpq", self._axis_u.power, self._axis_v.power,
                                 win, optimize=True)
+        # the same, one row per coefficient s^p r^q (index 4 p + q) over the cells i * nv + j:
+        # 16 one-dimensional gathers are several times faster than one (n, 4, 4) gather
+        self._power_rows = np.ascontiguousarray(self._power.reshape(nu * nv, 16).T)
         self._ca = None
 
     def same_grid(self, other: "Fit2D") -> bool:
@@ -316,8 +321,11 @@ class Fit2D:
             nrow, n_u = q.shape[0], q.shape[1]
             cell = (np.arange(nrow)[:, None] * n_u).repeat(basis.shape[1], 1).ravel() + iu
             return _horner(q.reshape(nrow * n_u, 4)[cell], su).reshape(basis.shape)
-        cells = self._power[iu, iv]  # (n, 4, 4)
-        return _horner(_horner(cells, sv[:, None]), su).reshape(basis.shape)
+        cell = iu * self._power.shape[1] + iv
+        g = [row.take(cell) for row in self._power_rows]
+        in_v = [((g[4 * p + 3] * sv + g[4 * p + 2]) * sv + g[4 * p + 1]) * sv + g[4 * p]
+                for p in range(4)]
+        return (((in_v[3] * su + in_v[2]) * su + in_v[1]) * su + in_v[0]).reshape(basis.shape)
 
     def _casadi_function(self):
         import casadi as ca
