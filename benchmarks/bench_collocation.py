@@ -29,6 +29,7 @@ from climbopt.aircraft import build_model
 from climbopt.collocation import SolverFailure, solve_collocation
 from climbopt.rutowski import solve_energy_state
 from climbopt.scenario import load_scenario
+from climbopt.verify import resimulate
 
 HERE = Path(__file__).resolve().parent
 ROOT = HERE.parent
@@ -62,7 +63,7 @@ def run_case(scenario, model, objective, intervals, start, es_guess):
         try:
             tr = solve_collocation(scenario, objective, model=model, guess=guess,
                                    intervals=intervals)
-            ok = "yes" if tr.verification and tr.verification["ok"] else "NO"
+            ok = "yes" if resimulate(tr, scenario, model).ok else "NO"
             conv = "yes" if tr.converged else "no"
             obj = tr.time_s if objective == "time" else tr.fuel_kg
             iters = tr.iterations

@@ -84,6 +84,8 @@ class _RatingFits:
             t = rating.fuel_flow_kg_s
             self.fuel = Fit2D(t.mach, t.altitude_m, t.values,
                               f"fuel flow[{rating.name}](Mach,altitude)", "Mach", "altitude [m]")
+        #: thrust (or power) and fuel flow share one Mach x altitude grid: one basis serves both
+        self.shared_grid = self.fuel is not None and self.main.same_grid(self.fuel)
         self.domain = _intersect(
             Domain(self.main.data_v.low, self.main.data_v.high,
                    self.main.data_u.low, self.main.data_u.high),
@@ -220,12 +222,15 @@ class AircraftModel:
             raise ValueError(f"unknown engine rating {name!r}; known: {', '.join(self._ratings)}"
                              ) from None
 
-    def _day_factors(self, altitude_m):
-        """(thrust factor, sfc factor) for the temperature offset; (1, 1) on a standard day."""
-        if self.temperature_offset_k == 0.0:
+    def _day_factors(self, altitude_m, offset_k, standard_temperature_k=None):
+        """(thrust factor, sfc factor) for a temperature offset [K] (number or CasADi symbol);
+        (1, 1) for a zero number. ``standard_temperature_k`` may be passed when known."""
+        if not is_casadi(offset_k) and float(offset_k) == 0.0:
             return 1.0, 1.0
-        t_std = self._standard_day(altitude_m).temperature_k
-        ratio = (t_std + self.temperature_offset_k) / t_std
+        t_std = standard_temperature_k
+        if t_std is None:
+            t_std = self._standard_day(altitude_m).temperature_k
+        ratio = (t_std + offset_k) / t_std
         return 1.0 / ratio, _sqrt(ratio)
 
     def thrust_and_fuel_flow(self, altitude_m, mach, throttle=1.0, rating: str | None = None, *,
@@ -234,17 +239,42 @@ class AircraftModel:
 
         Pressure altitude [m], Mach [-], throttle [-] (fraction of the rating).
         """
+        return self.engine(altitude_m, mach, throttle, rating, check=check)
+
+    def engine(self, altitude_m, mach, throttle=1.0, rating: str | None = None, *,
+               thrust_scale=None, temperature_offset_k=None, standard_temperature_k=None,
+               speed_of_sound_m_s=None, check: bool = True):
+        """Net thrust [N] and fuel flow [kg/s] as :meth:`thrust_and_fuel_flow`, with the thrust
+        scale [-] and the temperature offset [K] given (numbers or CasADi symbols; default: the
+        model's own), so that one CasADi graph serves every value. ``standard_temperature_k``
+        (standard-day temperature at the altitude [K]) and ``speed_of_sound_m_s`` (at the
+        offset, propeller models) may be passed when the caller has them.
+        """
         r = self._rating(rating)
-        thrust_factor, sfc_factor = self._day_factors(altitude_m)
-        scale = throttle * self.thrust_scale * thrust_factor
-        main = r.main(mach, altitude_m, check=check) * scale  # thrust [N] or shaft power [W]
+        if thrust_scale is None:
+            thrust_scale = self.thrust_scale
+        if temperature_offset_k is None:
+            temperature_offset_k = self.temperature_offset_k
+        thrust_factor, sfc_factor = self._day_factors(altitude_m, temperature_offset_k,
+                                                      standard_temperature_k)
+        scale = throttle * thrust_scale * thrust_factor
+        fuel_table = None
+        if r.shared_grid and not (is_casadi(mach) or is_casadi(altitude_m)):
+            basis = r.main.basis(mach, altitude_m, check=check)  # one basis for both tables
+            main, fuel_table = r.main.at(basis), r.fuel.at(basis)
+        else:
+            main = r.main(mach, altitude_m, check=check)
+        main = main * scale  # thrust [N] or shaft power [W]
         if r.kind == "jet":
             thrust = main
         else:
-            tas = mach * self.atmosphere(altitude_m).speed_of_sound_m_s
-            thrust = r.eta(mach, check=check) * main / tas
+            if speed_of_sound_m_s is None:
+                speed_of_sound_m_s = self.atmosphere(altitude_m).speed_of_sound_m_s
+            thrust = r.eta(mach, check=check) * main / (mach * speed_of_sound_m_s)
         if r.fuel is not None:
-            fuel = r.fuel(mach, altitude_m, check=check) * (scale * sfc_factor)
+            if fuel_table is None:
+                fuel_table = r.fuel(mach, altitude_m, check=check)
+            fuel = fuel_table * (scale * sfc_factor)
         else:
             sfc = r.tsfc_kg_per_n_s if r.kind == "jet" else r.psfc_kg_per_w_s
             fuel = sfc * main * sfc_factor

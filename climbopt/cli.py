@@ -182,6 +182,27 @@ def _method(value: str) -> str:
     return "energy" if value == "energy-state" else value
 
 
+#: Figure file formats of ``--format`` (climbopt.plots.FIGURE_FORMATS, not imported here so that
+#: ``climbopt --help`` does not load matplotlib).
+_FIGURE_FORMATS = ("png", "svg", "pdf")
+
+
+def _figure_formats(ctx, param, value: str) -> tuple[str, ...]:
+    """``--format png,svg`` -> ("png", "svg"); unknown names are a usage error (exit 2)."""
+    names = tuple(dict.fromkeys(v.strip().lower() for v in value.split(",") if v.strip()))
+    bad = [n for n in names if n not in _FIGURE_FORMATS]
+    if bad or not names:
+        raise click.BadParameter(f"{value!r}: give one or more of {', '.join(_FIGURE_FORMATS)}, "
+                                 "separated by commas (e.g. png,svg)")
+    return names
+
+
+def _format_option(f):
+    return click.option("--format", "formats", default="png", show_default=True,
+                        callback=_figure_formats, metavar="FORMATS",
+                        help="Figure file formats, comma-separated: png, svg, pdf.")(f)
+
+
 def _check_out_dir(out: Path) -> None:
     """Refuse an unusable output folder before any work (exit 2)."""
     from climbopt.report import OutputFolderError, check_output_folder
@@ -237,11 +258,13 @@ def _stoppable(out: Path):
 @click.option("--quiet", is_flag=True, help="No progress bars and no list of files.")
 @click.option("--json", "as_json", is_flag=True,
               help="Print the summary as JSON on stdout (and nothing else).")
-def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
+@_format_option
+def run(scenario_file, method, objective, out_dir, units, quiet, as_json, formats):
     """Solve SCENARIO, print the comparison table and write the results folder.
 
     Writes report.html (the whole run in one page), summary.json, comparison.csv, report.txt, a
-    per-point CSV and a climb schedule CSV for each result, and the plots. Exit codes: 0 ok, 2 bad
+    per-point CSV and a climb schedule CSV for each result, and the plots (PNG; SVG and PDF
+    with --format). Exit codes: 0 ok, 2 bad
     input, 3 infeasible
     mission, 4 solver failure (an unconverged, unverified or over-capacity optimisation; the
     results are still written and labelled), 130 interrupted (Ctrl-C), 143 terminated.
@@ -278,7 +301,8 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
         code = EXIT_SOLVER_FAILURE if result.solver_failure else EXIT_OK
         try:
             doc = write_outputs(result, out, scenario, units=units, model=model,
-                                exit_code=code, progress=bar.step)
+                                exit_code=code, progress=bar.step,
+                                formats=formats)
         except report.OutputFolderError as exc:
             _fail(str(exc), EXIT_BAD_INPUT)
         bar.done()
@@ -312,6 +336,11 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
         raise SystemExit(code)
 
 
+#: Largest grid (each axis) the map figures are drawn from: a figure 110 dpi wide shows no more,
+#: and contouring a finer grid costs time and memory (800 x 800: about 2.5 times the memory).
+_PLOT_GRID = 400
+
+
 @cli.command("map")
 @click.argument("scenario_file", metavar="SCENARIO")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
@@ -328,12 +357,14 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json):
                    "[default: the scenario's].")
 @click.option("--rating", default=None, help="Engine rating name [default: the mission's].")
 @click.option("--quiet", is_flag=True, help="No progress and no list of files.")
+@_format_option
 def map_command(scenario_file, out_dir, units, mass, load_factor, temperature_offset, rating,
-                quiet):
+                quiet, formats):
     """Write the energy-state fields of SCENARIO (Ps, fuel flow, Ps / fuel flow, envelope) over
     altitude x true airspeed, as energy_map.npz and .csv, map.json and their plots; at the start
     mass, 1 g, the scenario's temperature and rating unless --mass, --load-factor,
-    --temperature-offset or --rating say otherwise (validated like a scenario file).
+    --temperature-offset or --rating say otherwise (validated like a scenario file); figures as PNG
+    (SVG and PDF with --format).
     Exit codes: 0 ok, 2 bad input, 130 interrupted, 143 terminated."""
     from climbopt import plots, report
     from climbopt.aircraft import build_model
@@ -357,12 +388,15 @@ def map_command(scenario_file, out_dir, units, mass, load_factor, temperature_of
     with _stoppable(out), report.atomic_output_dir(out, "climbopt map") as folder:
         bar.step("energy map")
         doc = report.write_energy_map(folder, emap, units, scenario.name, scenario_file)
+        if max(emap.shape) > _PLOT_GRID:  # the figures need no finer grid than this
+            emap = build_energy_map(scenario, model=model,
+                                    shape=tuple(min(n, _PLOT_GRID) for n in emap.shape))
         figures = []
         for name, fn, x in (("ps_mach", plots.plot_ps_map, "mach"),
                             ("ps_tas", plots.plot_ps_map, "tas"),
                             ("fs_mach", plots.plot_fs_map, "mach")):
             ax = fn(emap, [], x=x, units=units)
-            figures += plots.save_figure(ax.figure, folder / name)
+            figures += plots.save_figure(ax.figure, folder / name, formats)
         doc["files"] += sorted(p.name for p in figures)
         report.write_summary_json(folder / "map.json", doc)
         bar.done()
@@ -433,8 +467,13 @@ def _problems_text(exc) -> str:
                    "temperature deviation x target altitude (climb_table.csv, .md, .html).")
 @click.option("--units", **UNITS_OPTION)
 @click.option("--quiet", is_flag=True, help="No progress bar.")
+@click.option("--compile/--no-compile", "compile_", default=None,
+              help="Collocation: compile the aircraft's point function to C once (cached on "
+                   "disk) and use it in every case [default: solver.compile of the scenario, "
+                   "else only when already cached or at least 16 cases are to be solved].")
 def sweep_command(scenario_file, vary, zip_values, method, objective, workers, serial, cluster,
-                  out_dir, parquet, max_cases, retry_failed, no_plots, office, units, quiet):
+                  out_dir, parquet, max_cases, retry_failed, no_plots, office, units, quiet,
+                  compile_):
     """Solve SCENARIO for every combination of the --vary values (a trade study).
 
     Rows stream to the table as cases finish; a re-run of the same command skips the cases
@@ -515,7 +554,7 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
     try:
         result = sw.run_sweep(plan, table, executor=executor, workers=workers, cluster=cluster,
                               max_cases=max_cases, retry_failed=retry_failed, on_start=on_start,
-                              on_case=on_case)
+                              on_case=on_case, compile=compile_)
     except KeyboardInterrupt:
         close_bar()
         click.echo(f"interrupted: the finished cases are in {table}; run the same command again "
@@ -537,7 +576,7 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
             from climbopt import plots
 
             for stem, fig in plots.sweep_figures(plan, result.rows).items():
-                written += [p for p in plots.save_figure(fig, folder / stem) if p.suffix == ".png"]
+                written += plots.save_figure(fig, folder / stem)
         if office:
             from climbopt.office import write_office_tables
 

@@ -93,6 +93,10 @@ __all__ = [
 
 OBJECTIVES = ("time", "fuel", "weighted")
 
+#: Parameters of the point function and the NLP built on it (scenario numbers that sweeps vary
+#: and that enter the dynamics): start mass [kg], temperature offset [K], thrust scale [-].
+POINT_PARAMETERS = ("mass_kg", "temperature_offset_k", "thrust_scale")
+
 #: Scales of the decision variables (state order h, V, gamma, m, x; m is scaled by start mass).
 ALTITUDE_SCALE_M = 1.0e4
 SPEED_SCALE_M_S = 300.0
@@ -218,6 +222,21 @@ class _Setup:
     mach_cap: float
     notes: list
     weight_kg_per_s: float
+    temperature_offset_k: float = 0.0
+    thrust_scale: float = 1.0
+
+    @property
+    def point_params(self) -> np.ndarray:
+        """Values of the point function's parameters (:data:`POINT_PARAMETERS`)."""
+        return np.array([self.m0, self.temperature_offset_k, self.thrust_scale])
+
+    @property
+    def objective_weights(self) -> tuple[float, float]:
+        """(c_t, c_m) of the scaled objective c_t t_f / TIME_SCALE_S + c_m (1 - m_f / m0)."""
+        if self.objective == "time":
+            return 1.0, (FUEL_TIE_BREAK_S / TIME_SCALE_S if self.throttle_free else 0.0)
+        return (self.weight_kg_per_s * TIME_SCALE_S / self.fuel_scale_kg,
+                self.m0 / self.fuel_scale_kg)
 
     @property
     def n_u(self) -> int:
@@ -302,30 +321,37 @@ def _setup(scenario, model, objective: str) -> _Setup:
     return _Setup(scenario, model, objective, rating, throttle_free, body, m0, x_scale, state_lb,
                   state_ub, cl_bound, x0, xf, dash, env, [r.name for r in rows],
                   np.array([r.lower for r in rows]), np.array([r.upper for r in rows]), mach_cap,
-                  notes, w)
+                  notes, w, float(model.temperature_offset_k), float(model.thrust_scale))
 
 
 def _point_function(st: _Setup):
-    """CasADi Function (x_scaled[5], u[n_u]) -> (dx_scaled/dt [5], path [n_path]).
+    """CasADi Function (x_scaled[5], u[n_u], p[3]) -> (dx_scaled/dt [5], path [n_path]).
 
-    The tables (aircraft model and atmosphere, CasADi B-splines) are called in a small MX graph;
-    all remaining algebra sits in one SX function, which keeps derivative evaluation cheap.
+    ``p`` holds the scenario numbers a sweep varies that enter the dynamics
+    (:data:`POINT_PARAMETERS`: start mass, which also scales the mass state, temperature offset
+    and thrust scale), so one function, and one NLP built on it, serves every such case. The
+    tables (aircraft model and atmosphere, CasADi B-splines) are called in a small MX graph; all
+    remaining algebra sits in one SX function, which keeps derivative evaluation cheap.
     """
     import casadi as ca
+
+    from climbopt.atmosphere import GAMMA_AIR, R_AIR
 
     model = st.model
     xs = st.x_scale
     S = float(model.reference_area_m2)
 
-    # SX part: the algebra, with the table values as inputs.
+    # SX part: the algebra, with the table values and the parameters as inputs.
     X = ca.SX.sym("x", 5)
     U = ca.SX.sym("u", st.n_u)
+    m0 = ca.SX.sym("m0")
     p_s, rho_s, a_s, cd_s, clmax_s, cla_s, thr_s, ff_s = (ca.SX.sym(n) for n in (
         "p", "rho", "a", "cd", "clmax", "cla", "thrust", "ff"))
+    scale = ca.vertcat(xs[0], xs[1], xs[2], m0, xs[4])
     h = X[0] * xs[0]
     v = X[1] * xs[1]
     gam = X[2]
-    m = X[3] * xs[3]
+    m = X[3] * m0
     cl = U[0]
     mach = v / a_s
     q = 0.5 * rho_s * v * v
@@ -342,30 +368,148 @@ def _point_function(st: _Setup):
         (t_perp + lift) / (m * v) - G0 * ca.cos(gam) / v,
         -ff_s,
         v * ca.cos(gam),
-    ) / ca.DM(xs)
+    ) / scale
     fq = FlightQuantities(h, mach, p_s, q, cl, clmax_s, lift / (m * G0))
     values = st.envelope.values(fq, smooth=True)
     path = [values[name] for name in st.path_names]
-    algebra = ca.Function("algebra", [X, U, p_s, rho_s, a_s, cd_s, clmax_s, cla_s, thr_s, ff_s],
-                          [f, ca.vertcat(*path)])
+    algebra = ca.Function("algebra", [X, U, m0, p_s, rho_s, a_s, cd_s, clmax_s, cla_s, thr_s,
+                                      ff_s], [f, ca.vertcat(*path)])
 
-    # MX part: the tables.
+    # MX part: the tables, with the day's temperature offset and the thrust scale as symbols.
     Xm = ca.MX.sym("x", 5)
     Um = ca.MX.sym("u", st.n_u)
+    Pm = ca.MX.sym("p", len(POINT_PARAMETERS))
     hm = Xm[0] * xs[0]
     vm = Xm[1] * xs[1]
-    atm = model.atmosphere(hm)
-    machm = vm / atm.speed_of_sound_m_s
+    t_std, ln_p = model.atmosphere.standard_temperature_log_pressure(hm)
+    temperature = t_std + Pm[1]
+    pressure = ca.exp(ln_p)
+    density = pressure / (R_AIR * temperature)
+    sound = ca.sqrt(GAMMA_AIR * R_AIR * temperature)
+    machm = vm / sound
     clm = Um[0]
     thr = Um[1] if st.throttle_free else st.fixed_throttle
     cd = model.drag_coefficient(clm, machm)
     clmax = model.cl_max(machm)
     cla = model.lift_slope_per_rad(machm) if st.body_thrust else ca.MX(1.0)
-    thrust = model.thrust_n(hm, machm, thr, st.rating)
-    ff = model.fuel_flow_kg_s(hm, machm, thr, st.rating)
-    fo, po = algebra(Xm, Um, atm.pressure_pa, atm.density_kg_m3, atm.speed_of_sound_m_s, cd,
-                     clmax, cla, thrust, ff)
-    return ca.Function("point", [Xm, Um], [fo, po])
+    thrust, ff = model.engine(hm, machm, thr, st.rating, thrust_scale=Pm[2],
+                              temperature_offset_k=Pm[1], standard_temperature_k=t_std,
+                              speed_of_sound_m_s=sound)
+    fo, po = algebra(Xm, Um, Pm[0], pressure, density, sound, cd, clmax, cla, thrust, ff)
+    return ca.Function("point", [Xm, Um, Pm], [fo, po])
+
+
+# --------------------------------------------------------------------------------------------
+# Compiled point functions (on-disk cache)
+# --------------------------------------------------------------------------------------------
+
+#: Environment variable naming the folder of compiled point functions; default
+#: ``$XDG_CACHE_HOME/climbopt`` or ``~/.cache/climbopt``.
+CACHE_ENV = "CLIMBOPT_CACHE_DIR"
+#: Version of the code-generation recipe (part of every artefact's key).
+_COMPILE_RECIPE = 1
+#: C compiler flags. -O1: on the 1969 interceptor the first IPOPT pass evaluates as fast as
+#: with -O2 while the compilation takes about half as long (see benchmarks/bench_speed.py).
+COMPILE_FLAGS = ("-O1", "-fPIC", "-shared")
+#: Compiled functions already loaded in this process, by artefact path.
+_LOADED: dict = {}
+
+
+def cache_dir():
+    """Folder of climbopt's compiled artefacts (:data:`CACHE_ENV`, else the user cache)."""
+    import os
+    from pathlib import Path
+
+    if os.environ.get(CACHE_ENV):
+        return Path(os.environ[CACHE_ENV])
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "climbopt"
+
+
+def _artefact_path(key: str):
+    """Path of the compiled point function whose serialised form hashes to ``key``: the key,
+    CasADi's version, the recipe and the flags make the name, so a change of any of them
+    (different table values, limits, climbopt's algebra) compiles anew."""
+    import hashlib
+
+    import casadi as ca
+
+    text = "|".join([key, ca.__version__, str(_COMPILE_RECIPE), " ".join(COMPILE_FLAGS)])
+    return cache_dir() / f"point_{hashlib.sha256(text.encode()).hexdigest()[:32]}.so"
+
+
+def _compile(F, path) -> None:
+    """Generate C for ``F`` and its first and second derivatives (``jac_point``,
+    ``jac_jac_point``, found by CasADi when it differentiates the loaded function), compile it
+    with the system C compiler (``$CC``, else ``cc``) and move it into place atomically."""
+    import os
+    import shutil
+    import subprocess
+    import tempfile
+
+    import casadi as ca
+
+    path.parent.mkdir(parents=True, exist_ok=True)
+    work = tempfile.mkdtemp(prefix="compile-", dir=path.parent)
+    try:
+        cg = ca.CodeGenerator("point.c", {"with_header": False})
+        jac = F.jacobian()
+        for fun in (F, jac, jac.jacobian()):
+            cg.add(fun)
+        cg.generate(work + os.sep)
+        so = os.path.join(work, "point.so")
+        cmd = [os.environ.get("CC") or "cc", *COMPILE_FLAGS, os.path.join(work, "point.c"),
+               "-o", so, "-lm"]
+        subprocess.run(cmd, check=True, capture_output=True, text=True)
+        os.replace(so, path)
+    finally:
+        shutil.rmtree(work, ignore_errors=True)
+
+
+def _compiled(F, key: str, build: bool = True):
+    """(compiled point function, note): loaded from the cache, or compiled now; ``F`` itself
+    (and a note saying why) when no C compiler can build it; (None, note) when it is not cached
+    and ``build`` is false."""
+    import subprocess
+
+    import casadi as ca
+
+    path = _artefact_path(key)
+    if str(path) in _LOADED:
+        return _LOADED[str(path)], f"point function: compiled C ({path.name}, loaded)"
+    note = f"point function: compiled C from the cache ({path.name})"
+    if not path.exists() and not build:
+        return None, f"point function: not compiled yet ({path.name})"
+    if not path.exists():
+        t0 = _time.perf_counter()
+        try:
+            _compile(F, path)
+        except (OSError, subprocess.CalledProcessError) as exc:
+            detail = getattr(exc, "stderr", "") or str(exc)
+            return F, ("point function: compiling failed, evaluated by CasADi instead ("
+                       + " ".join(str(detail).split())[:200] + ")")
+        note = (f"point function: compiled to C in {_time.perf_counter() - t0:.1f} s, cached "
+                f"as {path}")
+    E = ca.external("point", str(path))
+    _LOADED[str(path)] = E
+    return E, note
+
+
+def compiled_point_function(scenario, model=None, objective: str = "time", *,
+                            build: bool = True):
+    """(compiled point function, artefact path, note) of ``scenario``: from the on-disk cache,
+    or compiled now (``build=False``: None when not cached).
+
+    Every scenario that differs only in the numbers of :data:`POINT_PARAMETERS`, the targets,
+    the cost weight or the objective shares it; a sweep calls this once before its workers
+    start so that none of them compiles."""
+    if model is None:
+        from climbopt.aircraft import build_model
+
+        model = build_model(scenario)
+    F, key = _keyed_point_function(_setup(scenario, model, objective))
+    fun, note = _compiled(F, key, build)
+    return fun, _artefact_path(key), note
 
 
 # --------------------------------------------------------------------------------------------
@@ -562,14 +706,20 @@ def _dash_init(st: _Setup, m_c: float, x_c: float, dash_s: float, points: int):
 # --------------------------------------------------------------------------------------------
 
 
-def _iteration_callback(nx: int, ng: int, report):
-    """A CasADi Callback that IPOPT calls once per iteration; forwards (count, objective)."""
+def _iteration_callback(nx: int, ng: int):
+    """A CasADi Callback that IPOPT calls once per iteration. Its ``report`` (callable(count,
+    scaled objective) or None) and ``deadline`` (``time.perf_counter`` value or None; IPOPT is
+    stopped once it has passed) are set before each solve, so that one NLP, built once, serves
+    solves with and without progress reports and time limits."""
     import casadi as ca
 
     class _Iterations(ca.Callback):
         def __init__(self):
             ca.Callback.__init__(self)
             self.count = 0
+            self.report = None
+            self.deadline = None
+            self.stopped = False
             self.construct("iterations", {})
 
         def get_n_in(self):
@@ -596,7 +746,11 @@ def _iteration_callback(nx: int, ng: int, report):
 
         def eval(self, arg):
             self.count += 1
-            report(self.count, float(arg[1]))
+            if self.report is not None:
+                self.report(self.count, float(arg[1]))
+            if self.deadline is not None and _time.perf_counter() > self.deadline:
+                self.stopped = True
+                return [1]  # non-zero: IPOPT stops (User_Requested_Stop)
             return [0]
 
     return _Iterations()
@@ -626,6 +780,7 @@ class _Solution:
     intervals: int
     lam_x: np.ndarray | None = None  # IPOPT's bound multipliers (scaled problem)
     lam_g: np.ndarray | None = None  # constraint multipliers
+    reused: bool = False  # the NLP was built by an earlier solve in this process
 
     @property
     def total_time_s(self) -> float:
@@ -743,109 +898,228 @@ def _signals_surface():
         raise KeyboardInterrupt
 
 
+class _Transcription:
+    """The NLP of one point function, climb mesh, dash layout and IPOPT option set, built once.
+
+    Everything a solve changes enters as numbers: the start state, target and box bounds as
+    simple bounds (lbx/ubx), the start mass, temperature offset and thrust scale through the
+    point function's parameters, and the objective (c_t t_f / TIME_SCALE_S + c_m (1 - m_f / m0),
+    which covers minimum time, its fuel tie-break, minimum fuel and the weighted cost) through
+    two more NLP parameters (``p`` of ``nlpsol``).
+    """
+
+    def __init__(self, F, mesh: np.ndarray, n_u: int, has_dash: bool, ipopt_opts: dict):
+        import casadi as ca
+
+        t0 = _time.perf_counter()
+        self.mesh = mesh
+        nv = 5 + n_u
+        self.tau_c = _points(mesh)
+        P = self.tau_c.size
+        self.n_c = nv * P + 1
+        self.tau_d = _points(np.linspace(0.0, 1.0, DASH_INTERVALS + 1)) if has_dash else None
+        Pd = self.tau_d.size if has_dash else 0
+        self.n_d = nv * Pd + 1 if has_dash else 0
+        n_int = len(mesh) - 1
+
+        z = ca.MX.sym("z", self.n_c + self.n_d)
+        par = ca.MX.sym("p", len(POINT_PARAMETERS) + 2)
+        pp, c_t, c_m = par[: len(POINT_PARAMETERS)], par[-2], par[-1]
+        W = ca.reshape(z[: self.n_c - 1], nv, P)
+        t_climb = z[self.n_c - 1] * TIME_SCALE_S
+        Fv, Pv = F.map(P)(W[:5, :], W[5:, :], ca.repmat(pp, 1, P))
+        g = [_hs_defects(W[:5, :], Fv, np.diff(mesh), t_climb), ca.vec(Pv)]
+        self.n_path = Pv.shape[0]
+        total_time, m_end = t_climb, W[3, -1]
+        if has_dash:
+            Wd = ca.reshape(z[self.n_c: self.n_c + self.n_d - 1], nv, Pd)
+            t_dash = z[self.n_c + self.n_d - 1] * TIME_SCALE_S
+            Fd, Pdv = F.map(Pd)(Wd[:5, :], Wd[5:, :], ca.repmat(pp, 1, Pd))
+            # Mass and distance follow their dynamics; level, unaccelerated flight at every
+            # point; the dash starts where the climb ends.
+            g += [_hs_defects(Wd[3:5, :], Fd[3:5, :],
+                              np.full(DASH_INTERVALS, 1.0 / DASH_INTERVALS), t_dash),
+                  ca.vec(TIME_SCALE_S * Fd[1:3, :]), ca.vec(Pdv), Wd[3:5, 0] - W[3:5, -1]]
+            total_time, m_end = total_time + t_dash, Wd[3, -1]
+        J = c_t * (total_time / TIME_SCALE_S) + c_m * (1.0 - m_end)
+        g = ca.vertcat(*g)
+        self.ng = g.shape[0]
+        self.callback = _iteration_callback(self.n_c + self.n_d, self.ng)
+        opts = {"ipopt." + k: v for k, v in ipopt_opts.items()}
+        opts["print_time"] = False
+        opts["iteration_callback"] = self.callback
+        self.solver = ca.nlpsol("climb", "ipopt", {"x": z, "p": par, "f": J, "g": g}, opts)
+        self.build_s = _time.perf_counter() - t0
+        self.n_int, self.P, self.Pd = n_int, P, Pd
+
+    def bounds(self, st: _Setup):
+        """Numeric (lbz, ubz, lbg, ubg) of ``st``'s scenario."""
+        P, Pd = self.P, self.Pd
+        lbg = [np.zeros(10 * self.n_int), np.tile(st.path_lb, P)]
+        ubg = [np.zeros(10 * self.n_int), np.tile(st.path_ub, P)]
+        lbw, ubw = _box(st, P)
+        lbw[:5, 0] = ubw[:5, 0] = st.x0 / st.x_scale
+        fixed = ~np.isnan(st.xf)
+        lbw[:5, -1][fixed] = ubw[:5, -1][fixed] = (st.xf / st.x_scale)[fixed]
+        lbz = [lbw.ravel(order="F"), [1.0 / TIME_SCALE_S]]
+        ubz = [ubw.ravel(order="F"), [MAX_TIME_S / TIME_SCALE_S]]
+        if self.tau_d is not None:
+            zeros = np.zeros(4 * DASH_INTERVALS + 2 * Pd)
+            lbg += [zeros, np.tile(st.path_lb, Pd), np.zeros(2)]
+            ubg += [zeros, np.tile(st.path_ub, Pd), np.zeros(2)]
+            lbd, ubd = _box(st, Pd)
+            lbd[:3, :] = ubd[:3, :] = (st.xf[:3] / st.x_scale[:3])[:, None]
+            lbd[4, -1] = ubd[4, -1] = st.dash_m / st.x_scale[4]
+            lbz += [lbd.ravel(order="F"), [0.0]]
+            ubz += [ubd.ravel(order="F"), [MAX_TIME_S / TIME_SCALE_S]]
+        return (np.concatenate(lbz), np.concatenate(ubz), np.concatenate(lbg),
+                np.concatenate(ubg))
+
+
+#: Built NLPs of this process, most recently used last (see :func:`_transcription`).
+_TRANSCRIPTIONS: "dict[tuple, _Transcription]" = {}
+#: How many built NLPs a process keeps (a sweep case needs its first mesh and a few refined
+#: ones; the first mesh is shared by every case of the same aircraft and stays in).
+TRANSCRIPTION_CACHE_SIZE = 8
+
+
+def _transcription(F, key: str, mesh: np.ndarray, n_u: int, has_dash: bool,
+                   ipopt_opts: dict) -> tuple[_Transcription, bool]:
+    """The NLP for (point function ``key``, mesh, dash, options): from this process's cache or
+    built now. Returns (transcription, reused). Each thread has its own (a solver object and
+    its iteration callback serve one solve at a time; Dask workers may run several)."""
+    import threading
+
+    full = (threading.get_ident(), key, mesh.tobytes(), n_u, has_dash,
+            repr(sorted(ipopt_opts.items())))
+    tr = _TRANSCRIPTIONS.pop(full, None)
+    reused = tr is not None
+    if tr is None:
+        tr = _Transcription(F, mesh, n_u, has_dash, ipopt_opts)
+        while len(_TRANSCRIPTIONS) >= TRANSCRIPTION_CACHE_SIZE:
+            _TRANSCRIPTIONS.pop(next(iter(_TRANSCRIPTIONS)))
+    _TRANSCRIPTIONS[full] = tr
+    return tr, reused
+
+
 def _solve_mesh(st: _Setup, F, mesh: np.ndarray, init: tuple, ipopt_opts: dict,
-                report=None) -> _Solution:
-    """Transcribe on ``mesh`` (climb-phase node taus from 0 to 1), solve, return the solution.
+                report=None, *, key: str | None = None, deadline: float | None = None
+                ) -> _Solution:
+    """Solve on ``mesh`` (climb-phase node taus from 0 to 1) with the NLP built for it (reused
+    when this process built it before), return the solution.
 
     ``init`` = (climb _Phase on this mesh's points, dash _Phase or None[, (lam_x, lam_g)]):
-    with multipliers IPOPT is warm-started from them (``warm_start_init_point``).
+    with multipliers IPOPT is warm-started from them (``warm_start_init_point``). ``key``
+    identifies ``F`` (default: a hash of its serialised form); ``deadline``: a
+    ``time.perf_counter`` value at which IPOPT is stopped (status Maximum_WallTime_Exceeded).
     """
-    import casadi as ca
-
     climb0, dash0 = init[:2]
     mult = init[2] if len(init) > 2 else None
     has_dash = st.dash_m is not None
-    n_int = len(mesh) - 1
-    tau_c = _points(mesh)
-    P = tau_c.size
-    nv = 5 + st.n_u
-    n_c = nv * P + 1
-    tau_d = _points(np.linspace(0.0, 1.0, DASH_INTERVALS + 1)) if has_dash else None
-    Pd = tau_d.size if has_dash else 0
-    n_d = nv * Pd + 1 if has_dash else 0
-
-    z = ca.MX.sym("z", n_c + n_d)
-    W = ca.reshape(z[: n_c - 1], nv, P)
-    t_climb = z[n_c - 1] * TIME_SCALE_S
-    Fv, Pv = F.map(P)(W[:5, :], W[5:, :])
-    g = [_hs_defects(W[:5, :], Fv, np.diff(mesh), t_climb), ca.vec(Pv)]
-    lbg = [np.zeros(10 * n_int), np.tile(st.path_lb, P)]
-    ubg = [np.zeros(10 * n_int), np.tile(st.path_ub, P)]
-
-    lbw, ubw = _box(st, P)
-    lbw[:5, 0] = ubw[:5, 0] = st.x0 / st.x_scale
-    fixed = ~np.isnan(st.xf)
-    lbw[:5, -1][fixed] = ubw[:5, -1][fixed] = (st.xf / st.x_scale)[fixed]
-    lbz = [lbw.ravel(order="F"), [1.0 / TIME_SCALE_S]]
-    ubz = [ubw.ravel(order="F"), [MAX_TIME_S / TIME_SCALE_S]]
-    z0 = [_pack(st, climb0)]
-    total_time = t_climb
-    m_end = W[3, -1]
-    if has_dash:
-        Wd = ca.reshape(z[n_c: n_c + n_d - 1], nv, Pd)
-        t_dash = z[n_c + n_d - 1] * TIME_SCALE_S
-        Fd, Pdv = F.map(Pd)(Wd[:5, :], Wd[5:, :])
-        # Mass and distance follow their dynamics; level, unaccelerated flight at every point;
-        # the dash starts where the climb ends.
-        g += [_hs_defects(Wd[3:5, :], Fd[3:5, :], np.full(DASH_INTERVALS, 1.0 / DASH_INTERVALS),
-                          t_dash),
-              ca.vec(TIME_SCALE_S * Fd[1:3, :]), ca.vec(Pdv), Wd[3:5, 0] - W[3:5, -1]]
-        zeros = np.zeros(4 * DASH_INTERVALS + 2 * Pd)
-        lbg += [zeros, np.tile(st.path_lb, Pd), np.zeros(2)]
-        ubg += [zeros, np.tile(st.path_ub, Pd), np.zeros(2)]
-        lbd, ubd = _box(st, Pd)
-        lbd[:3, :] = ubd[:3, :] = (st.xf[:3] / st.x_scale[:3])[:, None]
-        lbd[4, -1] = ubd[4, -1] = st.dash_m / st.x_scale[4]
-        lbz += [lbd.ravel(order="F"), [0.0]]
-        ubz += [ubd.ravel(order="F"), [MAX_TIME_S / TIME_SCALE_S]]
-        z0.append(_pack(st, dash0))
-        total_time = total_time + t_dash
-        m_end = Wd[3, -1]
-    if st.objective == "time":
-        J = total_time / TIME_SCALE_S
-        if st.throttle_free:
-            J = J + FUEL_TIE_BREAK_S * (1.0 - m_end) / TIME_SCALE_S
-    else:
-        J = ((1.0 - m_end) * st.m0 + st.weight_kg_per_s * total_time) / st.fuel_scale_kg
-    g = ca.vertcat(*g)
-    lbg, ubg = np.concatenate(lbg), np.concatenate(ubg)
-    lbz, ubz = np.concatenate(lbz), np.concatenate(ubz)
+    if key is None:
+        key = _function_key(F)
+    tr, reused = _transcription(F, key, mesh, st.n_u, has_dash, ipopt_opts)
+    lbz, ubz, lbg, ubg = tr.bounds(st)
+    z0 = [_pack(st, climb0)] + ([_pack(st, dash0)] if has_dash else [])
     z0 = np.clip(np.concatenate(z0), lbz, ubz)
-
-    opts = {"ipopt." + k: v for k, v in ipopt_opts.items()}
-    opts["print_time"] = False
-    cb = None
-    if report is not None:
-        cb = _iteration_callback(z0.size, g.shape[0], report)
-        opts["iteration_callback"] = cb
+    par = np.concatenate([st.point_params, st.objective_weights])
+    cb = tr.callback
+    cb.count, cb.report, cb.deadline, cb.stopped = 0, report, deadline, False
+    args = dict(x0=z0, p=par, lbx=lbz, ubx=ubz, lbg=lbg, ubg=ubg)
+    if mult is not None:
+        args.update(lam_x0=mult[0], lam_g0=mult[1])
     t0 = _time.perf_counter()
-    solver = ca.nlpsol("climb", "ipopt", {"x": z, "f": J, "g": g}, opts)
-    t_build = _time.perf_counter() - t0
-    t0 = _time.perf_counter()
-    with _signals_surface():
-        if mult is not None:
-            res = solver(x0=z0, lbx=lbz, ubx=ubz, lbg=lbg, ubg=ubg, lam_x0=mult[0],
-                         lam_g0=mult[1])
-        else:
-            res = solver(x0=z0, lbx=lbz, ubx=ubz, lbg=lbg, ubg=ubg)
+    try:
+        with _signals_surface():
+            res = tr.solver(**args)
+    finally:
+        cb.report = cb.deadline = None
     t_solve = _time.perf_counter() - t0
-    stats = solver.stats()
+    stats = tr.solver.stats()
+    status = str(stats.get("return_status", "unknown"))
+    if cb.stopped:
+        status = "Maximum_WallTime_Exceeded"
     # IPOPT relaxes bounds by 1e-8 relative (bound_relax_factor); report values inside them.
     zs = np.clip(np.asarray(res["x"], float).ravel(), lbz, ubz)
-    climb = _unpack(st, zs[:n_c], tau_c)
-    dash = _unpack(st, zs[n_c:], tau_d) if has_dash else None
-    del cb
+    climb = _unpack(st, zs[:tr.n_c], tr.tau_c)
+    dash = _unpack(st, zs[tr.n_c:], tr.tau_d) if has_dash else None
     total = climb.duration_s + (dash.duration_s if dash else 0.0)
     mf = float((dash or climb).states[3, -1])
     return _Solution(
         climb=climb, dash=dash, objective_value=_objective_value(st, total, mf),
-        status=str(stats.get("return_status", "unknown")),
-        success=bool(stats.get("success", False)),
+        status=status, success=bool(stats.get("success", False)) and not cb.stopped,
         iterations=int(stats.get("iter_count", 0)),
-        ipopt_s=t_solve, nlp_s=t_build, intervals=n_int,
+        ipopt_s=t_solve, nlp_s=0.0 if reused else tr.build_s, intervals=tr.n_int,
         lam_x=np.asarray(res["lam_x"], float).ravel(),
-        lam_g=np.asarray(res["lam_g"], float).ravel(),
+        lam_g=np.asarray(res["lam_g"], float).ravel(), reused=reused,
     )
+
+
+#: Last converged first mesh pass per (thread, point function, mesh, objective, dash), for
+#: :func:`solve_collocation`'s ``from_neighbour``: (climb phase, dash phase, multipliers).
+_NEIGHBOURS: dict = {}
+
+
+def _neighbour_key(key: str, mesh: np.ndarray, st: _Setup) -> tuple:
+    import threading
+
+    return (threading.get_ident(), key, mesh.tobytes(), st.objective, st.dash_m is not None)
+
+
+def _remember_neighbour(near: tuple, sol: _Solution) -> None:
+    _NEIGHBOURS.pop(near, None)
+    while len(_NEIGHBOURS) >= TRANSCRIPTION_CACHE_SIZE:
+        _NEIGHBOURS.pop(next(iter(_NEIGHBOURS)))
+    _NEIGHBOURS[near] = (sol.climb, sol.dash, (sol.lam_x, sol.lam_g))
+
+
+def _neighbour_pass(st: _Setup, F, mesh: np.ndarray, opts: dict, report, key: str,
+                    deadline, near: tuple):
+    """(solution or None, iterations spent in vain): the first mesh pass warm-started from the
+    last converged first pass under ``near`` (IPOPT's warm-start options, as on refinement
+    passes); None when there is none or IPOPT did not converge from it."""
+    start = _NEIGHBOURS.get(near)
+    if start is None:
+        return None, 0
+    sol = _solve_mesh(st, F, mesh, start, opts, report, key=key, deadline=deadline)
+    return (sol, 0) if sol.success else (None, sol.iterations)
+
+
+def _function_key(F) -> str:
+    """A hash of a CasADi Function's serialised form: equal keys, equal functions (the table
+    data, the limits and the algebra are all in it)."""
+    import hashlib
+
+    return hashlib.sha256(F.serialize().encode()).hexdigest()
+
+
+def _point_function_for(st: _Setup, compile: bool | None, notes: list):
+    """(point function, key) for a solve: CasADi's own, or the compiled one (``compile`` True:
+    compiled unless cached; None: the scenario's ``solver.compile``, else the cached one only;
+    False: never); what was used is added to ``notes``."""
+    if compile is None:
+        compile = getattr(st.scenario.solver, "compile", None)
+    F, key = _keyed_point_function(st)
+    if compile is not False:
+        compiled, note = _compiled(F, key, build=bool(compile))
+        if compiled is not None:
+            F, key = compiled, key + (":compiled" if compiled is not F else "")
+            notes.append(note)
+    return F, key
+
+
+def _keyed_point_function(st: _Setup):
+    """(point function, key): the key hashes the function's serialised form (table data, limits,
+    algebra); the function returned is a private copy made from that form. (CasADi serialises
+    the derivatives it has made of a function's inner functions too, so differentiating the
+    shared table functions would change the key of the next case; the copy keeps them
+    untouched.)"""
+    import hashlib
+
+    import casadi as ca
+
+    text = _point_function(st).serialize()
+    return ca.Function.deserialize(text), hashlib.sha256(text.encode()).hexdigest()
 
 
 # --------------------------------------------------------------------------------------------
@@ -874,12 +1148,18 @@ def _scaled(st: _Setup, ph: _Phase):
     return X, U
 
 
+def _rates(st: _Setup, F, X: np.ndarray, U: np.ndarray) -> np.ndarray:
+    """Scaled state rates of the point function at the columns of X (scaled states), U."""
+    n = X.shape[1]
+    return np.asarray(F.map(n)(X, U, np.tile(st.point_params[:, None], (1, n)))[0])
+
+
 def _interval_errors(st: _Setup, F, ph: _Phase) -> np.ndarray:
     """Local error estimate of each climb interval [scaled state units]: the collocation residual
     x_interp' - f(x_interp, u_interp) of the cubic Hermite interpolant through the interval's end
     states and rates, at its quarter points, times the interval length (largest state)."""
     X, U = _scaled(st, ph)
-    Fv = np.asarray(F.map(X.shape[1])(X, U)[0])
+    Fv = _rates(st, F, X, U)
     h = np.diff(ph.tau[0::2]) * ph.duration_s
     x0, x1 = X[:, 0:-1:2], X[:, 2::2]
     f0, f1 = Fv[:, 0:-1:2], Fv[:, 2::2]
@@ -887,7 +1167,7 @@ def _interval_errors(st: _Setup, F, ph: _Phase) -> np.ndarray:
     err = np.zeros(len(h))
     for s in (0.25, 0.75):
         xq, dxq = _hermite(x0, x1, f0, f1, h[None, :], s)
-        fq = np.asarray(F.map(xq.shape[1])(xq, _quadratic(u0, um, u1, s))[0])
+        fq = _rates(st, F, xq, _quadratic(u0, um, u1, s))
         err = np.maximum(err, np.max(np.abs(dxq - fq), axis=0) * h)
     return err
 
@@ -920,7 +1200,7 @@ def _interp_phase(st: _Setup, F, ph: _Phase, mesh_new: np.ndarray) -> _Phase:
     """A phase on a new mesh from a solution: states by the Hermite cubic of each old interval,
     controls by its quadratic."""
     X, U = _scaled(st, ph)
-    Fv = np.asarray(F.map(X.shape[1])(X, U)[0])
+    Fv = _rates(st, F, X, U)
     tau_new = _points(mesh_new)
     mesh = ph.tau[0::2]
     idx = np.clip(np.searchsorted(mesh, tau_new, side="right") - 1, 0, len(mesh) - 2)
@@ -1065,7 +1345,9 @@ def _active_bound_notes(st: _Setup, ph: _Phase) -> list:
 def solve_collocation(scenario, objective: str = "time", *, model=None, guess=None,
                       progress=None, intervals: int | None = None,
                       ipopt_options: dict | None = None,
-                      time_limit_s: float | None = None) -> Trajectory:
+                      time_limit_s: float | None = None,
+                      compile: bool | None = None,
+                      from_neighbour: bool = False) -> Trajectory:
     """Optimal climb by Hermite-Simpson collocation and IPOPT (see the module docstring).
 
     Parameters
@@ -1086,7 +1368,20 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
         IPOPT options; they override ``scenario.solver.ipopt``, which overrides
         :data:`DEFAULT_IPOPT_OPTIONS` (and :data:`REFINE_IPOPT_OPTIONS` on refinement passes).
     time_limit_s : float, optional
-        Wall-clock budget of the whole solve [s] (IPOPT's ``max_wall_time`` on each pass).
+        Wall-clock budget of the whole solve [s] (IPOPT is stopped when it is spent).
+    compile : bool, optional
+        True: evaluate the point function from C code compiled with the system C compiler and
+        kept in the on-disk cache (:func:`compiled_point_function`): a few seconds the first
+        time for an aircraft, nothing afterwards, and faster IPOPT iterations (it pays in sweeps
+        and repeated runs). None (default): the scenario's ``solver.compile`` when given, else
+        the compiled function only when it is already in the cache (it costs nothing then).
+        False: never.
+    from_neighbour : bool
+        Start the first mesh pass from the solution and multipliers of the last solve with
+        ``from_neighbour`` of the same aircraft, first mesh and objective in this thread (in a
+        sweep: the neighbouring case), which takes about half the IPOPT iterations of a start
+        from ``guess``; ``guess`` is used when there is none or that start fails. The optimum
+        is the same to IPOPT's tolerance (the first mesh, and so the refinement, are the same).
 
     Returns
     -------
@@ -1138,8 +1433,10 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
     else:
         raise ValueError("guess must be a Trajectory, 'straight' or None")
 
-    F = _point_function(st)
+    F, key = _point_function_for(st, compile, notes)
+    deadline = None if time_limit_s is None else wall0 + time_limit_s
     mesh = np.linspace(0.0, 1.0, n0 + 1)
+    near = _neighbour_key(key, mesh, st) if from_neighbour else None
     climb0 = _phase_from_guess(g, mesh)
     dash0 = None
     if st.dash_m is not None:
@@ -1150,6 +1447,7 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
     total_iter = 0
     ipopt_s = 0.0
     history = []
+    n_reused = 0
     prev = None
     mesh_converged = False
     max_ref = int(solver_opts.max_mesh_refinements)
@@ -1165,13 +1463,24 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
         def report(k, f, npass=npass):
             say(f"mesh pass {npass + 1}: IPOPT iteration {k}, scaled objective {f:.6g}", None)
 
-        opts = dict(first_opts if npass == 0 else refine_opts)
-        if time_limit_s is not None:
-            opts["max_wall_time"] = max(time_limit_s - (_time.perf_counter() - wall0), 1e-3)
-        sol = _solve_mesh(st, F, mesh, init, opts, report if progress is not None else None)
+        opts = first_opts if npass == 0 else refine_opts
+        sol = None
+        if npass == 0 and near is not None:
+            sol, spent = _neighbour_pass(st, F, mesh, refine_opts, report if progress else None,
+                                         key, deadline, near)
+            total_iter += spent
+            if sol is not None:
+                notes.append("first mesh pass started from the previous case's solution and "
+                             "multipliers (same aircraft, mesh and objective, this process)")
+        if sol is None:
+            sol = _solve_mesh(st, F, mesh, init, opts, report if progress is not None else None,
+                              key=key, deadline=deadline)
+        if npass == 0 and near is not None and sol.success:
+            _remember_neighbour(near, sol)
         total_iter += sol.iterations
         ipopt_s += sol.ipopt_s
         history.append((sol.intervals, sol.iterations, sol.objective_value, sol.ipopt_s))
+        n_reused += sol.reused
         if not sol.success:
             hint = ""
             if st.dash_m is not None and not st.throttle_free:
@@ -1203,6 +1512,8 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
 
     notes.append("mesh passes: " + "; ".join(
         f"{n} intervals, {it} iterations, objective {obj:.7g}" for n, it, obj, _ in history))
+    notes.append(f"NLP reused from an earlier solve in this process on {n_reused} of "
+                 f"{len(history)} mesh passes")
     notes.append(f"largest local error estimate on the final mesh {err.max():.1e} "
                  f"(scaled states; refinement target {ERROR_TOLERANCE:.0e})")
     if not mesh_converged:

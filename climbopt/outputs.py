@@ -20,7 +20,7 @@ __all__ = ["write_outputs"]
 
 
 def write_outputs(result, out_dir, scenario, *, units: str = "si", model=None,
-                  exit_code: int | None = None, progress=None) -> dict:
+                  exit_code: int | None = None, progress=None, formats=("png",)) -> dict:
     """Write the results folder of ``result`` (a :class:`climbopt.pipeline.RunResult`).
 
     Parameters
@@ -38,6 +38,8 @@ def write_outputs(result, out_dir, scenario, *, units: str = "si", model=None,
         Recorded in ``summary.json`` (default: 4 when the run is a solver failure, else 0).
     progress : callable(label), optional
         Told when the slow steps start.
+    formats : sequence of "png", "svg", "pdf"
+        Figure files to write (report.html always carries the figures inline).
 
     Returns
     -------
@@ -55,7 +57,8 @@ def write_outputs(result, out_dir, scenario, *, units: str = "si", model=None,
     if exit_code is None:
         exit_code = 4 if result.solver_failure else 0
     with report.atomic_output_dir(out_dir, "climbopt run") as folder:
-        return _write_folder(folder, result, scenario, units, model, exit_code, progress)
+        return _write_folder(folder, result, scenario, units, model, exit_code, progress,
+                             formats)
 
 
 #: Order in which crew schedules are shown: the flown schedules first (what crews fly), then
@@ -84,7 +87,8 @@ def _schedule_rank(schedule) -> int:
         SCHEDULE_ORDER else len(SCHEDULE_ORDER)
 
 
-def _write_folder(folder: Path, result, scenario, units, model, exit_code, progress) -> dict:
+def _write_folder(folder: Path, result, scenario, units, model, exit_code, progress,
+                  formats) -> dict:
     from climbopt import report
     from climbopt.schedule import climb_schedule, conditions_of, default_step_m, \
         schedule_summary, write_schedule_csv
@@ -107,7 +111,7 @@ def _write_folder(folder: Path, result, scenario, units, model, exit_code, progr
                                 conditions)
     if progress is not None:
         progress("plots")
-    figures, svgs = _figures(folder, scenario, trajs, units, model)
+    figures, svgs = _figures(folder, scenario, trajs, units, model, formats)
 
     lines = {k: schedule_summary(v, units) for k, v in schedules.items()}
     flown = report.flown_schedule_records(records, lines, units)
@@ -158,11 +162,9 @@ def _write_report_html(folder, scenario, units, records, flown, schedules, resul
     report.write_text_atomic(folder / "report.html", page)
 
 
-def _figures(folder: Path, scenario, trajs, units, model) -> tuple[list, list]:
+def _figures(folder: Path, scenario, trajs, units, model, formats) -> tuple[list, list]:
     """The Ps and fs maps with every path, and the time histories; returns the paths written
     and ``(stem, SVG text)`` of each figure for the HTML report."""
-    import io
-
     from climbopt import plots
     from climbopt.energy import build_energy_map
 
@@ -182,8 +184,6 @@ def _figures(folder: Path, scenario, trajs, units, model) -> tuple[list, list]:
     axes[0].set_title(scenario.name, fontsize=10)
     made.append(("time_histories", axes[0].figure))
     for name, fig in made:
-        figures += plots.save_figure(fig, folder / name)
-        buf = io.StringIO()
-        fig.savefig(buf, format="svg")
-        svgs.append((name, buf.getvalue()))
+        figures += plots.save_figure(fig, folder / name, formats)
+        svgs.append((name, plots.figure_svg(fig)))
     return figures, svgs

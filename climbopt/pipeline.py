@@ -143,8 +143,10 @@ def _energy_state(scenario, model, objective, progress):
     return rutowski.solve_energy_state(scenario, objective, model=model, progress=cb)
 
 
-def _collocation(scenario, model, objective, guess, progress, clock):
-    """Collocation warm-started from ``guess``, re-simulated; (trajectory or FailedRun, error)."""
+def _collocation(scenario, model, objective, guess, progress, clock, compile=None,
+                 from_neighbour=False):
+    """Collocation warm-started from ``guess``, re-simulated; (trajectory or FailedRun, error).
+    ``compile``, ``from_neighbour``: see :func:`climbopt.collocation.solve_collocation`."""
     from climbopt.collocation import SolverFailure, solve_collocation
     from climbopt.verify import resimulate
 
@@ -152,7 +154,8 @@ def _collocation(scenario, model, objective, guess, progress, clock):
     t0 = time.perf_counter()
     try:
         traj = solve_collocation(scenario, objective, model=model, guess=guess, progress=cb,
-                                 time_limit_s=clock.remaining(f"collocation, minimum {objective}"))
+                                 time_limit_s=clock.remaining(f"collocation, minimum {objective}"),
+                                 compile=compile, from_neighbour=from_neighbour)
     except SolverFailure as exc:
         error = (f"collocation, minimum {objective}: not converged ({exc.status}, "
                  f"{exc.iterations} iterations): {exc}")
@@ -292,9 +295,15 @@ def common_point(results, scenario, model) -> CommonPoint | None:
     return CommonPoint(far, tuple(times), tuple(fuels), tuple(notes))
 
 
-def solve_case(scenario, method: str, objective: str, *, model=None) -> Trajectory:
+def solve_case(scenario, method: str, objective: str, *, model=None,
+               compile: bool | None = None, from_neighbour: bool = False) -> Trajectory:
     """One result for a sweep case: the energy-state solution (``method="energy"``), or the
     collocation solution warm-started from it and re-simulated (``"collocation"``), assessed.
+    ``compile``: evaluate the collocation point function from compiled C (default: the
+    scenario's ``solver.compile``; see :func:`climbopt.collocation.solve_collocation`). The
+    collocation problem built for one case is reused by the next cases of the same aircraft in
+    the same process (:mod:`climbopt.collocation`); with ``from_neighbour`` its first mesh pass
+    also starts from the previous case's solution (same optimum to IPOPT's tolerance).
 
     Raises the solvers' exceptions (InfeasibleMission, SolverFailure, TimeLimitExceeded); an
     unranked result is returned with its issues.
@@ -310,7 +319,8 @@ def solve_case(scenario, method: str, objective: str, *, model=None) -> Trajecto
     energy = _energy_state(scenario, model, objective, None)
     if method == "energy":
         return assess(energy, env)
-    row, error = _collocation(scenario, model, objective, energy, None, _Clock(scenario))
+    row, error = _collocation(scenario, model, objective, energy, None, _Clock(scenario),
+                              compile, from_neighbour)
     if isinstance(row, FailedRun):
         raise SolverFailure(error, status=row.status, iterations=row.iterations)
     return assess(row, env)

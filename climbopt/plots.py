@@ -382,13 +382,31 @@ def add_caution(fig) -> None:
              wrap=True)
 
 
-def save_figure(fig, path_stem, formats=("png", "svg"), dpi: int = 110,
+#: File formats :func:`save_figure` writes (PNG by default; SVG and PDF on request).
+FIGURE_FORMATS = ("png", "svg", "pdf")
+
+
+def figure_svg(fig) -> str:
+    """The figure as SVG text (for pages that carry their figures inline)."""
+    import io
+
+    buf = io.StringIO()
+    fig.savefig(buf, format="svg")
+    return buf.getvalue()
+
+
+def save_figure(fig, path_stem, formats=("png",), dpi: int = 110,
                 tight: bool = False) -> list:
-    """Save ``fig`` as ``<path_stem>.png`` and ``.svg`` (with the caution at its foot) and close
-    it. ``tight=True`` trims the margins (one more drawing pass; figures made by this module
-    have fixed margins and do not need it). Returns the paths written."""
+    """Save ``fig`` as ``<path_stem>.<format>`` for each of ``formats`` (from
+    :data:`FIGURE_FORMATS`; PNG alone by default), with the caution at its foot. ``tight=True``
+    trims the margins (one more drawing pass; figures made by this module have fixed margins
+    and do not need it). Returns the paths written."""
     from pathlib import Path
 
+    unknown = [f for f in formats if f not in FIGURE_FORMATS]
+    if unknown:
+        raise ValueError(f"unknown figure format(s) {', '.join(map(repr, unknown))}; "
+                         f"known: {', '.join(FIGURE_FORMATS)}")
     add_caution(fig)
     written = []
     for fmt in formats:

@@ -442,23 +442,26 @@ def _error_text(exc: BaseException, status: str) -> str:
     return f"{type(exc).__name__}: {text}" if status == "error" else text
 
 
-def _solve(scenario: Scenario, method: str, objective: str):
-    """The case's result through the one pipeline (:func:`climbopt.pipeline.solve_case`)."""
+def _solve(scenario: Scenario, method: str, objective: str, compile: bool | None = None):
+    """The case's result through the one pipeline (:func:`climbopt.pipeline.solve_case`); a
+    collocation case starts from the solution of the case this process solved before (same
+    optimum to IPOPT's tolerance, about half the iterations of its first mesh pass)."""
     from climbopt.pipeline import solve_case
 
-    return solve_case(scenario, method, objective)
+    return solve_case(scenario, method, objective, compile=compile, from_neighbour=True)
 
 
-def run_case(scenario: Scenario, case: Case) -> dict:
+def run_case(scenario: Scenario, case: Case, *, compile: bool | None = None) -> dict:
     """Solve one case; never raises for a failing case (the status and error text say why).
 
-    Returns the result columns (:data:`RESULT_COLUMNS`) as a dict of SI floats and strings.
+    ``compile``: collocation from compiled C (see :func:`run_sweep`). Returns the result
+    columns (:data:`RESULT_COLUMNS`) as a dict of SI floats and strings.
     """
     t0 = time.perf_counter()
     out = {"status": "ok", "time_s": math.nan, "fuel_kg": math.nan, "distance_m": math.nan,
            "final_mass_kg": math.nan, "error": ""}
     try:
-        traj = _solve(apply_case(scenario, case.values), case.method, case.objective)
+        traj = _solve(apply_case(scenario, case.values), case.method, case.objective, compile)
         out.update(time_s=traj.time_s, fuel_kg=traj.fuel_kg, distance_m=traj.distance_m,
                    final_mass_kg=traj.final_mass_kg)
         if not traj.ranked:
@@ -598,19 +601,23 @@ class SweepResult:
 # -- workers ---------------------------------------------------------------------------------
 
 _WORKER_SCENARIO: Scenario | None = None
+_WORKER_COMPILE: bool | None = None
 
 
-def _init_pool_worker(scenario: Scenario) -> None:
-    """Pool worker start-up: keep the base scenario; leave Ctrl-C to the parent process."""
+def _init_pool_worker(scenario: Scenario, compile: bool | None = None) -> None:
+    """Pool worker start-up: keep the base scenario and the compile choice; leave Ctrl-C to the
+    parent process. A worker lives for the whole sweep, so what its first case builds (the
+    collocation problem, the loaded compiled point function) serves its later cases."""
     import signal
 
-    global _WORKER_SCENARIO
+    global _WORKER_SCENARIO, _WORKER_COMPILE
     _WORKER_SCENARIO = scenario
+    _WORKER_COMPILE = compile
     signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
 def _run_pooled(case: Case) -> dict:
-    return run_case(_WORKER_SCENARIO, case)
+    return run_case(_WORKER_SCENARIO, case, compile=_WORKER_COMPILE)
 
 
 def _pool_context():
@@ -652,10 +659,11 @@ class _PoolBackend:
     """Local process pool; at most ``2 * workers`` cases in flight (so that stopping early,
     max_cases and Ctrl-C act at once)."""
 
-    def __init__(self, scenario: Scenario, workers: int):
+    def __init__(self, scenario: Scenario, workers: int, compile: bool | None = None):
         self.workers = workers
         self.pool = ProcessPoolExecutor(max_workers=workers, mp_context=_pool_context(),
-                                        initializer=_init_pool_worker, initargs=(scenario,))
+                                        initializer=_init_pool_worker,
+                                        initargs=(scenario, compile))
 
     def run(self, todo, record, ready) -> None:
         from concurrent.futures.process import BrokenProcessPool
@@ -690,7 +698,8 @@ class _DaskBackend:
     with a window of ``max(32, 8 * threads)`` in flight (the scheduler round trip, about 10 ms,
     is then hidden) and collected with their results as they complete."""
 
-    def __init__(self, scenario: Scenario, cluster):
+    def __init__(self, scenario: Scenario, cluster, compile: bool | None = None):
+        self.compile = compile
         try:
             import distributed
         except ImportError:
@@ -710,7 +719,8 @@ class _DaskBackend:
         self.scenario = self.client.scatter(scenario, broadcast=True)
 
     def _submit(self, case: Case):
-        return self.client.submit(run_case, self.scenario, case, pure=False, retries=0)
+        return self.client.submit(run_case, self.scenario, case, compile=self.compile,
+                                  pure=False, retries=0)
 
     def run(self, todo, record, ready) -> None:
         dd = self._distributed
@@ -762,7 +772,8 @@ class _DaskBackend:
 def run_sweep(plan: SweepPlan, table_path, *, executor: str = "pool", workers: int | None = None,
               cluster=None, max_cases: int | None = None, retry_failed: bool = False,
               on_start: Callable[[int, int], None] | None = None,
-              on_case: Callable[[dict], None] | None = None) -> SweepResult:
+              on_case: Callable[[dict], None] | None = None,
+              compile: bool | None = None) -> SweepResult:
     """Run the cases of ``plan`` not yet in the table at ``table_path``.
 
     Parameters
@@ -863,18 +874,19 @@ def run_sweep(plan: SweepPlan, table_path, *, executor: str = "pool", workers: i
             if on_case is not None:
                 on_case(typed)
 
+        compile = _compile_choice(plan, compile, len(todo))
         if executor == "serial" or not todo:
             result.workers = 1
             if on_start is not None:
                 on_start(len(todo), skipped)
             for case in todo:
-                record(case, run_case(plan.scenario, case))
+                record(case, run_case(plan.scenario, case, compile=compile))
         else:
             if executor == "pool":
                 n = workers or default_workers()
-                backend = _PoolBackend(plan.scenario, max(1, min(n, len(todo))))
+                backend = _PoolBackend(plan.scenario, max(1, min(n, len(todo))), compile)
             else:
-                backend = _DaskBackend(plan.scenario, cluster)
+                backend = _DaskBackend(plan.scenario, cluster, compile)
             result.workers = backend.workers
 
             def ready():
@@ -901,6 +913,35 @@ def run_sweep(plan: SweepPlan, table_path, *, executor: str = "pool", workers: i
     os.replace(tmp, table_path)
     result.rows = read_table(table_path)
     return result
+
+
+#: A collocation sweep with at least this many cases to solve compiles its point function
+#: unless told otherwise: a compilation costs about 3 s of CPU once, and saves about 0.15 s per
+#: case (measured on the demo transport, benchmarks/bench_speed.py).
+COMPILE_MIN_CASES = 16
+
+
+def _compile_choice(plan: SweepPlan, compile: bool | None, n_todo: int) -> bool:
+    """Whether the collocation cases use the compiled point function (see :func:`run_sweep`);
+    when they do, it is compiled here once, before the workers start, so that they load it
+    from the on-disk cache. A failure to compile is left to the cases, which fall back to
+    CasADi's own evaluation and say so in their notes."""
+    if plan.method != "collocation" or n_todo == 0 or compile is False:
+        return False
+    from climbopt import collocation
+
+    if compile is None and not getattr(plan.scenario.solver, "compile", False):
+        try:
+            cached = collocation.compiled_point_function(plan.scenario, build=False)[0]
+        except Exception:  # noqa: BLE001 - a case reports its own problem
+            return False
+        if cached is None and n_todo < COMPILE_MIN_CASES:
+            return False
+    try:
+        collocation.compiled_point_function(plan.scenario)
+    except Exception:  # noqa: BLE001 - a case reports its own problem
+        pass
+    return True
 
 
 # ============================================================================================

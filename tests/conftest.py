@@ -29,3 +29,21 @@ def transport():
     scenario = dataclasses.replace(
         scenario, mission=dataclasses.replace(scenario.mission, profile="procedure"))
     return scenario, build_model(scenario)
+
+
+@pytest.fixture(scope="session", autouse=True)
+def _private_compile_cache(tmp_path_factory):
+    """Compiled point functions go to a cache of this test session, not the user's: a solve
+    uses a cached compiled function when there is one, and the tests must not depend on what
+    earlier work left there."""
+    import os
+
+    from climbopt.collocation import CACHE_ENV
+
+    old = os.environ.get(CACHE_ENV)
+    os.environ[CACHE_ENV] = str(tmp_path_factory.mktemp("compiled"))
+    yield
+    if old is None:
+        os.environ.pop(CACHE_ENV, None)
+    else:
+        os.environ[CACHE_ENV] = old

@@ -20,8 +20,7 @@ ROOT = Path(__file__).resolve().parents[1]
 DEMOS = sorted((ROOT / "scenarios").glob("*.toml"))
 LB = 0.45359237        # kg, exact (NIST SP 811)
 FT = 0.3048            # m, exact (NIST SP 811)
-FIGURES = {f"{name}.{ext}" for name in ("ps_mach", "ps_tas", "fs_mach", "time_histories")
-           for ext in ("png", "svg")}
+FIGURES = {f"{name}.png" for name in ("ps_mach", "ps_tas", "fs_mach", "time_histories")}
 
 
 def _run(args):
@@ -91,6 +90,7 @@ def test_run_energy_on_every_demo(scenario, tmp_path):
     assert CAUTION in (out / "report.txt").read_text()
     for fig in FIGURES:
         assert (out / fig).stat().st_size > 5_000
+    assert not [n for n in names if n.endswith((".svg", ".pdf"))]  # PNG only by default
 
 
 def test_run_table_and_units_us(tmp_path):
@@ -229,8 +229,37 @@ def test_map_command(tmp_path):
         float(np.nanmax(np.where(data["feasible"], data["ps_m_s"], np.nan))))
     for name in ("ps_mach", "ps_tas", "fs_mach"):
         assert (out / f"{name}.png").stat().st_size > 5_000
+    assert sorted(p.name for p in out.glob("*.svg")) == []     # PNG only by default
     bad = _run(["map", tmp_path / "none.toml"])
     assert bad.exit_code == 2
+
+
+def test_format_option_writes_requested_figures(tmp_path):
+    """`--format svg,png` writes both formats of every figure (listed in the summary); an
+    unknown format is a usage error (exit 2) naming the known ones, before any solving."""
+    scenario = ROOT / "scenarios" / "turboprop_regional.toml"
+    out = tmp_path / "f"
+    result = _run(["run", scenario, "--method", "energy", "--objective", "time", "--out", out,
+                   "--format", "svg,png", "--quiet"])
+    assert result.exit_code == 0, result.output
+    doc = json.loads((out / "summary.json").read_text())
+    stems = ("ps_mach", "ps_tas", "fs_mach", "time_histories")
+    assert doc["figures"] == sorted(f"{s}.{e}" for s in stems for e in ("png", "svg"))
+    svg = (out / "time_histories.svg").read_text()
+    assert svg.lstrip().startswith("<?xml") and "<svg" in svg and CAUTION.split(".")[0] in svg
+    bad = _run(["map", scenario, "--out", tmp_path / "g", "--format", "png,tiff"])
+    assert bad.exit_code == 2
+    assert "'png,tiff'" in bad.output and "png, svg, pdf" in bad.output
+    assert not (tmp_path / "g").exists()
+
+
+def test_cli_formats_match_plots():
+    """The command line offers exactly the formats the plot writer knows (kept apart so that
+    `climbopt --help` does not import matplotlib)."""
+    from climbopt import cli as cli_module
+    from climbopt import plots
+
+    assert cli_module._FIGURE_FORMATS == plots.FIGURE_FORMATS == ("png", "svg", "pdf")
 
 
 # ---- collocation (one demo, to keep the suite fast) ------------------------------------------

@@ -126,9 +126,15 @@ def test_outputs_follow_the_umask(tmp_path):
         assert stat.S_IMODE((out / name).stat().st_mode) == 0o644, name
 
 
-def _signal_during_solve(tmp_path, sig):
+def _signal_during_solve(tmp_path, sig, scenario_dir):
     """Run once (energy-state) to have an older folder, then a long collocation run into the
-    same folder, signalled after 3 s (imports and energy-state take about 1.5 s)."""
+    same folder, signalled after 3 s: imports take about 1.3 s, and the transport on an
+    energy-state grid of 2000 x 2000 keeps the first solve busy for several seconds more. (A
+    signal during IPOPT itself is tested in test_collocation.py.)"""
+    slow = scenario_dir / "transport_slow.toml"
+    slow.write_text(TRANSPORT.read_text()
+                    .replace("grid_altitude_points = 300", "grid_altitude_points = 2000")
+                    .replace("grid_speed_points = 300", "grid_speed_points = 2000"))
     out = tmp_path / "o"
     first = _run(["run", TURBOPROP, "--method", "energy", "--objective", "time", "--out", out,
                   "--quiet"])
@@ -136,7 +142,7 @@ def _signal_during_solve(tmp_path, sig):
     before = _snapshot(out)
     code = "import sys; from climbopt.cli import main; sys.argv[0] = 'climbopt'; main()"
     proc = subprocess.Popen(
-        [sys.executable, "-c", code, "run", str(TRANSPORT), "--method", "collocation",
+        [sys.executable, "-c", code, "run", str(slow), "--method", "collocation",
          "--out", str(out)], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
         env={**os.environ, "MPLBACKEND": "Agg"})
     time.sleep(3.0)
@@ -147,10 +153,11 @@ def _signal_during_solve(tmp_path, sig):
 
 @pytest.mark.parametrize("sig,code,word", [(signal.SIGINT, 130, "interrupted"),
                                            (signal.SIGTERM, 143, "terminated")])
-def test_signal_during_solve_keeps_older_folder(tmp_path, sig, code, word):
+def test_signal_during_solve_keeps_older_folder(tmp_path, tmp_path_factory, sig, code, word):
     """Ctrl-C (SIGINT) exits 130 and SIGTERM 143 during a solve: nothing is written, the older
     results folder is byte-identical, no temporary folder is left, no traceback."""
-    rc, text, before, after, out = _signal_during_solve(tmp_path, sig)
+    rc, text, before, after, out = _signal_during_solve(tmp_path, sig,
+                                                        tmp_path_factory.mktemp("scenario"))
     assert rc == code, text
     assert word in text and "Traceback" not in text
     assert after == before

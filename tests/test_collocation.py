@@ -325,3 +325,192 @@ def test_dash_demo_bounds(dash_demo):
     assert col.time_s >= es.time_s - saving - 0.01 * es.time_s
     assert col.time_s == pytest.approx(es.time_s, rel=0.01)
     assert any(n.startswith("dash phase:") for n in col.notes)
+
+
+# ---- one problem for many solves (parameters), compiled point functions, stopping -------------
+
+def _changed(scenario, **values):
+    from climbopt.sweep import apply_case
+
+    return apply_case(scenario, values)
+
+
+def _reference_rates(model, x, u, body):
+    """Scaled state rates of the point-mass model at one point, in plain numpy from ``model``
+    (built with the scenario's own mass, temperature offset and thrust scale)."""
+    from climbopt.atmosphere import G0
+
+    scale = np.array([1e4, 300.0, 1.0, model.mass_kg, 1e5])
+    h, v, gam, m, _ = x * scale
+    cl, thr = u
+    atm = model.atmosphere(np.array(h))
+    mach = v / float(atm.speed_of_sound_m_s)
+    q = 0.5 * float(atm.density_kg_m3) * v * v
+    S = model.reference_area_m2
+    thrust, ff = (float(t) for t in model.thrust_and_fuel_flow(h, mach, thr))
+    drag = q * S * float(model.drag_coefficient(cl, mach))
+    alpha = cl / float(model.lift_slope_per_rad(mach)) if body else 0.0
+    rates = [v * np.sin(gam), (thrust * np.cos(alpha) - drag) / m - G0 * np.sin(gam),
+             (thrust * np.sin(alpha) + q * S * cl) / (m * v) - G0 * np.cos(gam) / v, -ff,
+             v * np.cos(gam)]
+    return np.array(rates) / scale
+
+
+@pytest.mark.parametrize("name", ["interceptor_1969", "turboprop_regional"])
+def test_point_function_parameters_match_numpy_model(name):
+    """One point function built for the scenario as written, evaluated with another start mass,
+    temperature offset (ISA+12 K) and thrust scale as parameters, gives the rates of a numpy
+    model built with those numbers, to 1e-9 relative at random points (jet with body-axis
+    thrust; propeller, whose thrust needs the speed of sound of the offset day)."""
+    from climbopt import collocation
+
+    path = DATA / f"{name}.toml" if name.startswith("interceptor") else SCENARIOS / f"{name}.toml"
+    base = load_scenario(path)
+    model = build_model(base)
+    st = collocation._setup(base, model, "time")
+    F = collocation._point_function(st)
+    other = _changed(base, mass=0.93 * model.mass_kg, temperature_offset=12.0, thrust_scale=1.07)
+    ref_model = build_model(other)
+    params = [0.93 * model.mass_kg, 12.0, 1.07]
+    rng = np.random.default_rng(7)
+    for _ in range(20):
+        h = rng.uniform(st.state_lb[0] + 500.0, min(st.state_ub[0], 12000.0))
+        a = float(ref_model.atmosphere(np.array(h)).speed_of_sound_m_s)
+        mach = rng.uniform(model.domain.mach_min + 0.1, min(model.domain.mach_max, 1.6) - 0.05)
+        x = np.array([h / 1e4, mach * a / 300.0, rng.uniform(-0.2, 0.3), rng.uniform(0.8, 1.0),
+                      rng.uniform(0.0, 2.0)])
+        u = np.array([rng.uniform(0.05, 0.6), rng.uniform(0.4, 1.0)])
+        got = np.asarray(F(x, u[: st.n_u], params)[0]).ravel()
+        want = _reference_rates(ref_model, x, u if st.throttle_free else [u[0], 1.0],
+                                st.body_thrust)
+        np.testing.assert_allclose(got, want, rtol=1e-9, atol=1e-12)
+
+
+def test_reused_problem_equals_rebuilt_for_other_numbers(interceptor, min_time):
+    """A case with another start mass, temperature offset, thrust scale and target speed is
+    solved on the problem already built for the published case (reused: same mesh) and on a
+    freshly built one: the same optimum to 1e-6 relative, and a different one from the
+    published case's (the numbers really reach the problem)."""
+    from climbopt import collocation
+
+    scenario, model = interceptor
+    other = _changed(scenario, mass=0.97 * model.mass_kg, temperature_offset=8.0,
+                     thrust_scale=1.04,
+                     target_speed=0.98 * scenario.mission.target.speed_value)
+    other_model = build_model(other)
+    guess = solve_energy_state(other, "time", model=other_model)
+    solve_collocation(scenario, "time", model=model, guess=guess)  # the base problem is built
+    reused = solve_collocation(other, "time", model=other_model, guess=guess)
+    assert any("on 1 of" in n or "on 2 of" in n for n in reused.notes
+               if n.startswith("NLP reused")), reused.notes
+    collocation._TRANSCRIPTIONS.clear()
+    rebuilt = solve_collocation(other, "time", model=other_model, guess=guess)
+    assert any(n.startswith("NLP reused") and " on 0 of" in n for n in rebuilt.notes)
+    assert reused.time_s == pytest.approx(rebuilt.time_s, rel=1e-6)
+    assert reused.fuel_kg == pytest.approx(rebuilt.fuel_kg, rel=1e-6)
+    assert reused.table["altitude_m"].shape == rebuilt.table["altitude_m"].shape
+    np.testing.assert_allclose(reused.table["tas_m_s"], rebuilt.table["tas_m_s"], rtol=1e-5)
+    assert abs(reused.time_s / min_time.time_s - 1.0) > 1e-3
+
+
+def test_time_limit_stops_ipopt(interceptor):
+    """A time limit that is already spent stops IPOPT at its first iteration: SolverFailure with
+    status Maximum_WallTime_Exceeded and the limit named, never an optimum."""
+    scenario, model = interceptor
+    with pytest.raises(SolverFailure) as info:
+        solve_collocation(scenario, "time", model=model, guess="straight", intervals=20,
+                          time_limit_s=1e-9)
+    assert info.value.status == "Maximum_WallTime_Exceeded"
+    assert "time limit" in str(info.value)
+    assert info.value.trajectory is not None and info.value.trajectory.converged is False
+
+
+def test_interrupt_during_ipopt_is_raised_not_a_failure(interceptor):
+    """Ctrl-C (SIGINT) arriving while IPOPT iterates stops the solve with KeyboardInterrupt
+    (the run is stopped), not with a SolverFailure."""
+    import os
+    import signal
+
+    scenario, model = interceptor
+
+    def progress(message, fraction):
+        if "IPOPT iteration 3," in message:
+            os.kill(os.getpid(), signal.SIGINT)
+
+    with pytest.raises(KeyboardInterrupt):
+        solve_collocation(scenario, "time", model=model, guess="straight", intervals=20,
+                          progress=progress)
+
+
+def _cc():
+    import shutil
+
+    return shutil.which("cc") or shutil.which("gcc")
+
+
+@pytest.mark.skipif(_cc() is None, reason="no C compiler")
+def test_compiled_point_function_cached_and_invalidated(tmp_path, monkeypatch):
+    """The compiled point function equals CasADi's own evaluation to 1e-12 relative; once in
+    the on-disk cache it is loaded, not compiled again, and a solve uses it without being asked
+    to; another table value is another artefact (not cached yet), so a changed aircraft never
+    uses a stale one."""
+    from climbopt import collocation
+
+    monkeypatch.setenv(collocation.CACHE_ENV, str(tmp_path / "cache"))
+    monkeypatch.setattr(collocation, "_LOADED", {})
+    scenario = load_scenario(SCENARIOS / "turboprop_regional.toml")
+    fun, path, note = collocation.compiled_point_function(scenario)
+    assert path.parent == tmp_path / "cache" and path.exists() and "compiled to C" in note
+    model = build_model(scenario)
+    st = collocation._setup(scenario, model, "time")
+    F = collocation._point_function(st)
+    rng = np.random.default_rng(3)
+    for _ in range(10):
+        x = np.array([rng.uniform(0.1, 0.7), rng.uniform(0.3, 0.5), rng.uniform(-0.1, 0.2),
+                      rng.uniform(0.9, 1.0), 0.5])
+        u = np.array([rng.uniform(0.1, 1.0), rng.uniform(0.4, 1.0)])
+        for a, b in zip(fun(x, u, st.point_params), F(x, u, st.point_params)):
+            np.testing.assert_allclose(np.asarray(a), np.asarray(b), rtol=1e-12, atol=1e-15)
+
+    def no_compiling(*args):
+        raise AssertionError("compiled again although cached")
+
+    monkeypatch.setattr(collocation, "_compile", no_compiling)
+    monkeypatch.setattr(collocation, "_LOADED", {})
+    again, path2, note2 = collocation.compiled_point_function(scenario)
+    assert path2 == path and "from the cache" in note2
+    tr = solve_case(scenario, "collocation", "time", model=model)
+    assert tr.ranked and any(path.name in n for n in tr.notes)
+    plain = solve_case(scenario, "collocation", "time", model=model, compile=False)
+    assert not any("compiled" in n for n in plain.notes)
+    assert tr.time_s == pytest.approx(plain.time_s, rel=1e-6)
+    rating = scenario.propulsion.ratings[scenario.propulsion.default_rating]
+    power = rating.shaft_power_w
+    values = np.array(power.values, dtype=float)
+    values[3, 2] *= 1.01
+    changed = replace(scenario, propulsion=replace(scenario.propulsion, ratings={
+        **scenario.propulsion.ratings,
+        rating.name: replace(rating, shaft_power_w=replace(power, values=values))}))
+    none, path3, note3 = collocation.compiled_point_function(changed, build=False)
+    assert none is None and path3 != path and not path3.exists()
+
+
+def test_neighbouring_cases_start_from_each_other_with_the_same_optimum(interceptor):
+    """Sweep-style solves (from_neighbour) start each case's first mesh pass from the previous
+    case's solution and reach the same optimum as independent solves, to 1e-6 relative."""
+    from climbopt import collocation
+
+    scenario, model = interceptor
+    cases = [_changed(scenario, mass=f * model.mass_kg, temperature_offset=dt)
+             for f, dt in ((1.0, 0.0), (0.98, 3.0), (0.96, 6.0))]
+    guesses = [solve_energy_state(c, "time", model=build_model(c)) for c in cases]
+    collocation._NEIGHBOURS.clear()
+    chained = [solve_collocation(c, "time", model=build_model(c), guess=g, from_neighbour=True)
+               for c, g in zip(cases, guesses)]
+    started = ["previous case's solution" in " ".join(t.notes) for t in chained]
+    assert started == [False, True, True]
+    for case, guess, tr in zip(cases, guesses, chained):
+        alone = solve_collocation(case, "time", model=build_model(case), guess=guess)
+        assert tr.time_s == pytest.approx(alone.time_s, rel=1e-6)
+        assert tr.fuel_kg == pytest.approx(alone.fuel_kg, rel=1e-6)
+    assert abs(chained[2].time_s / chained[0].time_s - 1.0) > 1e-3  # the cases really differ

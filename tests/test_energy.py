@@ -243,3 +243,28 @@ def test_maximise_on_lines_analytic():
     # nothing feasible: NaN and -inf
     x, f = maximise_on_lines(lambda x, line: np.full(x.shape, -np.inf), lo, hi, points=5)
     assert np.all(np.isnan(x)) and np.all(f == -np.inf)
+
+
+def test_grid_in_blocks_equals_one_piece():
+    """A map computed in blocks of rows (bounded memory) holds exactly the fields and limit
+    masks of the same grid computed in one piece."""
+    from pathlib import Path
+
+    from climbopt.aircraft import build_model
+    from climbopt.energy import _BLOCK_POINTS, build_energy_map, energy_fields
+    from climbopt.envelope import envelope_for
+    from climbopt.scenario import load_scenario
+
+    scenario = load_scenario(Path(__file__).parents[1] / "scenarios" / "transport_twinjet.toml")
+    model = build_model(scenario)
+    nv = 250
+    emap = build_energy_map(scenario, model=model, shape=(3 * _BLOCK_POINTS // nv + 7, nv))
+    whole = energy_fields(model, emap.altitude_m[:, None], emap.speed[None, :], model.mass_kg,
+                          limits=envelope_for(scenario, model, path=False))
+    for name in ("mach", "cl", "cl_max", "thrust_n", "drag_n", "ps_m_s", "fuel_flow_kg_s",
+                 "dynamic_pressure_pa", "feasible", "cas_m_s"):
+        np.testing.assert_array_equal(getattr(emap.fields, name), getattr(whole, name), name)
+    assert emap.fields.limits.keys() == whole.limits.keys()
+    for name, ok in whole.limits.items():
+        np.testing.assert_array_equal(emap.fields.limits[name], ok, name)
+    assert 0.2 < emap.feasible.mean() < 0.9

@@ -50,7 +50,7 @@ def _verdicts(case, name, h, v, n=1.0):
     else:
         x = np.array([h, v, 0.05, m, 0.0]) / st.x_scale
         u = [cl, 1.0] if st.throttle_free else [cl]
-        g = np.asarray(F(x, u)[1]).ravel()[st.path_names.index(name)]
+        g = np.asarray(F(x, u, st.point_params)[1]).ravel()[st.path_names.index(name)]
         k = st.path_names.index(name)
         colloc = max(g - st.path_ub[k], st.path_lb[k] - g) <= INSIDE_TOL
     ys = np.array([[h, v, 0.05, m, 0.0]])

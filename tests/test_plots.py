@@ -43,8 +43,8 @@ def _nonblank_png(path):
 
 
 def test_time_histories_counts_and_files(tmp_path):
-    """Five panels, one line per result on each, saved as non-blank PNG and SVG with the
-    caution at the foot."""
+    """Five panels, one line per result on each, saved as non-blank PNG and, on request, SVG
+    with the caution at the foot."""
     trajs = [_traj("energy-state", "time"), _traj("energy-state", "fuel", duration_s=400.0),
              _traj("collocation", "time", duration_s=280.0)]
     axes = plots.plot_time_histories(trajs, units="us")
@@ -56,7 +56,7 @@ def test_time_histories_counts_and_files(tmp_path):
     assert top == pytest.approx(5000.0 / 0.3048 / 1000.0)
     # mass panel in lb
     assert _paths(axes[4])[0].get_ydata()[0] == pytest.approx(5000.0 / 0.45359237)
-    written = plots.save_figure(axes[0].figure, tmp_path / "histories")
+    written = plots.save_figure(axes[0].figure, tmp_path / "histories", ("png", "svg"))
     assert [p.suffix for p in written] == [".png", ".svg"]
     _nonblank_png(tmp_path / "histories.png")
     svg = (tmp_path / "histories.svg").read_text()
@@ -101,9 +101,11 @@ def test_ps_map_paths_zooms_limits(interceptor_map, tmp_path, x):
         assert np.allclose(_paths(ax)[0].get_xdata(), trajs[0].table["mach"])
     else:
         assert np.allclose(_paths(ax)[0].get_xdata(), trajs[0].table["tas_m_s"])
-    plots.save_figure(fig, tmp_path / f"ps_{x}")
+    written = plots.save_figure(fig, tmp_path / f"ps_{x}")
+    assert written == [tmp_path / f"ps_{x}.png"]           # PNG alone by default
     _nonblank_png(tmp_path / f"ps_{x}.png")
-    assert (tmp_path / f"ps_{x}.svg").stat().st_size > 10_000
+    with pytest.raises(ValueError, match="unknown figure format.*'eps'.*png, svg, pdf"):
+        plots.save_figure(fig, tmp_path / f"ps_{x}", ("png", "eps"))
 
 
 def test_fs_map_shows_fuel_paths_only(interceptor_map):

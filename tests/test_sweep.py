@@ -358,10 +358,10 @@ def test_interrupted_sweep_resumes_without_recomputing_or_losing_cases(
     calls = []
     real = sw.run_case
 
-    def counting(scenario, case):  # every case run, solved or refused as bad input
+    def counting(scenario, case, **kw):  # every case run, solved or refused as bad input
         values = dict(case.values)
         calls.append((values["mass"], values["target_altitude"]))
-        return real(scenario, case)
+        return real(scenario, case, **kw)
 
     monkeypatch.setattr(sw, "run_case", counting)
     res = sw.run_sweep(grid_plan, table, executor="serial", max_cases=1)
@@ -388,7 +388,7 @@ def test_a_row_torn_by_a_crash_is_solved_again(grid_plan, serial_rows, tmp_path,
     table.write_text(text[: text.rstrip("\n").rfind(",") - 5])  # crash in the middle of row 3
     calls = []
     real = sw.run_case
-    monkeypatch.setattr(sw, "run_case", lambda s, c: calls.append(1) or real(s, c))
+    monkeypatch.setattr(sw, "run_case", lambda s, c, **kw: calls.append(1) or real(s, c, **kw))
     res = sw.run_sweep(grid_plan, table, executor="serial")
     assert (res.computed, res.skipped) == (4, 2) and len(calls) == 4
     assert _same(res.rows, serial_rows)
@@ -570,11 +570,11 @@ def test_cli_sweep_ctrl_c_keeps_the_finished_rows_and_exits_130(small_toml, tmp_
     real = sw.run_case
     calls = []
 
-    def interrupted_on_second(scenario, case):
+    def interrupted_on_second(scenario, case, **options):
         calls.append(case.index)
         if len(calls) == 2:
             raise KeyboardInterrupt
-        return real(scenario, case)
+        return real(scenario, case, **options)
 
     monkeypatch.setattr(sw, "run_case", interrupted_on_second)
     out = tmp_path / "o"
@@ -635,3 +635,30 @@ def test_case_with_mass_below_fuel_capacity_is_refused_like_the_file(twin, tmp_p
         load_scenario(tmp_path / "light.toml")
     assert info.value.problems == [("aircraft.fuel_capacity", "'20000 kg' exceeds the start mass '15 t'; "
                                                               "expected at most the start mass")]
+
+
+def test_compile_only_where_it_pays(twin, tmp_path, monkeypatch):
+    """Collocation sweeps compile the point function once, in the parent, when told to or when
+    at least COMPILE_MIN_CASES cases are to be solved; never for energy-state sweeps, never
+    with --no-compile, and not for a few cases whose artefact is not cached yet."""
+    from climbopt import collocation
+
+    monkeypatch.setenv(collocation.CACHE_ENV, str(tmp_path / "cache"))
+    monkeypatch.setattr(collocation, "_LOADED", {})
+    attempts = []
+
+    def fake_compile(F, path):
+        attempts.append(path)
+        raise OSError("no C compiler here")
+
+    monkeypatch.setattr(collocation, "_compile", fake_compile)
+    energy = _plan(twin, "mass=60,70 t")
+    few = _plan(twin, "mass=60,70 t", method="collocation")
+    assert sw._compile_choice(energy, True, 40) is False
+    assert sw._compile_choice(few, False, 40) is False
+    assert sw._compile_choice(few, None, 2) is False and attempts == []
+    assert sw._compile_choice(few, None, sw.COMPILE_MIN_CASES) is True and len(attempts) == 1
+    assert sw._compile_choice(few, True, 2) is True and len(attempts) == 2
+    # the cases fall back to CasADi's own evaluation and say so
+    _, _, note = collocation.compiled_point_function(twin)
+    assert "compiling failed" in note and "no C compiler here" in note
