@@ -26,11 +26,15 @@ from dataclasses import dataclass
 import numpy as np
 
 from climbopt.atmosphere import G0, SmoothAtmosphere
-from climbopt.fits import Fit1D, Fit2D, ModelDomainError, is_casadi
+from climbopt.fits import Fit1D, Fit2D, ModelDomainError, is_casadi, smoothstep
 from climbopt.scenario import Rating, Scenario
 
 __all__ = ["AircraftModel", "Domain", "ModelDomainError", "PointPerformance", "build_model",
            "fast_scalar_function"]
+
+#: Half-width of the blend between two ratings of a rating schedule around each change
+#: altitude [m] (see :meth:`AircraftModel.rating_weights`).
+RATING_BLEND_M = 30.0
 
 #: Lowest Mach number at which the propeller thrust model T = eta P / V is used.
 PROPELLER_MIN_MACH = 0.05
@@ -146,6 +150,10 @@ class AircraftModel:
         self.thrust_alignment = prop.thrust_alignment
         self.thrust_scale = float(prop.thrust_scale)
         self.default_rating = scenario.mission.rating or prop.default_rating
+        steps = getattr(scenario.mission, "rating_schedule", ()) or ()
+        #: (rating, up to altitude [m] or None, thrust fraction) of the mission's rating schedule
+        self.rating_schedule = (tuple((st.rating, st.until_m, st.thrust_fraction) for st in steps)
+                                or ((self.default_rating, None, 1.0),))
         self._wind = _WindFit(getattr(scenario.atmosphere, "wind", None))
 
         drag = ac.drag
@@ -174,6 +182,8 @@ class AircraftModel:
         if self.default_rating not in self._ratings:
             raise KeyError(f"unknown rating {self.default_rating!r}")
         rd = self._ratings[self.default_rating].domain
+        for name, _, _ in self.rating_schedule:  # every rating the mission uses has data
+            rd = _intersect(rd, self._ratings[name].domain)
         self.domain = Domain(
             rd.altitude_min_m, rd.altitude_max_m,
             max([rd.mach_min] + [i.low for i in aero_mach]),
@@ -214,6 +224,33 @@ class AircraftModel:
         return self._lift_slope(mach, check=check)
 
     # ------------------------------------------------------------------ propulsion
+    @property
+    def scheduled(self) -> bool:
+        """True when the mission's rating changes with altitude or is derated (then ``rating=None``
+        in the engine methods means that schedule)."""
+        return len(self.rating_schedule) > 1 or self.rating_schedule[0][2] != 1.0
+
+    @property
+    def rating_label(self) -> str:
+        """The mission's rating in words, e.g. "'max' to 914 m, then 'climb' at 95 % thrust"."""
+        words = []
+        for name, until, frac in self.rating_schedule:
+            w = f"'{name}'" + (f" at {100 * frac:g} % thrust" if frac != 1.0 else "")
+            words.append(w + (f" to {until:,.0f} m" if until is not None else ""))
+        return ", then ".join(words)
+
+    def rating_weights(self, altitude_m):
+        """Weight of each step of the rating schedule at altitude [m] (numpy or CasADi): 1 in
+        its altitude band, 0 outside, blended with a C2 quintic step over
+        :data:`RATING_BLEND_M` each side of each change altitude (so that the collocation
+        solver's derivatives exist); the weights add up to 1."""
+        ups = [u for _, u, _ in self.rating_schedule[:-1]]
+        above = [smoothstep((altitude_m - u + RATING_BLEND_M) / (2.0 * RATING_BLEND_M))
+                 for u in ups]  # 1 above the change, 0 below it
+        lower = [1.0] + above
+        upper = above + [0.0]
+        return [lo - hi for lo, hi in zip(lower, upper, strict=True)]
+
     def _rating(self, rating: str | None) -> _RatingFits:
         name = rating or self.default_rating
         try:
@@ -250,6 +287,11 @@ class AircraftModel:
         (standard-day temperature at the altitude [K]) and ``speed_of_sound_m_s`` (at the
         offset, propeller models) may be passed when the caller has them.
         """
+        if rating is None and self.scheduled:
+            return self._scheduled_engine(altitude_m, mach, throttle, thrust_scale=thrust_scale,
+                                          temperature_offset_k=temperature_offset_k,
+                                          standard_temperature_k=standard_temperature_k,
+                                          speed_of_sound_m_s=speed_of_sound_m_s, check=check)
         r = self._rating(rating)
         if thrust_scale is None:
             thrust_scale = self.thrust_scale
@@ -278,6 +320,17 @@ class AircraftModel:
         else:
             sfc = r.tsfc_kg_per_n_s if r.kind == "jet" else r.psfc_kg_per_w_s
             fuel = sfc * main * sfc_factor
+        return thrust, fuel
+
+    def _scheduled_engine(self, altitude_m, mach, throttle, **kw):
+        """:meth:`engine` under the mission's rating schedule: each step's rating at its thrust
+        fraction (as a throttle factor: fuel flow in proportion), weighted by
+        :meth:`rating_weights`."""
+        thrust = fuel = 0.0
+        for (name, _, frac), w in zip(self.rating_schedule, self.rating_weights(altitude_m),
+                                      strict=True):
+            t, f = self.engine(altitude_m, mach, throttle * frac, name, **kw)
+            thrust, fuel = thrust + w * t, fuel + w * f
         return thrust, fuel
 
     def thrust_n(self, altitude_m, mach, throttle=1.0, rating: str | None = None, *,
@@ -351,7 +404,7 @@ class AircraftModel:
 
         if body is None:
             body = self.thrust_alignment == "body"
-        key = (rating or self.default_rating, bool(body))
+        key = (rating or (None if self.scheduled else self.default_rating), bool(body))
         cache = self.__dict__.setdefault("_force_functions", {})
         if key in cache:
             return cache[key]

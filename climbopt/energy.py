@@ -318,8 +318,7 @@ def build_energy_map(source, *, altitude_m=None, speed=None, speed_kind: str = "
     if limits is None and scen is not None:
         limits = envelope_for(scen, model, path=False)
     limits = _as_envelope(limits, model) if limits is not None else None
-    scen_rating = scen.mission.rating if scen is not None else None
-    rating = rating or scen_rating or model.default_rating
+    rating = rating or (None if scen is not None else model.default_rating)
     if shape is None:
         if scen is not None:
             shape = (scen.solver.grid_altitude_points, scen.solver.grid_speed_points)
@@ -348,7 +347,10 @@ def build_energy_map(source, *, altitude_m=None, speed=None, speed_kind: str = "
         tas = speed[None, :]
     f = _grid_fields(model, h_col, tas, mass, limits=limits, load_factor=load_factor,
                      throttle=throttle, rating=rating)
-    return EnergyMap(altitude_m, speed, speed_kind, f, mass, float(load_factor), throttle, rating,
+    label = rating
+    if label is None:  # the mission's rating, in words when it is a schedule
+        label = model.rating_label if getattr(model, "scheduled", False) else model.default_rating
+    return EnergyMap(altitude_m, speed, speed_kind, f, mass, float(load_factor), throttle, label,
                      float(getattr(model, "temperature_offset_k", 0.0)))
 
 

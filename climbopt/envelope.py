@@ -57,6 +57,7 @@ import numpy as np
 
 from climbopt.airspeed import impact_pressure_from_cas, impact_pressure_pa
 from climbopt.atmosphere import G0
+from climbopt.fits import smoothstep
 
 __all__ = ["CAS_RESTRICTION_BAND_M", "Envelope", "FlightQuantities", "INSIDE_TOL", "LimitRow",
            "ALTITUDE_UNIT_M", "envelope_for", "flight_quantities"]
@@ -247,7 +248,7 @@ class Envelope:
         # C2 release over the band above the restriction altitude (never looser than the rule):
         # subtract up to the largest ratio the tables allow there (Mach cap at that altitude).
         release = self._restriction_release(below)
-        return ratio - release * _smoothstep((altitude_m - below) / CAS_RESTRICTION_BAND_M)
+        return ratio - release * smoothstep((altitude_m - below) / CAS_RESTRICTION_BAND_M)
 
     def _restriction_release(self, below_m: float) -> float:
         from climbopt.atmosphere import standard_atmosphere
@@ -284,14 +285,6 @@ class Envelope:
         ratio rows, 0.4 m for altitude)."""
         return {k: (m <= INSIDE_TOL) & (m >= -fraction * self._row[k].tolerance)
                 for k, m in self.margins(fq).items()}
-
-
-def _smoothstep(s):
-    """C2 quintic step: 0 for s <= 0, 1 for s >= 1, 6 s^5 - 15 s^4 + 10 s^3 between (CasADi)."""
-    import casadi as ca
-
-    c = ca.fmin(ca.fmax(s, 0.0), 1.0)
-    return c**3 * (10.0 - 15.0 * c + 6.0 * c**2)
 
 
 def envelope_for(scenario, model=None, *, path: bool = True) -> Envelope:

@@ -50,6 +50,18 @@ def is_casadi(x) -> bool:
     return isinstance(x, (ca.MX, ca.SX, ca.DM))
 
 
+def smoothstep(s):
+    """C2 quintic step 6 s^5 - 15 s^4 + 10 s^3 of ``s`` clipped to [0, 1]: 0 below, 1 above,
+    with continuous first and second derivatives (numpy arrays or CasADi symbols)."""
+    if is_casadi(s):
+        import casadi as ca
+
+        c = ca.fmin(ca.fmax(s, 0.0), 1.0)
+    else:
+        c = np.clip(s, 0.0, 1.0)
+    return c**3 * (10.0 - 15.0 * c + 6.0 * c**2)
+
+
 def margin(grid: np.ndarray) -> float:
     """Width of the linear extension beyond each end of a table axis: 10% of the axis span."""
     return 0.10 * float(grid[-1] - grid[0])

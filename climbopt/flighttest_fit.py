@@ -250,11 +250,14 @@ class MeasuredAircraftModel(AircraftModel):
         self.coefficients = surface.coefficients if coefficients is None else coefficients
         self.name = f"{predicted.name} (measured Ps)"
 
-    def thrust_and_fuel_flow(self, altitude_m, mach, throttle=1.0, rating: str | None = None, *,
-                             check: bool = True):
-        """Net thrust [N] with the measured change, and the predicted fuel flow [kg/s]."""
-        thrust, fuel = super().thrust_and_fuel_flow(altitude_m, mach, throttle, rating,
-                                                    check=check)
+    def engine(self, altitude_m, mach, throttle=1.0, rating: str | None = None, **kw):
+        """Net thrust [N] with the measured change, and the predicted fuel flow [kg/s] (every
+        engine path of the model goes through here: numpy, CasADi, the collocation's
+        parametrised graph; under a rating schedule each step's call adds it, with weights
+        summing to one)."""
+        thrust, fuel = super().engine(altitude_m, mach, throttle, rating, **kw)
+        if rating is None and self.scheduled:
+            return thrust, fuel
         q = 0.7 * self.atmosphere(altitude_m).pressure_pa * mach * mach
         dc = self.surface.delta_coefficient(altitude_m, mach, self.coefficients)
         return thrust + q * self.reference_area_m2 * dc, fuel

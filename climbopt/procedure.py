@@ -308,7 +308,7 @@ class _Flight:
     name: str
     model: object
     envelope: object
-    rating: str
+    rating: str | None
     law_value: dict  # band -> (law, value): "restriction", "climb", "mach"
     restriction_m: float | None
     target: tuple  # (altitude [m], TAS [m/s])
@@ -649,7 +649,8 @@ def _columns(flight: _Flight) -> tuple[dict, list]:
             "energy_height_m": energy_height_m(h, v), "ps_m_s": o[_PS],
             "flight_path_angle_rad": np.arcsin(o[_SIN]), "mass_kg": m,
             "fuel_used_kg": m0 - m, "distance_m": x, "throttle": thr,
-            "lift_coefficient": o[_CL], "load_factor": o[_N], "dynamic_pressure_pa": o[_Q]})
+            "lift_coefficient": o[_CL], "load_factor": o[_N], "dynamic_pressure_pa": o[_Q],
+            "thrust_n": o[_T]})
         ranges.append((start, start + h.size - 1))
         start += h.size
     cols = {k: np.concatenate([pt[k] for pt in parts]) for k in parts[0]}
@@ -719,7 +720,7 @@ def _flight_for(scenario, model, spec: ScheduleSpec, envelope, *, dense: bool,
             law_value["restriction"] = ("cas", float(spec.cas_below_restriction_m_s))
     start, target = mission.start, mission.target
     fl = _Flight(name=name, model=model, envelope=envelope,
-                 rating=mission.rating or model.default_rating, law_value=law_value,
+                 rating=None, law_value=law_value,
                  restriction_m=h_r, target=(float(target.altitude_m), float(target.tas_m_s)),
                  share=share, fuel_capacity_kg=scenario.aircraft.fuel_capacity_kg, dense=dense,
                  rtol=rtol)
@@ -956,7 +957,7 @@ def _search_setup(scenario, model, objective: Objective, envelope) -> tuple[_Sea
                                  "flight envelope over the climb", limit="envelope")
     rates = {Objective.TIME: lambda ff: 1.0, Objective.FUEL: lambda ff: ff,
              Objective.WEIGHTED: lambda ff: ff + w}[objective]
-    rating = mission.rating or model.default_rating
+    rating = None  # the mission's rating, or its rating schedule
     x0 = []
     if has_r:
         x0.append(_best_cas(model, rating, rates, np.linspace(h0, bottom, 4)[:-1], m0,

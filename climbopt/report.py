@@ -51,6 +51,7 @@ COLUMN_KINDS: dict[str, str] = {
     "lift_coefficient": "none",
     "load_factor": "none",
     "dynamic_pressure_pa": "pressure",
+    "thrust_n": "force",
 }
 
 

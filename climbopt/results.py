@@ -55,6 +55,7 @@ COLUMNS: dict[str, str] = {
     "lift_coefficient": "-",
     "load_factor": "-",
     "dynamic_pressure_pa": "Pa",
+    "thrust_n": "N",
 }
 
 

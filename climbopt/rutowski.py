@@ -144,7 +144,7 @@ class _Problem:
 
     model: object
     limits: object  # climbopt.envelope.Envelope
-    rating: str
+    rating: str | None  # None: the mission's rating (schedule) of the model
     throttle: float
     h_bottom_m: float
     h_top_m: float
@@ -311,7 +311,7 @@ def _raise_ceiling(prob, he_levels, val, mass_levels, he_target):
         f"target energy height {_m_ft(he_target)} is not reachable: the highest reachable energy "
         f"height is {_m_ft(he_c)} (energy ceiling, where specific excess power falls to zero), "
         f"at altitude {_m_ft(h_c)}, Mach {m_c:.2f} (mass {mass_levels[k - 1]:,.0f} kg, rating "
-        f"{prob.rating!r}, limits applied)",
+        f"{prob.model.rating_label}, limits applied)",
         he_c, h_c, m_c)
 
 
@@ -429,7 +429,8 @@ def _dash(prob, target, mass0, distance_m):
                      rating=prob.rating)
     except LevelFlightImpossible as exc:
         raise InfeasibleMission(f"the dash at the target state cannot be flown: {exc} (rating "
-                                f"{prob.rating!r})", math.nan, exc.altitude_m, exc.mach) from None
+                                f"{prob.model.rating_label})", math.nan, exc.altitude_m,
+                                exc.mach) from None
     return dict(distance=leg.distance, time=leg.time, mass=leg.mass, fuel=leg.fuel,
                 throttle=leg.throttle)
 
@@ -551,7 +552,7 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
 
         model = build_model(scenario)
     env = envelope_for(scenario, model)
-    rating = scenario.mission.rating or model.default_rating
+    rating = None  # the mission's rating, or its rating schedule (AircraftModel.engine)
     prob = _Problem(model, env, rating, float(model.throttle_max), env.altitude_min_m,
                     env.altitude_max_m, max(3, int(scenario.solver.grid_speed_points)), refine,
                     monotone=env.profile == "procedure")
@@ -795,8 +796,9 @@ def _table(prob, path, integ, start, target):
 
 
 def _finish_columns(model, cols):
-    """Add Mach, CAS, dynamic pressure and the 1 g lift coefficient from altitude, TAS and mass
-    (model atmosphere; compressible pitot formulas; L = m g0, the energy-state assumption)."""
+    """Add Mach, CAS, dynamic pressure, the 1 g lift coefficient and the thrust from altitude,
+    TAS, mass and throttle (model atmosphere; compressible pitot formulas; L = m g0, the
+    energy-state assumption; the mission's rating or rating schedule)."""
     atm = model.atmosphere(cols["altitude_m"])
     v = np.asarray(cols["tas_m_s"], dtype=float)
     mach = v / atm.speed_of_sound_m_s
@@ -807,6 +809,10 @@ def _finish_columns(model, cols):
     cols["load_factor"] = np.ones_like(q)
     with np.errstate(divide="ignore", invalid="ignore"):
         cols["lift_coefficient"] = np.asarray(cols["mass_kg"]) * G0 / (q * model.reference_area_m2)
+    thr = np.nan_to_num(np.asarray(cols["throttle"], dtype=float), nan=float(model.throttle_max))
+    fd = model.fit_domain
+    cols["thrust_n"] = model.thrust_n(cols["altitude_m"], np.clip(mach, fd.mach_min, fd.mach_max),
+                                      thr, check=False)
     return {k: np.asarray(cols[k], dtype=float) for k in COLUMNS}
 
 

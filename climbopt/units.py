@@ -151,7 +151,7 @@ DISPLAY_UNITS: dict[str, dict[str, str]] = {
 #: 1e-5 rad or 0.001 deg of angle, 4 decimals for Mach number and other plain numbers.
 UNIT_DIGITS: dict[str, int] = {
     "s": 1, "m": 1, "ft": 0, "km": 2, "nmi": 2, "m/s": 2, "kt": 1, "km/h": 1, "kg": 1, "lb": 1,
-    "ft/min": 0, "rad": 5, "deg": 3, "Pa": 0, "hPa": 2, "lbf/ft^2": 2, "K": 2, "kg/s": 4,
+    "ft/min": 0, "rad": 5, "deg": 3, "Pa": 0, "N": 0, "lbf": 0, "hPa": 2, "lbf/ft^2": 2, "K": 2, "kg/s": 4,
     "kg/h": 1, "lb/h": 1, "m/kg": 2, "ft/kg": 1, "ft/lb": 1, "%": 2, "": 4,
 }
 

@@ -185,7 +185,7 @@ def _simulate(trajectory, scenario, model, t, planned, he_f) -> _Simulation:
 
     cl_all = np.asarray(trajectory.controls.lift_coefficient, float)
     th_all = np.asarray(trajectory.controls.throttle, float)
-    rating = scenario.mission.rating or model.default_rating
+    rating = None  # the mission's rating, or its rating schedule (AircraftModel.engine)
     m0 = float(planned[3, 0])
     scales = _SCALES * np.array([1, 1, 1, m0, 1])
     rhs_for = _rhs_factory(model, rating, model.thrust_alignment == "body")

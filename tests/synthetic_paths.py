@@ -67,7 +67,7 @@ def simple_table(n=50, *, top_m=5000.0, tas_m_s=120.0, duration_s=300.0, fuel_kg
         "flight_path_angle_rad": np.full(n, 0.1), "mass_kg": mass0_kg - fuel,
         "fuel_used_kg": fuel, "distance_m": v * t, "throttle": np.ones(n),
         "lift_coefficient": np.full(n, 0.5), "load_factor": np.ones(n),
-        "dynamic_pressure_pa": np.full(n, 8000.0),
+        "dynamic_pressure_pa": np.full(n, 8000.0), "thrust_n": np.full(n, 50_000.0),
     }
 
 
@@ -76,7 +76,8 @@ def _lift_columns(h, v, mass_kg, temperature_offset_k, area_m2=120.0):
     from climbopt.atmosphere import standard_atmosphere
 
     q = 0.5 * standard_atmosphere(h, temperature_offset_k).density_kg_m3 * v * v
-    return {"dynamic_pressure_pa": q, "lift_coefficient": mass_kg * G0 / (q * area_m2),
+    return {"dynamic_pressure_pa": q, "thrust_n": np.full_like(h, 100_000.0),
+            "lift_coefficient": mass_kg * G0 / (q * area_m2),
             "load_factor": np.ones_like(h)}
 
 

@@ -199,3 +199,54 @@ def test_bad_wind(tmp_path):
                               f'temperature_offset = "0 K"\n{wind}')
         result = CliRunner().invoke(cli, ["check", str(path)])
         assert result.exit_code == 2 and field in result.output, result.output
+
+
+def test_rating_schedule_switches_at_the_stated_altitude(transport):
+    """'max' up to 3,000 ft, then 'climb': the climb is never slower than on 'climb' alone
+    (more thrust early; common practice, no source), and in the per-point tables of the
+    energy-state path and of a flown schedule the thrust is the 'max' rating's below 3,000 ft
+    and the 'climb' rating's above it (beyond the 30 m blend either side)."""
+    from climbopt.procedure import fly_schedule
+    from climbopt.scenario import RatingStep, ScheduleSpec
+
+    steps = (RatingStep("max", 3000 * FT), RatingStep("climb"))
+    sched = dataclasses.replace(transport, mission=dataclasses.replace(
+        transport.mission, rating="max", rating_schedule=steps))
+    plain_model, model = build_model(transport), build_model(sched)
+    assert model.scheduled and "'max' to 914 m, then 'climb'" == model.rating_label
+    spec = ScheduleSpec("250/290/M0.74", 290 * KT, 0.74, 250 * KT)
+    for solve in (lambda sc, m: solve_energy_state(sc, "time", model=m),
+                  lambda sc, m: fly_schedule(sc, m, spec)):
+        tr, plain = solve(sched, model), solve(transport, plain_model)
+        assert tr.time_s <= plain.time_s * (1 + 1e-6)
+        t = tr.table
+        for rating, where in (("max", t.altitude_m < 3000 * FT - 30.0),
+                              ("climb", t.altitude_m > 3000 * FT + 30.0)):
+            assert where.sum() >= 3
+            expected = model.thrust_n(t.altitude_m[where], t.mach[where], t.throttle[where],
+                                      rating)
+            np.testing.assert_allclose(t.thrust_n[where], expected, rtol=1e-9)
+
+
+def test_downrange_business_jet_collocation_verifies(monkeypatch):
+    """The invented mid-size jet climbing to FL410 with a 150 nmi downrange point: minimum time
+    and minimum fuel both converge in well under 100 IPOPT iterations and pass their
+    re-simulation check; the minimum-fuel throttle does not chatter (it does without the
+    smoothing term: a singular arc), and the smoothing moves the minimum fuel by less than
+    0.1 % against the solve without it."""
+    from climbopt import collocation
+    from climbopt.pipeline import solve_case
+
+    scenario = load_scenario(ROOT / "scenarios" / "bizjet_downrange.toml")
+    model = build_model(scenario)
+    for objective in ("time", "fuel"):
+        tr = solve_case(scenario, "collocation", objective, model=model)
+        assert tr.ranked and tr.verification.ok, (objective, tr.issues)
+        assert tr.iterations < 100, (objective, tr.iterations)
+        assert tr.distance_m == pytest.approx(150 * 1852.0, rel=1e-9)
+        jumps = np.abs(np.diff(tr.controls.throttle))
+        assert np.sum(jumps > 0.2) <= 2, objective
+    monkeypatch.setattr(collocation, "THROTTLE_SMOOTHING", 0.0)
+    rough = solve_case(scenario, "collocation", "fuel", model=model)
+    assert np.sum(np.abs(np.diff(rough.controls.throttle)) > 0.2) > 20  # the chattering arc
+    assert tr.fuel_kg == pytest.approx(rough.fuel_kg, rel=1e-3)
