@@ -400,7 +400,8 @@ def map_command(scenario_file, out_dir, units, mass, load_factor, temperature_of
         doc["files"] += sorted(p.name for p in figures)
         report.write_summary_json(folder / "map.json", doc)
         bar.done()
-    click.echo(f"{scenario.name}: energy map {emap.shape[0]} altitudes x {emap.shape[1]} speeds; "
+    nh, nv = doc["shape"]  # the map's grid (its figures may be drawn from a coarser one)
+    click.echo(f"{scenario.name}: energy map {nh} altitudes x {nv} speeds; "
                f"{report.map_conditions_text(emap, units)}")
     if not quiet:
         click.echo(f"Wrote {out}/: map.json, energy_map.npz, energy_map.csv, plots "

@@ -717,33 +717,37 @@ def map_conditions_text(emap, units: str) -> str:
             f"{emap.rating}, throttle {emap.throttle:g}, ISA {emap.temperature_offset_k:+g} K")
 
 
-def _write_map_csv(path, emap, units, scenario_name):
+def _write_map_csv(path, emap, units, scenario_name, rows_per_block: int = 50):
     """One row per grid point: altitude, TAS, Mach, Ps, fuel flow, Ps / fuel flow, feasible;
-    each column rounded to the decimals of its unit (:data:`climbopt.units.UNIT_DIGITS`)."""
+    each column rounded to the decimals of its unit (:data:`climbopt.units.UNIT_DIGITS`).
+    Written straight to the file, ``rows_per_block`` altitudes at a time (an 800 x 800 map
+    would otherwise hold its whole text in memory twice)."""
     shape = emap.shape
-    cols, header, fmts = [], [], []
-    for kind, values, name in (
-            ("altitude", np.broadcast_to(emap.altitude_m[:, None], shape), "altitude"),
-            ("speed", np.asarray(emap.tas_m_s), "TAS"), ("none", np.asarray(emap.mach), "Mach"),
-            ("rate", np.asarray(emap.fields.ps_m_s), "Ps"),
-            ("mass_flow", np.asarray(emap.fields.fuel_flow_kg_s), "fuel flow"),
-            ("fuel_specific_energy", np.asarray(emap.fields.fuel_specific_energy_m_kg),
-             "Ps / fuel flow")):
-        disp, unit = to_display(kind, values, units)
+    fields = (("altitude", np.broadcast_to(emap.altitude_m[:, None], shape), "altitude"),
+              ("speed", np.asarray(emap.tas_m_s), "TAS"), ("none", np.asarray(emap.mach), "Mach"),
+              ("rate", np.asarray(emap.fields.ps_m_s), "Ps"),
+              ("mass_flow", np.asarray(emap.fields.fuel_flow_kg_s), "fuel flow"),
+              ("fuel_specific_energy", np.asarray(emap.fields.fuel_specific_energy_m_kg),
+               "Ps / fuel flow"))
+    header, fmts = [], []
+    for kind, _, name in fields:
+        unit = to_display(kind, 0.0, units)[1]
         unit = "" if unit == "-" else unit
-        cols.append(np.broadcast_to(disp, shape).ravel())
         header.append(f"{name} [{unit}]" if unit else name)
         fmts.append(f"%.{_units.UNIT_DIGITS.get(unit, 4)}f")
-    header.append("feasible")
     feas = np.broadcast_to(np.asarray(emap.feasible), shape)
-    table = np.column_stack(cols + [feas.ravel().astype(float)])
-    buf = io.StringIO()
     lines = header_lines(scenario_name, units, "energy map")
     lines.insert(1, f"# {map_conditions_text(emap, units)}")
-    buf.write("\n".join(lines) + f"\n{','.join(header)}\n")
-    np.savetxt(buf, table, fmt=fmts + ["%d"], delimiter=",")
-    Path(path).write_text(buf.getvalue().replace(",1\n", ",true\n").replace(",0\n", ",false\n"),
-                          encoding="utf-8")
+    with open(path, "w", encoding="utf-8", newline="\n") as fh:
+        fh.write("\n".join(lines) + f"\n{','.join(header + ['feasible'])}\n")
+        for i in range(0, shape[0], rows_per_block):
+            block = slice(i, min(i + rows_per_block, shape[0]))
+            cols = [np.broadcast_to(to_display(kind, np.broadcast_to(v, shape)[block], units)[0],
+                                    feas[block].shape).ravel() for kind, v, _ in fields]
+            buf = io.StringIO()
+            np.savetxt(buf, np.column_stack(cols + [feas[block].ravel().astype(float)]),
+                       fmt=fmts + ["%d"], delimiter=",")
+            fh.write(buf.getvalue().replace(",1\n", ",true\n").replace(",0\n", ",false\n"))
 
 
 #: Marker file of a climbopt output folder: only a folder holding it (or an empty or missing
