@@ -174,40 +174,111 @@ def reduce_summary(plan, points, surface, comparison, units):
 
 
 def write_reduce_folder(folder: Path, plan, points, surface, comparison, units):
-    """Write every output of ``reduce`` into ``folder``; return (summary lines, document)."""
+    """Write every output of ``reduce`` into ``folder``: points and surface files, the plots,
+    the climbs' tables and crew schedules (with a comparison), ``report.txt``, ``reduce.html``
+    (the flight-test page, self-contained) and ``reduce.json``; return (summary lines,
+    document)."""
     from climbopt import plots, report
 
     write_points_csv(folder / "points.csv", points, surface, units, plan.name)
     files = ["points.csv"] + write_surface(folder, surface, units, plan.name)
+    figures = []
     for stem, fn in (("measured_ps", plots.plot_measured_ps),
                      ("residuals", plots.plot_ps_residuals),
                      ("predicted_vs_measured", plots.plot_predicted_vs_measured)):
         if stem == "predicted_vs_measured" and not surface.difference:
             continue
-        ax = fn(surface, points, units=units)
-        files += [p.name for p in plots.save_figure(ax.figure, folder / stem)]
+        fig = fn(surface, points, units=units).figure
+        files += [p.name for p in plots.save_figure(fig, folder / stem)]
+        figures.append((stem, plots.figure_svg(fig)))
     lines, facts = reduce_summary(plan, points, surface, comparison, units)
+    schedules = []
     if comparison is not None:
-        files += _write_reduce_schedules(folder, plan, comparison, surface, units, lines)
+        more, schedules, svg = _write_reduce_schedules(folder, plan, comparison, surface, units,
+                                                       lines)
+        files += more
+        figures.append(("climb_comparison", svg))
     text = [f"climbopt {__version__}: flight-test reduction of {plan.path}", ""] + lines
     text += [""] + [f"note: {n}" for n in surface.reference.notes]
     text += [f"Caution: {CAUTION}"]
     report.write_text_atomic(folder / "report.txt", "\n".join(text) + "\n")
+    page = reduce_page(plan, points, surface, comparison, units, lines, schedules, figures)
+    report.write_text_atomic(folder / "reduce.html", page)
     doc = {"climbopt_version": __version__, "test_plan": {"name": plan.name, "path": plan.path},
            "units": units, "results": facts, "notes": surface.reference.notes,
-           "files": sorted(files + ["report.txt", "reduce.json"]), "caution": CAUTION}
+           "files": sorted(files + ["report.txt", "reduce.html", "reduce.json"]),
+           "caution": CAUTION}
     report.write_summary_json(folder / "reduce.json", doc)
     return lines, doc
 
 
+#: Captions of the flight-test figures (stem -> title, caption).
+_FIGURE_WORDS = {
+    "measured_ps": ("Measured Ps", "standardised points (standard weight, standard day, 1 g) "
+                    "over the fitted Ps contours; hatched where the data do not reach"),
+    "residuals": ("Residuals", "standardised Ps minus the fitted surface at each point"),
+    "predicted_vs_measured": ("Predicted against measured Ps", "the fitted surface against the "
+                              "predicted model's standard-day Ps"),
+    "climb_comparison": ("Minimum-time climbs", "the predicted and the measured aircraft's "
+                         "minimum-time climbs and best flyable schedules"),
+}
+
+
+def reduce_page(plan, points, surface, comparison, units, lines, schedules, figures) -> str:
+    """The flight-test page: summary, the test points, the predicted against measured climbs
+    and their crew schedules, the figures and the notes, with the caution (one self-contained
+    HTML file in the style of ``report.html``)."""
+    from climbopt import htmlreport as hr
+    from climbopt.schedule import schedule_records
+
+    summary = "<ul>" + "".join(f"<li>{hr.esc(line.strip())}</li>" for line in lines) + "</ul>"
+    kinds = {}
+    for src, kind in zip(points.source, points.kind, strict=True):
+        kinds.setdefault(str(src), str(kind).replace("_", " "))
+    counts = {src: int(np.sum(points.source == src)) for src in kinds}
+    alt_d, alt_u = _display("altitude", points.altitude_m, units)
+    rows = [[src, kinds[src], counts[src],
+             f"{np.mean(alt_d[points.source == src]):,.0f}",
+             f"{np.min(points.mach[points.source == src]):.2f} to "
+             f"{np.max(points.mach[points.source == src]):.2f}"] for src in kinds]
+    test_points = hr.table(["test point", "manoeuvre", "standardised points",
+                            f"mean altitude [{alt_u}]", "Mach"], rows)
+    sections = [("summary", "Summary", summary), ("points", "Test points", test_points)]
+    if comparison is not None:
+        header, crows = climb_comparison_rows(comparison, units)
+        body = hr.table(header, crows)
+        for name, sched in schedules:
+            h, r = schedule_records(sched, units)
+            body += f"<h3>{hr.esc(name)}</h3>" + hr.table(h, [[_cell(c) for c in row]
+                                                             for row in r])
+        sections.append(("climbs", "Predicted and measured climbs", body))
+    figs = "".join(
+        f"<figure>{hr.svg_inline(svg)}<figcaption><strong>Figure {k}.</strong> "
+        f"{hr.esc(_FIGURE_WORDS.get(stem, (stem, ''))[0])}: "
+        f"{hr.esc(_FIGURE_WORDS.get(stem, ('', ''))[1])}.</figcaption></figure>"
+        for k, (stem, svg) in enumerate(figures, 1))
+    sections.append(("figures", "Figures", figs))
+    notes = list(surface.reference.notes) + (list(comparison.notes) if comparison else [])
+    sections.append(("notes", "Notes", "<ul>" + "".join(f"<li>{hr.esc(n)}</li>" for n in notes)
+                     + "</ul>"))
+    meta = (f"climbopt {hr.esc(__version__)} &middot; test plan {hr.esc(plan.path)} &middot; "
+            f"units {hr.esc(units)}")
+    return hr.page(plan.name, "Flight-test Ps reduction", meta, sections)
+
+
+def _cell(value) -> str:
+    return "" if value is None else str(value)
+
+
 def _write_reduce_schedules(folder, plan, comparison, surface, units, lines):
-    """Per-point tables, crew schedules, the comparison table and plot of the two climbs."""
+    """Per-point tables, crew schedules, the comparison table and plot of the two climbs and
+    the two best flyable schedules; returns (files, [(label, crew schedule)], figure SVG)."""
     from climbopt import plots, report
     from climbopt.schedule import (climb_schedule, default_step_m, schedule_summary,
                                    write_schedule_csv)
 
     scenario = plan.predicted
-    files = ["climb_comparison.csv"]
+    files, schedules = ["climb_comparison.csv"], []
     write_climb_comparison_csv(folder / "climb_comparison.csv", comparison, units, plan.name)
     climbs = [("predicted", comparison.predicted), ("measured", comparison.measured),
               ("predicted_best_schedule", comparison.predicted_schedule),
@@ -218,7 +289,9 @@ def _write_reduce_schedules(folder, plan, comparison, surface, units, lines):
         sched = climb_schedule(traj, default_step_m(units), scenario=scenario)
         write_schedule_csv(folder / f"{stem}_time_schedule.csv", sched, units, who)
         files += [f"{stem}_time.csv", f"{stem}_time_schedule.csv"]
-        lines.append(f"  {stem}: {schedule_summary(sched, units)}")
-    axes = plots.plot_climb_comparison(comparison, surface, units=units)
-    files += [p.name for p in plots.save_figure(axes[0].figure, folder / "climb_comparison")]
-    return files
+        lines.append(f"  {stem.replace('_', ' ')}: {schedule_summary(sched, units)}")
+        schedules.append((f"{stem.replace('_', ' ')} aircraft"
+                          if "schedule" not in stem else stem.replace("_", " "), sched))
+    fig = plots.plot_climb_comparison(comparison, surface, units=units)[0].figure
+    files += [p.name for p in plots.save_figure(fig, folder / "climb_comparison")]
+    return files, schedules, plots.figure_svg(fig)

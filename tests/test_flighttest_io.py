@@ -5,6 +5,7 @@ synthetic demo reduced end to end."""
 from __future__ import annotations
 
 import json
+import re
 import shutil
 from pathlib import Path
 
@@ -202,6 +203,15 @@ def test_cli_reduce_demo_with_schedule(tmp_path):
     assert abs(res["measured_time_s"] - truth.table["time_s"][-1]) < 3.0 * res["time_sigma_s"]
     assert res["measured_time_s"] > res["predicted_time_s"]
     assert CAUTION in (out / "points.csv").read_text()
+    # the best flyable schedule of each aircraft, and the self-contained flight-test page
+    assert res["measured_schedule_time_s"] > res["predicted_schedule_time_s"]
+    page = (out / "reduce.html").read_text()
+    assert "reduce.html" in doc["files"] and "<script" not in page
+    assert not re.search(r"""(src|href)\s*=\s*["']https?:|url\(\s*["']?https?:|@import""", page)
+    assert page.count("<svg") == 4 and page.count(CAUTION) == 2
+    for text in ("Summary", "Test points", "la_35kft", "Predicted and measured climbs",
+                 "measured best schedule", res["measured_schedule"]):
+        assert text in page, text
 
 
 def test_fuel_used_column_needs_initial_weight(tmp_path):
