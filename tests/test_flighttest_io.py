@@ -208,7 +208,7 @@ def test_cli_reduce_demo_with_schedule(tmp_path):
     page = (out / "reduce.html").read_text()
     assert "reduce.html" in doc["files"] and "<script" not in page
     assert not re.search(r"""(src|href)\s*=\s*["']https?:|url\(\s*["']?https?:|@import""", page)
-    assert page.count("<svg") == 4 and page.count(CAUTION) == 2
+    assert page.count("<svg") == 4 and page.count(CAUTION) >= 2  # top and foot of the page
     for text in ("Summary", "Test points", "la_35kft", "Predicted and measured climbs",
                  "measured best schedule", res["measured_schedule"]):
         assert text in page, text
