@@ -258,7 +258,9 @@ class SolverOptions:
     Collocation: ``intervals`` (initial mesh), ``transcription`` ("hermite-simpson"),
     ``mesh_tolerance`` (relative objective change to stop refining), ``max_mesh_refinements``,
     ``cost_weight_kg_per_s`` (weighted objective fuel + w * time), ``ipopt`` options passed
-    straight to IPOPT, ``time_limit_s`` the overall wall-clock limit of a run [s].
+    straight to IPOPT, ``time_limit_s`` the overall wall-clock limit of a run [s], ``compile``
+    whether the collocation solver may compile its point function to C (None: use a compiled
+    one already cached, and compile for sweeps of many cases; True: compile now; False: never).
     """
 
     grid_altitude_points: int = 300
@@ -270,6 +272,7 @@ class SolverOptions:
     cost_weight_kg_per_s: float = 0.0
     ipopt: dict = field(default_factory=dict)
     time_limit_s: float = 300.0
+    compile: bool | None = None
 
 
 @dataclass(frozen=True)
@@ -360,7 +363,8 @@ _LIMITS_KEYS = ("max_dynamic_pressure", "max_mach", "max_cas", "min_altitude", "
                 "max_load_factor", "cas_restriction")
 _CAS_RESTRICTION_KEYS = ("cas", "below")
 _SOLVER_KEYS = ("grid_altitude_points", "grid_speed_points", "intervals", "transcription",
-                "mesh_tolerance", "max_mesh_refinements", "cost_weight", "time_limit", "ipopt")
+                "mesh_tolerance", "max_mesh_refinements", "cost_weight", "time_limit", "compile",
+                "ipopt")
 _SCHEDULE_KEYS = ("name", "cas_below_restriction", "cas", "mach", "acceleration_share")
 
 #: Altitudes accepted anywhere in a scenario [m]: from -500 m (below sea level airfields) to 70 km,
@@ -1312,11 +1316,16 @@ def _read_solver(r: _Reader, doc: dict) -> SolverOptions | None:
                             default=defaults.time_limit_s, minimum=0.0, strict_min=True,
                             expect="a positive wall-clock time, e.g. \"300 s\" or \"10 min\"")
     ipopt = _read_ipopt(r, node)
+    compile_ = node.get("compile")
+    if compile_ is not None and not isinstance(compile_, bool):
+        r.problem("solver.compile", f"got {_type_name(compile_)} {_show(compile_)}; expected "
+                                    "true or false")
     if r.count != n_before:
         return None
     return SolverOptions(grid_altitude_points=gh, grid_speed_points=gv, intervals=intervals,
                          transcription=transcription, mesh_tolerance=tol, max_mesh_refinements=refinements,
-                         cost_weight_kg_per_s=weight, ipopt=ipopt, time_limit_s=time_limit)
+                         cost_weight_kg_per_s=weight, ipopt=ipopt, time_limit_s=time_limit,
+                         compile=compile_)
 
 
 def _read_ipopt(r: _Reader, node: dict) -> dict:
@@ -2047,6 +2056,8 @@ def _document_of(s: Scenario) -> dict:
               "mesh_tolerance": sol.mesh_tolerance, "max_mesh_refinements": sol.max_mesh_refinements,
               "cost_weight": si(sol.cost_weight_kg_per_s, "kg/s"), "time_limit": si(sol.time_limit_s, "s"),
               "ipopt": dict(sol.ipopt)}
+    if sol.compile is not None:
+        solver["compile"] = sol.compile
     doc = {"scenario": {"name": s.name, "description": s.description}, "aircraft": aircraft,
            "propulsion": propulsion, "atmosphere": _atmosphere_doc(s.atmosphere),
            "mission": mission, "limits": limits, "solver": solver}

@@ -250,3 +250,18 @@ def test_downrange_business_jet_collocation_verifies(monkeypatch):
     rough = solve_case(scenario, "collocation", "fuel", model=model)
     assert np.sum(np.abs(np.diff(rough.controls.throttle)) > 0.2) > 20  # the chattering arc
     assert tr.fuel_kg == pytest.approx(rough.fuel_kg, rel=1e-3)
+
+
+def test_solver_compile_option_is_read(tmp_path):
+    """[solver] compile = false is read as False (the collocation solver then never compiles);
+    a number is bad input naming the field."""
+    from click.testing import CliRunner
+
+    from climbopt.cli import cli
+
+    path = _scenario_text(tmp_path, "intervals = 100", "intervals = 100\ncompile = false")
+    assert load_scenario(path).solver.compile is False
+    assert load_scenario(ROOT / "scenarios" / "transport_twinjet.toml").solver.compile is None
+    bad = _scenario_text(tmp_path, "intervals = 100", "intervals = 100\ncompile = 1")
+    result = CliRunner().invoke(cli, ["check", str(bad)])
+    assert result.exit_code == 2 and "solver.compile" in result.output
