@@ -87,19 +87,25 @@ def test_buffet_margin_moves_the_stall_boundary(transport):
 
 def test_buffet_margin_holds_on_every_result(transport):
     """With a 1.3 g buffet margin and a heavier aircraft climbing to FL410 (so that the margin
-    comes within 5 % near the top), no point of the energy-state path or of the best flown
-    schedule has CL above CLmax(M) / 1.3."""
+    comes within 6 % near the top), no point of the energy-state path, of the best flown
+    schedule or of the collocation optimum has CL above CLmax(M) / 1.3, and the collocation
+    optimum's re-simulated path keeps it too."""
     heavy = transport.replace(mass="75 t", target_altitude="FL410",
                               **{"limits.max_altitude": "43000 ft",
                                  "limits.buffet_load_factor": 1.3})
     assert heavy.limits.buffet_load_factor == 1.3
     model = build_model(heavy)
+    from climbopt.pipeline import solve_case
+
+    colloc = solve_case(heavy, "collocation", "time", model=model)
+    assert colloc.verification.ok, colloc.verification.message  # re-simulated, margin kept
+    assert colloc.verification.limit_excess["stall"] <= 1e-2
     for tr in (solve_energy_state(heavy, "time", model=model),
-               best_schedule(heavy, model, "time")):
+               best_schedule(heavy, model, "time"), colloc):
         t = tr.table
         ratio = t.lift_coefficient * 1.3 / model.cl_max(t.mach, check=False)
         assert ratio.max() <= 1 + 1e-6, tr.label
-        assert ratio.max() > 0.95, tr.label  # the margin matters on this climb
+        assert ratio.max() > 0.94, tr.label  # the margin matters on this climb
 
 
 def test_common_point_adds_the_cruise(transport):
