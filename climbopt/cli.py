@@ -311,22 +311,39 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json, format
         except report.OutputFolderError as exc:
             _fail(str(exc), EXIT_BAD_INPUT)
         bar.done()
-        records = doc["results"]
     if as_json:
         click.echo(report.dumps_summary(doc))
     else:
-        click.echo(f"{scenario.name}")
-        click.echo(_wrapped(f"units {report.units_words(units)}; {doc['conditions']['text']}"))
-        click.echo("")
-        click.echo(report.format_table(records, units))
-        for block in doc["text"].values():
-            if block:
-                click.echo("")
-                click.echo(_wrapped(block))
-        if not quiet:
-            click.echo(f"\nWrote {out}/: report.html, report.txt, summary.json, comparison.csv, "
-                       f"schedules (*_schedule.csv), per-point tables, plots "
-                       f"({len(doc['figures'])} files)")
+        _echo_run_text(scenario.name, doc, units, out, quiet)
+    _echo_run_problems(result, code)
+    if not as_json:
+        click.echo(f"Caution: {CAUTION}")
+    if code:
+        raise SystemExit(code)
+
+
+def _echo_run_text(name: str, doc: dict, units: str, out: Path, quiet: bool) -> None:
+    """``run``'s text on stdout: the scenario, units and conditions, the comparison table, the
+    text blocks of the summary document and (unless ``quiet``) what was written."""
+    from climbopt import report
+
+    click.echo(f"{name}")
+    click.echo(_wrapped(f"units {report.units_words(units)}; {doc['conditions']['text']}"))
+    click.echo("")
+    click.echo(report.format_table(doc["results"], units))
+    for block in doc["text"].values():
+        if block:
+            click.echo("")
+            click.echo(_wrapped(block))
+    if not quiet:
+        click.echo(f"\nWrote {out}/: report.html, report.txt, summary.json, comparison.csv, "
+                   f"schedules (*_schedule.csv), per-point tables, plots "
+                   f"({len(doc['figures'])} files)")
+
+
+def _echo_run_problems(result, code: int) -> None:
+    """``run``'s warnings and errors on stderr, and with a solver failure the results not
+    ranked."""
     for w in result.warnings:
         click.echo(f"warning: {w}", err=True)
     for e in result.errors:
@@ -335,10 +352,6 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json, format
         bad = [r.label for r in result.results if not r.ranked and r.method != "schedule"]
         click.echo(f"error: not ranked (see the notes in summary.json): {', '.join(bad)}; the "
                    "other results were still written and are labelled as such.", err=True)
-    if not as_json:
-        click.echo(f"Caution: {CAUTION}")
-    if code:
-        raise SystemExit(code)
 
 
 #: Largest grid (each axis) the map figures are drawn from: a figure 110 dpi wide shows no more,

@@ -272,6 +272,10 @@ def _sample_speed_of_sound(model, lo_m: float, hi_m: float) -> tuple[float, floa
 
 
 def _setup(scenario, model, objective: str) -> _Setup:
+    """The :class:`_Setup` of ``scenario`` for ``objective``: state bounds and scales (SI), CL
+    bound, start and end states, dash distance, the envelope's path rows, and the notes that
+    go with them. One piece over 60 lines: a straight sequence that computes each field once,
+    in the order its notes are written; split, it would only pass those values around."""
     lim = scenario.limits
     mis = scenario.mission
     dom = model.domain
@@ -353,9 +357,42 @@ def _point_function(st: _Setup):
 
     model = st.model
     xs = st.x_scale
-    S = float(model.reference_area_m2)
+    algebra = _point_algebra(st)
 
-    # SX part: the algebra, with the table values and the parameters as inputs.
+    # MX part: the tables, with the day's temperature offset and the thrust scale as symbols.
+    Xm = ca.MX.sym("x", 5)
+    Um = ca.MX.sym("u", st.n_u)
+    Pm = ca.MX.sym("p", len(POINT_PARAMETERS))
+    hm = Xm[0] * xs[0]
+    vm = Xm[1] * xs[1]
+    t_std, ln_p = model.atmosphere.standard_temperature_log_pressure(hm)
+    temperature = t_std + Pm[1]
+    pressure = ca.exp(ln_p)
+    density = pressure / (R_AIR * temperature)
+    sound = ca.sqrt(GAMMA_AIR * R_AIR * temperature)
+    machm = vm / sound
+    clm = Um[0]
+    thr = Um[1] if st.throttle_free else st.fixed_throttle
+    cd = model.drag_coefficient(clm, machm)
+    clmax = model.cl_max(machm)
+    cla = model.lift_slope_per_rad(machm) if st.body_thrust else ca.MX(1.0)
+    thrust, ff = model.engine(hm, machm, thr, st.rating, thrust_scale=Pm[2],
+                              temperature_offset_k=Pm[1], standard_temperature_k=t_std,
+                              speed_of_sound_m_s=sound)
+    wind = model.wind_m_s(hm) if model.has_wind else ca.MX(0.0)
+    fo, po = algebra(Xm, Um, Pm[0], pressure, density, sound, cd, clmax, cla, thrust, ff, wind)
+    return ca.Function("point", [Xm, Um, Pm], [fo, po])
+
+
+def _point_algebra(st: _Setup):
+    """The SX part of :func:`_point_function`: CasADi Function (x_scaled[5], u[n_u], m0 [kg],
+    pressure [Pa], density [kg/m^3], speed of sound [m/s], CD, CLmax, CL_alpha [1/rad],
+    thrust [N], fuel flow [kg/s], along-track wind [m/s]) -> (dx_scaled/dt [5], path [n_path]):
+    the equations of motion of the module docstring and the envelope's path constraints."""
+    import casadi as ca
+
+    xs = st.x_scale
+    S = float(st.model.reference_area_m2)
     X = ca.SX.sym("x", 5)
     U = ca.SX.sym("u", st.n_u)
     m0 = ca.SX.sym("m0")
@@ -386,32 +423,8 @@ def _point_function(st: _Setup):
     fq = FlightQuantities(h, mach, p_s, q, cl, clmax_s, lift / (m * G0))
     values = st.envelope.values(fq, smooth=True)
     path = [values[name] for name in st.path_names]
-    algebra = ca.Function("algebra", [X, U, m0, p_s, rho_s, a_s, cd_s, clmax_s, cla_s, thr_s,
-                                      ff_s, w_s], [f, ca.vertcat(*path)])
-
-    # MX part: the tables, with the day's temperature offset and the thrust scale as symbols.
-    Xm = ca.MX.sym("x", 5)
-    Um = ca.MX.sym("u", st.n_u)
-    Pm = ca.MX.sym("p", len(POINT_PARAMETERS))
-    hm = Xm[0] * xs[0]
-    vm = Xm[1] * xs[1]
-    t_std, ln_p = model.atmosphere.standard_temperature_log_pressure(hm)
-    temperature = t_std + Pm[1]
-    pressure = ca.exp(ln_p)
-    density = pressure / (R_AIR * temperature)
-    sound = ca.sqrt(GAMMA_AIR * R_AIR * temperature)
-    machm = vm / sound
-    clm = Um[0]
-    thr = Um[1] if st.throttle_free else st.fixed_throttle
-    cd = model.drag_coefficient(clm, machm)
-    clmax = model.cl_max(machm)
-    cla = model.lift_slope_per_rad(machm) if st.body_thrust else ca.MX(1.0)
-    thrust, ff = model.engine(hm, machm, thr, st.rating, thrust_scale=Pm[2],
-                              temperature_offset_k=Pm[1], standard_temperature_k=t_std,
-                              speed_of_sound_m_s=sound)
-    wind = model.wind_m_s(hm) if model.has_wind else ca.MX(0.0)
-    fo, po = algebra(Xm, Um, Pm[0], pressure, density, sound, cd, clmax, cla, thrust, ff, wind)
-    return ca.Function("point", [Xm, Um, Pm], [fo, po])
+    return ca.Function("algebra", [X, U, m0, p_s, rho_s, a_s, cd_s, clmax_s, cla_s, thr_s,
+                                   ff_s, w_s], [f, ca.vertcat(*path)])
 
 
 # --------------------------------------------------------------------------------------------
