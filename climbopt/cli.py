@@ -410,11 +410,8 @@ def map_command(scenario_file, out_dir, units, mass, load_factor, temperature_of
             emap = build_energy_map(scenario, model=model,
                                     shape=tuple(min(n, _PLOT_GRID) for n in emap.shape))
         figures = []
-        for name, fn, x in (("ps_mach", plots.plot_ps_map, "mach"),
-                            ("ps_tas", plots.plot_ps_map, "tas"),
-                            ("fs_mach", plots.plot_fs_map, "mach")):
-            ax = fn(emap, [], x=x, units=units)
-            figures += plots.save_figure(ax.figure, folder / name, formats)
+        for name, fig in plots.energy_map_figures(emap, [], units=units):
+            figures += plots.save_figure(fig, folder / name, formats)
         doc["files"] += sorted(p.name for p in figures)
         report.write_summary_json(folder / "map.json", doc)
         bar.done()

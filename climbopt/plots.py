@@ -30,6 +30,7 @@ __all__ = [
     "plot_energy_map",
     "plot_ps_map",
     "plot_fs_map",
+    "energy_map_figures",
     "plot_time_histories",
     "add_caution",
     "save_figure",
@@ -341,6 +342,15 @@ def plot_fs_map(energy_map, trajectories=(), *, x: str = "mach", units: str = "s
     objectives are left out)."""
     fuel = [t for t in trajectories if t.objective == "fuel"]
     return plot_energy_map(energy_map, fuel, quantity="fs", x=x, units=units, ax=ax, **kw)
+
+
+def energy_map_figures(energy_map, trajectories=(), *, units: str = "si"):
+    """The energy-map figures that ``climbopt run`` and ``climbopt map`` write, one at a time:
+    (file stem, Figure) of Ps over Mach ("ps_mach") and over true airspeed ("ps_tas") with
+    every path, and of fuel-specific energy over Mach ("fs_mach") with the minimum-fuel ones."""
+    for stem, fn, x in (("ps_mach", plot_ps_map, "mach"), ("ps_tas", plot_ps_map, "tas"),
+                        ("fs_mach", plot_fs_map, "mach")):
+        yield stem, fn(energy_map, trajectories, x=x, units=units).figure
 
 
 # ------------------------------------------------------------------------------------------
