@@ -107,21 +107,12 @@ class _Progress:
             return None
 
         def progress(message: str, fraction: float | None = None):
-            from tqdm import tqdm
-
             if self._bar is not None and self._label != label:
                 self.done()
             if self._bar is None:
                 self._label = label
-                import shutil
-
-                # a terminal reporting 0 rows/columns would hide the bar: fall back to 100 x 40
-                size = shutil.get_terminal_size((100, 40))
-                encoding = (getattr(sys.stderr, "encoding", "") or "").lower()
-                self._bar = tqdm(total=100, desc=label, leave=False, file=sys.stderr,
-                                 ncols=min(size.columns, 120), nrows=max(size.lines, 2),
-                                 ascii="utf" not in encoding,
-                                 bar_format="{desc}: {percentage:3.0f}%|{bar}|{postfix}")
+                self._bar = _tqdm_bar(total=100, desc=label, leave=False,
+                                      bar_format="{desc}: {percentage:3.0f}%|{bar}|{postfix}")
             self._bar.set_postfix_str(str(message)[:60], refresh=False)
             if fraction is not None:
                 self._bar.n = int(round(100 * min(max(float(fraction), 0.0), 1.0)))
@@ -140,6 +131,20 @@ class _Progress:
         if cb:
             cb(label, None)
         return cb
+
+
+def _tqdm_bar(**options):
+    """A tqdm progress bar on stderr as wide as the terminal (at most 120 columns), in ASCII
+    unless stderr takes UTF-8; ``options`` go to tqdm."""
+    import shutil
+
+    from tqdm import tqdm
+
+    # a terminal reporting 0 rows/columns would hide the bar: fall back to 100 x 40
+    size = shutil.get_terminal_size((100, 40))
+    encoding = (getattr(sys.stderr, "encoding", "") or "").lower()
+    return tqdm(file=sys.stderr, ncols=min(size.columns, 120), nrows=max(size.lines, 2),
+                ascii="utf" not in encoding, **options)
 
 
 def _progress_enabled(quiet: bool) -> bool:
@@ -306,22 +311,39 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json, format
         except report.OutputFolderError as exc:
             _fail(str(exc), EXIT_BAD_INPUT)
         bar.done()
-        records = doc["results"]
     if as_json:
         click.echo(report.dumps_summary(doc))
     else:
-        click.echo(f"{scenario.name}")
-        click.echo(_wrapped(f"units {report.units_words(units)}; {doc['conditions']['text']}"))
-        click.echo("")
-        click.echo(report.format_table(records, units))
-        for block in doc["text"].values():
-            if block:
-                click.echo("")
-                click.echo(_wrapped(block))
-        if not quiet:
-            click.echo(f"\nWrote {out}/: report.html, report.txt, summary.json, comparison.csv, "
-                       f"schedules (*_schedule.csv), per-point tables, plots "
-                       f"({len(doc['figures'])} files)")
+        _echo_run_text(scenario.name, doc, units, out, quiet)
+    _echo_run_problems(result, code)
+    if not as_json:
+        click.echo(f"Caution: {CAUTION}")
+    if code:
+        raise SystemExit(code)
+
+
+def _echo_run_text(name: str, doc: dict, units: str, out: Path, quiet: bool) -> None:
+    """``run``'s text on stdout: the scenario, units and conditions, the comparison table, the
+    text blocks of the summary document and (unless ``quiet``) what was written."""
+    from climbopt import report
+
+    click.echo(f"{name}")
+    click.echo(_wrapped(f"units {report.units_words(units)}; {doc['conditions']['text']}"))
+    click.echo("")
+    click.echo(report.format_table(doc["results"], units))
+    for block in doc["text"].values():
+        if block:
+            click.echo("")
+            click.echo(_wrapped(block))
+    if not quiet:
+        click.echo(f"\nWrote {out}/: report.html, report.txt, summary.json, comparison.csv, "
+                   f"schedules (*_schedule.csv), per-point tables, plots "
+                   f"({len(doc['figures'])} files)")
+
+
+def _echo_run_problems(result, code: int) -> None:
+    """``run``'s warnings and errors on stderr, and with a solver failure the results not
+    ranked."""
     for w in result.warnings:
         click.echo(f"warning: {w}", err=True)
     for e in result.errors:
@@ -330,10 +352,6 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json, format
         bad = [r.label for r in result.results if not r.ranked and r.method != "schedule"]
         click.echo(f"error: not ranked (see the notes in summary.json): {', '.join(bad)}; the "
                    "other results were still written and are labelled as such.", err=True)
-    if not as_json:
-        click.echo(f"Caution: {CAUTION}")
-    if code:
-        raise SystemExit(code)
 
 
 #: Largest grid (each axis) the map figures are drawn from: a figure 110 dpi wide shows no more,
@@ -392,11 +410,8 @@ def map_command(scenario_file, out_dir, units, mass, load_factor, temperature_of
             emap = build_energy_map(scenario, model=model,
                                     shape=tuple(min(n, _PLOT_GRID) for n in emap.shape))
         figures = []
-        for name, fn, x in (("ps_mach", plots.plot_ps_map, "mach"),
-                            ("ps_tas", plots.plot_ps_map, "tas"),
-                            ("fs_mach", plots.plot_fs_map, "mach")):
-            ax = fn(emap, [], x=x, units=units)
-            figures += plots.save_figure(ax.figure, folder / name, formats)
+        for name, fig in plots.energy_map_figures(emap, [], units=units):
+            figures += plots.save_figure(fig, folder / name, formats)
         doc["files"] += sorted(p.name for p in figures)
         report.write_summary_json(folder / "map.json", doc)
         bar.done()
@@ -483,6 +498,7 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
     when interrupted (the finished cases stay in the table). sweep.csv keeps every number in SI
     at full precision (for resuming and scripts); --table writes the rounded tables to hand over.
     """
+    from climbopt import report
     from climbopt import sweep as sw
 
     if serial and (cluster or workers):
@@ -496,135 +512,94 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
         variations = [sw.parse_variation(text, scenario) for text in vary]
         plan = sw.plan_sweep(scenario, variations, zip_values=zip_values, method=method,
                              objective=objective)
-        if parquet:
-            import importlib.util
-
-            if importlib.util.find_spec("pyarrow") is None:
-                raise sw.SweepError("--parquet needs the pyarrow package, which is not installed "
-                                    "(pip install pyarrow), or leave out --parquet")
-        if cluster:
-            try:
-                import distributed  # noqa: F401
-            except ImportError:
-                raise sw.SweepError("--cluster needs Dask distributed, which is not installed; "
-                                    "install the optional extra: pip install 'climbopt[dask]'") from None
+        sw.check_optional_packages(parquet=parquet, cluster=bool(cluster))
     except sw.SweepError as exc:
         _fail(str(exc), EXIT_BAD_INPUT)
 
     folder = Path(out_dir) if out_dir else _default_out(scenario_file, "-sweep")
     table = folder / "sweep.csv"
     executor = "serial" if serial else ("dask" if cluster else "pool")
-    shape = " x ".join(f"{v.name} ({len(v.values)})" for v in plan.variations)
-    n_anchor = sum(c.objective != plan.objective for c in plan.cases)
-    n_cases = len(plan.cases)
-    click.echo(f"sweep: {n_cases} case{'s' if n_cases != 1 else ''} "
-               f"({'given combinations of' if zip_values else 'grid'} "
-               f"{shape}" + (f", plus {n_anchor} minimum-time/minimum-fuel end cases" if n_anchor else "")
-               + f"); {sw.METHODS[method]}, objective {plan.objective}; table {table}")
-
-    show = _progress_enabled(quiet)
-    state = {"bar": None, "failed": 0}
-
-    def on_start(to_run, skipped):
-        if skipped:
-            click.echo(f"  {skipped} case{'s' if skipped != 1 else ''} already in the table: skipped")
-        if show and to_run:
-            import shutil
-
-            from tqdm import tqdm
-
-            # as in _Progress: a terminal reporting no size would hide the bar
-            size = shutil.get_terminal_size((100, 40))
-            encoding = (getattr(sys.stderr, "encoding", "") or "").lower()
-            state["bar"] = tqdm(total=to_run, unit="case", desc="sweep", file=sys.stderr,
-                                ncols=min(size.columns, 120), nrows=max(size.lines, 2),
-                                ascii="utf" not in encoding)
-
-    def on_case(row):
-        if row["status"] != "ok":
-            state["failed"] += 1
-        if state["bar"] is not None:
-            state["bar"].set_postfix_str(f"failed {state['failed']}", refresh=False)
-            state["bar"].update(1)
-
-    def close_bar():
-        if state["bar"] is not None:
-            state["bar"].close()
-            state["bar"] = None
-
+    click.echo(report.sweep_plan_text(plan, table))
+    bar = _SweepProgress(_progress_enabled(quiet))
     try:
         result = sw.run_sweep(plan, table, executor=executor, workers=workers, cluster=cluster,
-                              max_cases=max_cases, retry_failed=retry_failed, on_start=on_start,
-                              on_case=on_case, compile=compile_)
+                              max_cases=max_cases, retry_failed=retry_failed,
+                              on_start=bar.on_start, on_case=bar.on_case, compile=compile_)
     except KeyboardInterrupt:
-        close_bar()
+        bar.close()
         click.echo(f"interrupted: the finished cases are in {table}; run the same command again "
                    f"to continue", err=True)
         raise SystemExit(130) from None
     except sw.SweepError as exc:
-        close_bar()
+        bar.close()
         _fail(str(exc), EXIT_BAD_INPUT)
     except sw.SweepAborted as exc:
-        close_bar()
+        bar.close()
         _fail(str(exc), 1)
-    close_bar()
+    bar.close()
+    written = _sweep_outputs(folder, table, plan, result.rows, parquet=parquet,
+                             plots=not no_plots, office=office, units=units)
+    for line in report.sweep_summary_lines(plan, result, executor, units):
+        click.echo(line)
+    click.echo(f"table: {table}")
+    if written and not quiet:
+        click.echo("files: " + ", ".join(str(p) for p in written))
+    click.echo(f"Caution: {CAUTION}")
+
+
+class _SweepProgress:
+    """The sweep's progress on the terminal: the count of cases skipped (already in the table)
+    and, when ``show``, a bar on stderr of the cases solved and failed. ``on_start`` and
+    ``on_case`` are :func:`climbopt.sweep.run_sweep`'s callbacks."""
+
+    def __init__(self, show: bool):
+        self.show = show
+        self.bar = None
+        self.failed = 0
+
+    def on_start(self, to_run: int, skipped: int) -> None:
+        if skipped:
+            click.echo(f"  {skipped} case{'s' if skipped != 1 else ''} already in the table: skipped")
+        if self.show and to_run:
+            self.bar = _tqdm_bar(total=to_run, unit="case", desc="sweep")
+
+    def on_case(self, row: dict) -> None:
+        if row["status"] != "ok":
+            self.failed += 1
+        if self.bar is not None:
+            self.bar.set_postfix_str(f"failed {self.failed}", refresh=False)
+            self.bar.update(1)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
+            self.bar = None
+
+
+def _sweep_outputs(folder: Path, table: Path, plan, rows: list, *, parquet: bool, plots: bool,
+                   office: bool, units: str) -> list:
+    """Write the outputs after the table (Parquet, figures, office tables) and return their
+    paths; a SweepError exits with 2, any other failure is a warning (the table stays)."""
+    from climbopt import sweep as sw
 
     written = []
     try:
         if parquet:
             written.append(sw.write_parquet(table, folder / "sweep.parquet"))
-        if not no_plots:
-            from climbopt import plots
+        if plots:
+            from climbopt import plots as figures
 
-            for stem, fig in plots.sweep_figures(plan, result.rows).items():
-                written += plots.save_figure(fig, folder / stem)
+            for stem, fig in figures.sweep_figures(plan, rows).items():
+                written += figures.save_figure(fig, folder / stem)
         if office:
             from climbopt.office import write_office_tables
 
-            written += write_office_tables(folder, plan, result.rows, units)
+            written += write_office_tables(folder, plan, rows, units)
     except sw.SweepError as exc:
         _fail(str(exc), EXIT_BAD_INPUT)
     except Exception as exc:  # outputs after the table: report, keep the table
         click.echo(f"warning: could not write the plots: {type(exc).__name__}: {exc}", err=True)
-
-    where = {"serial": "in this process", "pool": f"on a pool of {result.workers} processes",
-             "dask": f"on the Dask cluster ({result.workers} worker threads)"}[executor]
-    rate = (f"{result.cases_per_s:.2f} cases/s {where}" if result.computed
-            else "no cases solved")
-    click.echo(f"done {result.computed - result.failed}, failed {result.failed}, skipped "
-               f"{result.skipped}" + (f", left for a re-run {result.remaining}" if result.remaining
-                                     else "")
-               + f"; wall time {result.wall_s:.1f} s, {rate}")
-    ours = {c.key for c in plan.cases}
-    bad = [r for r in result.rows if r["key"] in ours and r["status"] != "ok"]
-    if bad:
-        counts = {}
-        for r in bad:
-            counts[r["status"]] = counts.get(r["status"], 0) + 1
-        click.echo("failed cases in the table: "
-                   + ", ".join(f"{n} {s}" for s, n in sorted(counts.items())))
-        for r in bad[:5]:
-            click.echo(f"  case {r['case']} ({r['status']}): {r['error'][:160]}")
-        if len(bad) > 5:
-            click.echo(f"  ... {len(bad) - 5} more (see the table)")
-    if result.foreign_rows:
-        click.echo(f"note: {result.foreign_rows} rows of the table belong to other cases (kept at "
-                   f"the end)")
-    if "cost_weight" in [v.name for v in plan.variations]:
-        rows = [r for r in result.rows if r["key"] in ours]
-        curve = sw.tradeoff_curve([r for r in rows if r["objective"] == "weighted"]
-                                  if len(plan.variations) == 1 else [])
-        if len(plan.variations) == 1 and len(curve["time_s"]) > 1:
-            from climbopt.report import to_display
-
-            fuel, m_u = to_display("mass", [min(curve["fuel_kg"]), max(curve["fuel_kg"])], units)
-            click.echo(f"trade-off: {len(curve['time_s'])} weights, time {min(curve['time_s']):.1f} "
-                       f"to {max(curve['time_s']):.1f} s, fuel {fuel[0]:,.1f} to {fuel[1]:,.1f} "
-                       f"{m_u}" + ("" if curve["monotone"] else " (not monotone: check the grid)"))
-    click.echo(f"table: {table}")
-    if written and not quiet:
-        click.echo("files: " + ", ".join(str(p) for p in written))
-    click.echo(f"Caution: {CAUTION}")
+    return written
 
 
 # ---- climbopt reduce (flight-test reduction; the logic lives in climbopt/flighttest*.py) -----

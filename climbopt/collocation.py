@@ -72,7 +72,7 @@ from __future__ import annotations
 import contextlib
 import math
 import time as _time
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -272,6 +272,10 @@ def _sample_speed_of_sound(model, lo_m: float, hi_m: float) -> tuple[float, floa
 
 
 def _setup(scenario, model, objective: str) -> _Setup:
+    """The :class:`_Setup` of ``scenario`` for ``objective``: state bounds and scales (SI), CL
+    bound, start and end states, dash distance, the envelope's path rows, and the notes that
+    go with them. One piece over 60 lines: a straight sequence that computes each field once,
+    in the order its notes are written; split, it would only pass those values around."""
     lim = scenario.limits
     mis = scenario.mission
     dom = model.domain
@@ -353,9 +357,42 @@ def _point_function(st: _Setup):
 
     model = st.model
     xs = st.x_scale
-    S = float(model.reference_area_m2)
+    algebra = _point_algebra(st)
 
-    # SX part: the algebra, with the table values and the parameters as inputs.
+    # MX part: the tables, with the day's temperature offset and the thrust scale as symbols.
+    Xm = ca.MX.sym("x", 5)
+    Um = ca.MX.sym("u", st.n_u)
+    Pm = ca.MX.sym("p", len(POINT_PARAMETERS))
+    hm = Xm[0] * xs[0]
+    vm = Xm[1] * xs[1]
+    t_std, ln_p = model.atmosphere.standard_temperature_log_pressure(hm)
+    temperature = t_std + Pm[1]
+    pressure = ca.exp(ln_p)
+    density = pressure / (R_AIR * temperature)
+    sound = ca.sqrt(GAMMA_AIR * R_AIR * temperature)
+    machm = vm / sound
+    clm = Um[0]
+    thr = Um[1] if st.throttle_free else st.fixed_throttle
+    cd = model.drag_coefficient(clm, machm)
+    clmax = model.cl_max(machm)
+    cla = model.lift_slope_per_rad(machm) if st.body_thrust else ca.MX(1.0)
+    thrust, ff = model.engine(hm, machm, thr, st.rating, thrust_scale=Pm[2],
+                              temperature_offset_k=Pm[1], standard_temperature_k=t_std,
+                              speed_of_sound_m_s=sound)
+    wind = model.wind_m_s(hm) if model.has_wind else ca.MX(0.0)
+    fo, po = algebra(Xm, Um, Pm[0], pressure, density, sound, cd, clmax, cla, thrust, ff, wind)
+    return ca.Function("point", [Xm, Um, Pm], [fo, po])
+
+
+def _point_algebra(st: _Setup):
+    """The SX part of :func:`_point_function`: CasADi Function (x_scaled[5], u[n_u], m0 [kg],
+    pressure [Pa], density [kg/m^3], speed of sound [m/s], CD, CLmax, CL_alpha [1/rad],
+    thrust [N], fuel flow [kg/s], along-track wind [m/s]) -> (dx_scaled/dt [5], path [n_path]):
+    the equations of motion of the module docstring and the envelope's path constraints."""
+    import casadi as ca
+
+    xs = st.x_scale
+    S = float(st.model.reference_area_m2)
     X = ca.SX.sym("x", 5)
     U = ca.SX.sym("u", st.n_u)
     m0 = ca.SX.sym("m0")
@@ -386,32 +423,8 @@ def _point_function(st: _Setup):
     fq = FlightQuantities(h, mach, p_s, q, cl, clmax_s, lift / (m * G0))
     values = st.envelope.values(fq, smooth=True)
     path = [values[name] for name in st.path_names]
-    algebra = ca.Function("algebra", [X, U, m0, p_s, rho_s, a_s, cd_s, clmax_s, cla_s, thr_s,
-                                      ff_s, w_s], [f, ca.vertcat(*path)])
-
-    # MX part: the tables, with the day's temperature offset and the thrust scale as symbols.
-    Xm = ca.MX.sym("x", 5)
-    Um = ca.MX.sym("u", st.n_u)
-    Pm = ca.MX.sym("p", len(POINT_PARAMETERS))
-    hm = Xm[0] * xs[0]
-    vm = Xm[1] * xs[1]
-    t_std, ln_p = model.atmosphere.standard_temperature_log_pressure(hm)
-    temperature = t_std + Pm[1]
-    pressure = ca.exp(ln_p)
-    density = pressure / (R_AIR * temperature)
-    sound = ca.sqrt(GAMMA_AIR * R_AIR * temperature)
-    machm = vm / sound
-    clm = Um[0]
-    thr = Um[1] if st.throttle_free else st.fixed_throttle
-    cd = model.drag_coefficient(clm, machm)
-    clmax = model.cl_max(machm)
-    cla = model.lift_slope_per_rad(machm) if st.body_thrust else ca.MX(1.0)
-    thrust, ff = model.engine(hm, machm, thr, st.rating, thrust_scale=Pm[2],
-                              temperature_offset_k=Pm[1], standard_temperature_k=t_std,
-                              speed_of_sound_m_s=sound)
-    wind = model.wind_m_s(hm) if model.has_wind else ca.MX(0.0)
-    fo, po = algebra(Xm, Um, Pm[0], pressure, density, sound, cd, clmax, cla, thrust, ff, wind)
-    return ca.Function("point", [Xm, Um, Pm], [fo, po])
+    return ca.Function("algebra", [X, U, m0, p_s, rho_s, a_s, cd_s, clmax_s, cla_s, thr_s,
+                                   ff_s, w_s], [f, ca.vertcat(*path)])
 
 
 # --------------------------------------------------------------------------------------------
@@ -1362,6 +1375,202 @@ def _active_bound_notes(st: _Setup, ph: _Phase) -> list:
 
 
 # --------------------------------------------------------------------------------------------
+# The mesh passes of one solve
+# --------------------------------------------------------------------------------------------
+
+
+def _ipopt_option_sets(solver_opts, ipopt_options: dict | None) -> tuple[dict, dict]:
+    """(options of the first mesh pass, options of the refinement passes): the user's options
+    (``ipopt_options`` over the scenario's ``solver.ipopt``) over :data:`DEFAULT_IPOPT_OPTIONS`,
+    and on refinement passes also over :data:`REFINE_IPOPT_OPTIONS`."""
+    user = dict(solver_opts.ipopt or {})
+    user.update(ipopt_options or {})
+    return ({**DEFAULT_IPOPT_OPTIONS, **user},
+            {**DEFAULT_IPOPT_OPTIONS, **REFINE_IPOPT_OPTIONS, **user})
+
+
+def _initial_guess(st: _Setup, guess, notes: list) -> _Guess:
+    """The initial guess from ``guess`` (a Trajectory, "straight" or None), said in ``notes``."""
+    if isinstance(guess, Trajectory):
+        g = _from_trajectory(st, guess)
+        notes.append(f"initial guess: the {guess.method} trajectory"
+                     + (", zooms given time and smoothed" if guess.zooms else ""))
+    elif guess in (None, "straight"):
+        g = _straight_line(st)
+        notes.append("initial guess: straight line from start to target (cold start)")
+    else:
+        raise ValueError("guess must be a Trajectory, 'straight' or None")
+    return g
+
+
+def _first_init(st: _Setup, g: _Guess, mesh: np.ndarray) -> tuple:
+    """Start of the first mesh pass, (climb phase, dash phase or None), from the guess."""
+    climb0 = _phase_from_guess(g, mesh)
+    dash0 = None
+    if st.dash_m is not None:
+        dash0 = _dash_init(st, float(climb0.states[3, -1]), float(climb0.states[4, -1]),
+                           g.dash_s, 2 * DASH_INTERVALS + 1)
+    return (climb0, dash0)
+
+
+@dataclass
+class _Run:
+    """One :func:`solve_collocation` call: what each mesh pass needs (set-up, point function and
+    its key, deadline [``time.perf_counter`` value], progress callback) and what the passes add
+    up (notes, IPOPT iterations and time [s], one (intervals, iterations, objective, IPOPT
+    time) entry per pass, passes on a reused NLP)."""
+
+    st: _Setup
+    F: object
+    key: str
+    wall0: float  # time.perf_counter() at the start of the solve
+    notes: list
+    progress: object = None
+    deadline: float | None = None
+    time_limit_s: float | None = None
+    total_iter: int = 0
+    ipopt_s: float = 0.0
+    history: list = field(default_factory=list)
+    n_reused: int = 0
+
+    def say(self, msg, frac=None):
+        if self.progress is not None:
+            self.progress(msg, frac)
+
+    def add(self, sol: _Solution) -> None:
+        """Count a finished mesh pass."""
+        self.total_iter += sol.iterations
+        self.ipopt_s += sol.ipopt_s
+        self.history.append((sol.intervals, sol.iterations, sol.objective_value, sol.ipopt_s))
+        self.n_reused += sol.reused
+
+    def trajectory(self, sol: _Solution, *, converged: bool, status: str, notes: list):
+        """``sol`` as a Trajectory with the solve's iterations and wall time so far."""
+        return _trajectory(self.st, sol, converged=converged, status=status,
+                           iterations=self.total_iter,
+                           wall_s=_time.perf_counter() - self.wall0, notes=notes)
+
+    def fail(self, sol: _Solution, message: str, status: str):
+        """Raise SolverFailure with ``sol`` as the last iterate, labelled not converged."""
+        tr = self.trajectory(sol, converged=False, status=status,
+                             notes=self.notes + [f"NOT CONVERGED: {message}"])
+        raise SolverFailure(f"{message}; no optimal trajectory", status=status,
+                            iterations=self.total_iter, trajectory=tr)
+
+
+def _mesh_pass(run: _Run, npass: int, mesh: np.ndarray, init: tuple, opts: dict,
+               refine_opts: dict, near) -> _Solution:
+    """Mesh pass ``npass`` (0: the first) on ``mesh``: IPOPT from ``init`` or, on the first pass
+    with ``near`` (see :func:`_neighbour_key`), from the previous case's solution first. The
+    pass is counted in ``run``; IPOPT not converging raises SolverFailure (``run.fail``)."""
+    st = run.st
+
+    def report(k, f):
+        run.say(f"mesh pass {npass + 1}: IPOPT iteration {k}, scaled objective {f:.6g}", None)
+
+    sol = None
+    if npass == 0 and near is not None:
+        sol, spent = _neighbour_pass(st, run.F, mesh, refine_opts,
+                                     report if run.progress else None, run.key, run.deadline,
+                                     near)
+        run.total_iter += spent
+        if sol is not None:
+            run.notes.append("first mesh pass started from the previous case's solution and "
+                             "multipliers (same aircraft, mesh and objective, this process)")
+    if sol is None:
+        sol = _solve_mesh(st, run.F, mesh, init, opts,
+                          report if run.progress is not None else None,
+                          key=run.key, deadline=run.deadline)
+    if npass == 0 and near is not None and sol.success:
+        _remember_neighbour(near, sol)
+    run.add(sol)
+    if not sol.success:
+        hint = ""
+        if st.dash_m is not None and not st.throttle_free:
+            hint = " (a dash needs a throttle range to hold level flight)"
+        if sol.status == "Maximum_WallTime_Exceeded":
+            hint = f" (the time limit of {run.time_limit_s:g} s was reached)"
+        run.fail(sol, f"IPOPT did not converge ({sol.status}) after {sol.iterations} iterations "
+                      f"on {sol.intervals} intervals (mesh pass {npass + 1}){hint}", sol.status)
+    return sol
+
+
+def _mesh_passes(run: _Run, mesh: np.ndarray, init: tuple, near, first_opts: dict,
+                 refine_opts: dict):
+    """Solve on the first ``mesh``, then refine and solve again (from the solution and its
+    multipliers) until the objective settles (see the module docstring).
+
+    Returns (last solution, its local error estimate per climb interval, whether the mesh
+    converged)."""
+    st, solver_opts = run.st, run.st.scenario.solver
+    max_ref = int(solver_opts.max_mesh_refinements)
+    max_intervals = MAX_INTERVALS_FACTOR * (len(mesh) - 1)
+    prev = None
+    mesh_converged = False
+    for npass in range(max_ref + 1):
+        sol = _mesh_pass(run, npass, mesh, init, first_opts if npass == 0 else refine_opts,
+                         refine_opts, near)
+        run.say(f"mesh pass {npass + 1}: {sol.intervals} intervals, {sol.iterations} iterations, "
+                f"objective {sol.objective_value:.7g}", (npass + 1) / (max_ref + 2))
+        err = _interval_errors(st, run.F, sol.climb)
+        if max_ref == 0:
+            mesh_converged = bool(err.max() <= ERROR_TOLERANCE)
+            break
+        if prev is not None:
+            change = abs(sol.objective_value - prev) / max(abs(sol.objective_value), 1e-12)
+            mesh_converged = change < solver_opts.mesh_tolerance
+            if mesh_converged and err.max() <= ERROR_TOLERANCE:
+                break
+        prev = sol.objective_value
+        if npass == max_ref:
+            break
+        new_mesh = _refine(mesh, err, max_intervals)
+        if len(new_mesh) == len(mesh):
+            break
+        init = (_interp_phase(st, run.F, sol.climb, new_mesh), sol.dash,
+                _map_multipliers(st, mesh, new_mesh, sol.lam_x, sol.lam_g))
+        mesh = new_mesh
+    return sol, err, mesh_converged
+
+
+def _check_mesh(run: _Run, sol: _Solution, err: np.ndarray, mesh_converged: bool) -> None:
+    """Note the mesh passes and the final local error; raise SolverFailure (``run.fail``) when
+    the mesh did not converge."""
+    solver_opts = run.st.scenario.solver
+    max_ref = int(solver_opts.max_mesh_refinements)
+    run.notes.append("mesh passes: " + "; ".join(
+        f"{n} intervals, {it} iterations, objective {obj:.7g}" for n, it, obj, _ in run.history))
+    run.notes.append(f"NLP reused from an earlier solve in this process on {run.n_reused} of "
+                     f"{len(run.history)} mesh passes")
+    run.notes.append(f"largest local error estimate on the final mesh {err.max():.1e} "
+                     f"(scaled states; refinement target {ERROR_TOLERANCE:.0e})")
+    if not mesh_converged:
+        what = (f"the local error estimate {err.max():.1e} exceeds {ERROR_TOLERANCE:.0e} on the "
+                "single mesh (max_mesh_refinements = 0)" if max_ref == 0 else
+                f"mesh refinement stopped after {len(run.history)} passes without the objective "
+                f"settling to {solver_opts.mesh_tolerance:g} relative")
+        run.fail(sol, what, sol.status + "; mesh not converged")
+
+
+def _optimum_notes(st: _Setup, sol: _Solution) -> list:
+    """Notes on a converged optimum: active bounds, the dash phase, a looser IPOPT tolerance."""
+    notes = _active_bound_notes(st, sol.climb)
+    if sol.dash is not None:
+        full = st.dash_m / st.xf[1]
+        notes.append(f"dash phase: {sol.dash.duration_s:.1f} s at the target state, from "
+                     f"{sol.climb.states[4, -1] / 1000:.1f} km")
+        if sol.dash.duration_s < 0.1 * full:
+            notes.append(
+                "the optimum covers most of the dash distance before reaching the target state: "
+                "flying it at another altitude and speed is better for this objective than the "
+                "dash at the target state (the energy-state solver, which always dashes at the "
+                "target state, answers that different question)")
+    if sol.status != "Solve_Succeeded":
+        notes.append(f"IPOPT status {sol.status}: converged to its acceptable (looser) tolerance")
+    return notes
+
+
+# --------------------------------------------------------------------------------------------
 # Public entry point
 # --------------------------------------------------------------------------------------------
 
@@ -1373,6 +1582,9 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
                       compile: bool | None = None,
                       from_neighbour: bool = False) -> Trajectory:
     """Optimal climb by Hermite-Simpson collocation and IPOPT (see the module docstring).
+
+    (Over 60 lines only for this documentation of its options: the body is a short sequence of
+    calls to the helpers above, :func:`_mesh_passes` doing the solving.)
 
     Parameters
     ----------
@@ -1435,130 +1647,18 @@ def solve_collocation(scenario, objective: str = "time", *, model=None, guess=No
 
         model = build_model(scenario)
     st = _setup(scenario, model, objective)
-    solver_opts = scenario.solver
-    n0 = int(intervals or solver_opts.intervals)
-    user = dict(solver_opts.ipopt or {})
-    user.update(ipopt_options or {})
-    first_opts = {**DEFAULT_IPOPT_OPTIONS, **user}
-    refine_opts = {**DEFAULT_IPOPT_OPTIONS, **REFINE_IPOPT_OPTIONS, **user}
-
-    def say(msg, frac=None):
-        if progress is not None:
-            progress(msg, frac)
-
+    first_opts, refine_opts = _ipopt_option_sets(scenario.solver, ipopt_options)
     notes = list(st.notes)
-    if isinstance(guess, Trajectory):
-        g = _from_trajectory(st, guess)
-        notes.append(f"initial guess: the {guess.method} trajectory"
-                     + (", zooms given time and smoothed" if guess.zooms else ""))
-    elif guess in (None, "straight"):
-        g = _straight_line(st)
-        notes.append("initial guess: straight line from start to target (cold start)")
-    else:
-        raise ValueError("guess must be a Trajectory, 'straight' or None")
-
+    g = _initial_guess(st, guess, notes)
     F, key = _point_function_for(st, compile, notes)
     deadline = None if time_limit_s is None else wall0 + time_limit_s
-    mesh = np.linspace(0.0, 1.0, n0 + 1)
+    run = _Run(st, F, key, wall0, notes, progress=progress, deadline=deadline,
+               time_limit_s=time_limit_s)
+    mesh = np.linspace(0.0, 1.0, int(intervals or scenario.solver.intervals) + 1)
     near = _neighbour_key(key, mesh, st) if from_neighbour else None
-    climb0 = _phase_from_guess(g, mesh)
-    dash0 = None
-    if st.dash_m is not None:
-        dash0 = _dash_init(st, float(climb0.states[3, -1]), float(climb0.states[4, -1]),
-                           g.dash_s, 2 * DASH_INTERVALS + 1)
-    init = (climb0, dash0)
-
-    total_iter = 0
-    ipopt_s = 0.0
-    history = []
-    n_reused = 0
-    prev = None
-    mesh_converged = False
-    max_ref = int(solver_opts.max_mesh_refinements)
-
-    def fail(sol, message, status):
-        tr = _trajectory(st, sol, converged=False, status=status, iterations=total_iter,
-                         wall_s=_time.perf_counter() - wall0,
-                         notes=notes + [f"NOT CONVERGED: {message}"])
-        raise SolverFailure(f"{message}; no optimal trajectory", status=status,
-                            iterations=total_iter, trajectory=tr)
-
-    for npass in range(max_ref + 1):
-        def report(k, f, npass=npass):
-            say(f"mesh pass {npass + 1}: IPOPT iteration {k}, scaled objective {f:.6g}", None)
-
-        opts = first_opts if npass == 0 else refine_opts
-        sol = None
-        if npass == 0 and near is not None:
-            sol, spent = _neighbour_pass(st, F, mesh, refine_opts, report if progress else None,
-                                         key, deadline, near)
-            total_iter += spent
-            if sol is not None:
-                notes.append("first mesh pass started from the previous case's solution and "
-                             "multipliers (same aircraft, mesh and objective, this process)")
-        if sol is None:
-            sol = _solve_mesh(st, F, mesh, init, opts, report if progress is not None else None,
-                              key=key, deadline=deadline)
-        if npass == 0 and near is not None and sol.success:
-            _remember_neighbour(near, sol)
-        total_iter += sol.iterations
-        ipopt_s += sol.ipopt_s
-        history.append((sol.intervals, sol.iterations, sol.objective_value, sol.ipopt_s))
-        n_reused += sol.reused
-        if not sol.success:
-            hint = ""
-            if st.dash_m is not None and not st.throttle_free:
-                hint = " (a dash needs a throttle range to hold level flight)"
-            if sol.status == "Maximum_WallTime_Exceeded":
-                hint = f" (the time limit of {time_limit_s:g} s was reached)"
-            fail(sol, f"IPOPT did not converge ({sol.status}) after {sol.iterations} iterations "
-                      f"on {sol.intervals} intervals (mesh pass {npass + 1}){hint}", sol.status)
-        say(f"mesh pass {npass + 1}: {sol.intervals} intervals, {sol.iterations} iterations, "
-            f"objective {sol.objective_value:.7g}", (npass + 1) / (max_ref + 2))
-        err = _interval_errors(st, F, sol.climb)
-        if max_ref == 0:
-            mesh_converged = bool(err.max() <= ERROR_TOLERANCE)
-            break
-        if prev is not None:
-            change = abs(sol.objective_value - prev) / max(abs(sol.objective_value), 1e-12)
-            mesh_converged = change < solver_opts.mesh_tolerance
-            if mesh_converged and err.max() <= ERROR_TOLERANCE:
-                break
-        prev = sol.objective_value
-        if npass == max_ref:
-            break
-        new_mesh = _refine(mesh, err, MAX_INTERVALS_FACTOR * n0)
-        if len(new_mesh) == len(mesh):
-            break
-        init = (_interp_phase(st, F, sol.climb, new_mesh), sol.dash,
-                _map_multipliers(st, mesh, new_mesh, sol.lam_x, sol.lam_g))
-        mesh = new_mesh
-
-    notes.append("mesh passes: " + "; ".join(
-        f"{n} intervals, {it} iterations, objective {obj:.7g}" for n, it, obj, _ in history))
-    notes.append(f"NLP reused from an earlier solve in this process on {n_reused} of "
-                 f"{len(history)} mesh passes")
-    notes.append(f"largest local error estimate on the final mesh {err.max():.1e} "
-                 f"(scaled states; refinement target {ERROR_TOLERANCE:.0e})")
-    if not mesh_converged:
-        what = (f"the local error estimate {err.max():.1e} exceeds {ERROR_TOLERANCE:.0e} on the "
-                "single mesh (max_mesh_refinements = 0)" if max_ref == 0 else
-                f"mesh refinement stopped after {len(history)} passes without the objective "
-                f"settling to {solver_opts.mesh_tolerance:g} relative")
-        fail(sol, what, sol.status + "; mesh not converged")
-    notes += _active_bound_notes(st, sol.climb)
-    if sol.dash is not None:
-        full = st.dash_m / st.xf[1]
-        notes.append(f"dash phase: {sol.dash.duration_s:.1f} s at the target state, from "
-                     f"{sol.climb.states[4, -1] / 1000:.1f} km")
-        if sol.dash.duration_s < 0.1 * full:
-            notes.append(
-                "the optimum covers most of the dash distance before reaching the target state: "
-                "flying it at another altitude and speed is better for this objective than the "
-                "dash at the target state (the energy-state solver, which always dashes at the "
-                "target state, answers that different question)")
-    if sol.status != "Solve_Succeeded":
-        notes.append(f"IPOPT status {sol.status}: converged to its acceptable (looser) tolerance")
-    notes.append(f"IPOPT time {ipopt_s:.2f} s over {len(history)} mesh passes")
-    return _trajectory(st, sol, converged=True, status=sol.status, iterations=total_iter,
-                       wall_s=_time.perf_counter() - wall0, notes=notes)
+    sol, err, mesh_converged = _mesh_passes(run, mesh, _first_init(st, g, mesh), near,
+                                            first_opts, refine_opts)
+    _check_mesh(run, sol, err, mesh_converged)
+    run.notes += _optimum_notes(st, sol)
+    run.notes.append(f"IPOPT time {run.ipopt_s:.2f} s over {len(run.history)} mesh passes")
+    return run.trajectory(sol, converged=True, status=sol.status, notes=run.notes)

@@ -319,6 +319,29 @@ def build_energy_map(source, *, altitude_m=None, speed=None, speed_kind: str = "
         limits = envelope_for(scen, model, path=False)
     limits = _as_envelope(limits, model) if limits is not None else None
     rating = rating or (None if scen is not None else model.default_rating)
+    altitude_m, speed = _map_axes(model, scen, limits, shape, altitude_m, speed, speed_kind)
+    mass = model.mass_kg if mass_kg is None else float(mass_kg)
+    throttle = model.throttle_max if throttle is None else float(throttle)
+    h_col = altitude_m[:, None]
+    if speed_kind == "mach":
+        tas = speed[None, :] * model.atmosphere(h_col).speed_of_sound_m_s
+    else:
+        tas = speed[None, :]
+    f = _grid_fields(model, h_col, tas, mass, limits=limits, load_factor=load_factor,
+                     throttle=throttle, rating=rating)
+    label = rating
+    if label is None:  # the mission's rating, in words when it is a schedule
+        label = model.rating_label if getattr(model, "scheduled", False) else model.default_rating
+    return EnergyMap(altitude_m, speed, speed_kind, f, mass, float(load_factor), throttle, label,
+                     float(getattr(model, "temperature_offset_k", 0.0)))
+
+
+def _map_axes(model, scen, limits, shape, altitude_m, speed, speed_kind: str):
+    """(altitudes [m], speeds [m/s or -]) of a map, as flat float arrays: the given ones, or by
+    default ``shape`` points (default the scenario's grid size, else 400 x 400) over the
+    model's data domain in altitude (cut to the altitude limits) and speeds from 0 to its
+    highest Mach at the warmest altitude (TAS, the first point above 0) or over its Mach range
+    (Mach)."""
     if shape is None:
         if scen is not None:
             shape = (scen.solver.grid_altitude_points, scen.solver.grid_speed_points)
@@ -337,21 +360,7 @@ def build_energy_map(source, *, altitude_m=None, speed=None, speed_kind: str = "
         else:
             a_max = float(np.max(model.atmosphere(altitude_m).speed_of_sound_m_s))
             speed = np.linspace(0.0, d.mach_max * a_max, shape[1] + 1)[1:]
-    speed = np.asarray(speed, dtype=float).ravel()
-    mass = model.mass_kg if mass_kg is None else float(mass_kg)
-    throttle = model.throttle_max if throttle is None else float(throttle)
-    h_col = altitude_m[:, None]
-    if speed_kind == "mach":
-        tas = speed[None, :] * model.atmosphere(h_col).speed_of_sound_m_s
-    else:
-        tas = speed[None, :]
-    f = _grid_fields(model, h_col, tas, mass, limits=limits, load_factor=load_factor,
-                     throttle=throttle, rating=rating)
-    label = rating
-    if label is None:  # the mission's rating, in words when it is a schedule
-        label = model.rating_label if getattr(model, "scheduled", False) else model.default_rating
-    return EnergyMap(altitude_m, speed, speed_kind, f, mass, float(load_factor), throttle, label,
-                     float(getattr(model, "temperature_offset_k", 0.0)))
+    return altitude_m, np.asarray(speed, dtype=float).ravel()
 
 
 #: Grid points per block of rows in :func:`_grid_fields` (the temporaries of one block stay at a
@@ -454,27 +463,40 @@ def maximise_on_lines(objective, lo, hi, points: int = 300, *, refine: bool = Tr
     x_best = x[rows, best_i]
     f_best = f[rows, best_i]
     if refine and n_lines > 0:
-        # sampled local maxima (plateaus count once: strict rise on the left)
-        pad = np.full((n_lines, 1), -np.inf)
-        left = np.concatenate([pad, f[:, :-1]], axis=1)
-        right = np.concatenate([f[:, 1:], pad], axis=1)
-        is_peak = (f > left) & (f >= right) & np.isfinite(f)
-        peak_val = np.where(is_peak, f, -np.inf)
-        n_peaks = min(peaks, points)
-        order = np.argsort(-peak_val, axis=1, kind="stable")[:, :n_peaks]  # (L, P)
-        idx = order.T.ravel()  # peak-major: row j*L + i is peak j of line i
-        line = np.tile(rows, n_peaks)
-        a = x[line, np.maximum(idx - 1, 0)]
-        b = x[line, np.minimum(idx + 1, points - 1)]
-        xr, fr = _grid_refine(objective, line, a, b, rounds, refine_points)
-        xr = xr.reshape(n_peaks, n_lines)
-        fr = fr.reshape(n_peaks, n_lines)
-        for j in range(n_peaks):
-            ok = np.isfinite(peak_val[rows, order[:, j]])
-            better = ok & (fr[j] > f_best)
-            x_best = np.where(better, xr[j], x_best)
-            f_best = np.where(better, fr[j], f_best)
+        x_best, f_best = _refine_peaks(objective, x, f, x_best, f_best, peaks, rounds,
+                                       refine_points)
     x_best = np.where(np.isfinite(f_best), x_best, np.nan)
+    return x_best, f_best
+
+
+def _refine_peaks(objective, x, f, x_best, f_best, peaks: int, rounds: int,
+                  refine_points: int):
+    """(x_best, f_best) of :func:`maximise_on_lines` after refining the best ``peaks`` sampled
+    local maxima of each line (samples ``x``, values ``f``, shape (L, points)) by
+    :func:`_grid_refine`, each from the bracket of its two neighbouring samples; a refined
+    point replaces the best sample only where it is better."""
+    n_lines, points = x.shape
+    rows = np.arange(n_lines)
+    # sampled local maxima (plateaus count once: strict rise on the left)
+    pad = np.full((n_lines, 1), -np.inf)
+    left = np.concatenate([pad, f[:, :-1]], axis=1)
+    right = np.concatenate([f[:, 1:], pad], axis=1)
+    is_peak = (f > left) & (f >= right) & np.isfinite(f)
+    peak_val = np.where(is_peak, f, -np.inf)
+    n_peaks = min(peaks, points)
+    order = np.argsort(-peak_val, axis=1, kind="stable")[:, :n_peaks]  # (L, P)
+    idx = order.T.ravel()  # peak-major: row j*L + i is peak j of line i
+    line = np.tile(rows, n_peaks)
+    a = x[line, np.maximum(idx - 1, 0)]
+    b = x[line, np.minimum(idx + 1, points - 1)]
+    xr, fr = _grid_refine(objective, line, a, b, rounds, refine_points)
+    xr = xr.reshape(n_peaks, n_lines)
+    fr = fr.reshape(n_peaks, n_lines)
+    for j in range(n_peaks):
+        ok = np.isfinite(peak_val[rows, order[:, j]])
+        better = ok & (fr[j] > f_best)
+        x_best = np.where(better, xr[j], x_best)
+        f_best = np.where(better, fr[j], f_best)
     return x_best, f_best
 
 

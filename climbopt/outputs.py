@@ -176,10 +176,7 @@ def _figures(folder: Path, scenario, trajs, units, model, formats) -> tuple[list
         model = build_model(scenario)
     emap = build_energy_map(scenario, model=model, shape=(160, 160))
     figures, svgs = [], []
-    made = [(name, fn(emap, trajs, x=x, units=units).figure)
-            for name, fn, x in (("ps_mach", plots.plot_ps_map, "mach"),
-                                ("ps_tas", plots.plot_ps_map, "tas"),
-                                ("fs_mach", plots.plot_fs_map, "mach"))]
+    made = list(plots.energy_map_figures(emap, trajs, units=units))
     axes = plots.plot_time_histories(trajs, units=units)
     axes[0].set_title(scenario.name, fontsize=10)
     made.append(("time_histories", axes[0].figure))

@@ -218,6 +218,9 @@ def run_mission(scenario, model=None, *, method: str = "both", objectives=("time
         The target cannot be reached (the message names the highest reachable energy height).
     TimeLimitExceeded
         The run's time limit was reached.
+
+    One piece over 60 lines, most of them this documentation: the body is one loop over the
+    objectives that fills the results, errors, costs and references together.
     """
     from climbopt.envelope import envelope_for
 

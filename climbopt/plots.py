@@ -30,6 +30,7 @@ __all__ = [
     "plot_energy_map",
     "plot_ps_map",
     "plot_fs_map",
+    "energy_map_figures",
     "plot_time_histories",
     "add_caution",
     "save_figure",
@@ -181,7 +182,27 @@ def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str
     X = energy_map.mach if x == "mach" else u["tas"][0](energy_map.tas_m_s)
     X = np.asarray(X, dtype=float)
     feasible = np.asarray(energy_map.feasible, dtype=bool)
+    # drawn in this order: the zoom labels of the paths depend on the axis limits so far
+    handles = _draw_field(ax, X, Y, energy_map, quantity, u, feasible)
+    handles += _draw_energy_heights(ax, X, Y, energy_map, u)
+    handles += _draw_envelope(ax, X, Y, energy_map, feasible, show_limits)
+    handles += _draw_paths(ax, energy_map, trajectories, x, u)
+    ax.set_xlabel("Mach number" if x == "mach" else u["tas"][1])
+    ax.set_ylabel(alt_label)
+    ax.set_xlim(float(np.nanmin(X)), float(np.nanmax(X)))
+    ax.set_ylim(float(np.nanmin(Y)), float(np.nanmax(Y)))
+    if title is None:
+        title = _map_title(energy_map, quantity, units)
+    ax.set_title(title, fontsize=10)
+    if legend and handles:
+        ax.legend(handles=handles, fontsize=7, loc="upper left", bbox_to_anchor=(1.01, 1.0),
+                  borderaxespad=0.0, framealpha=0.9)
+    return ax
 
+
+def _draw_field(ax, X, Y, energy_map, quantity: str, u: dict, feasible) -> list:
+    """Filled and labelled contours of Ps or Ps / fuel flow (where Ps > 0) in display units,
+    and the Ps = 0 line (the steady ceiling) inside the envelope; returns legend handles."""
     if quantity == "ps":
         field_si = np.asarray(energy_map.ps_m_s, dtype=float)
         fn, flabel = u["ps"]
@@ -208,19 +229,27 @@ def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str
         ax.clabel(zero, fmt={0.0: "Ps = 0"}, fontsize=8)
         handles.append(Line2D([], [], color="black", linewidth=1.6,
                               label="Ps = 0 (steady ceiling)"))
+    return handles
 
-    # energy-height lines
+
+def _draw_energy_heights(ax, X, Y, energy_map, u: dict) -> list:
+    """Dashed, labelled lines of constant energy height; returns legend handles."""
     he_fn, he_unit = u["he"]
     he = he_fn(np.asarray(energy_map.energy_height_m, dtype=float))
     he_levels = _nice_levels(float(np.nanmin(he)), float(np.nanmax(he)), 12)
-    if he_levels.size >= 2:
-        hs = ax.contour(X, Y, he, levels=he_levels, colors="#6b6b6b", linewidths=0.8,
-                        linestyles=[(0, (2, 2))])
-        ax.clabel(hs, fontsize=7, fmt=lambda v: f"he {v:g} {he_unit}")
-        handles.append(Line2D([], [], color="#6b6b6b", linewidth=0.8, linestyle=(0, (2, 2)),
-                              label=f"energy height [{he_unit}]"))
+    if he_levels.size < 2:
+        return []
+    hs = ax.contour(X, Y, he, levels=he_levels, colors="#6b6b6b", linewidths=0.8,
+                    linestyles=[(0, (2, 2))])
+    ax.clabel(hs, fontsize=7, fmt=lambda v: f"he {v:g} {he_unit}")
+    return [Line2D([], [], color="#6b6b6b", linewidth=0.8, linestyle=(0, (2, 2)),
+                   label=f"energy height [{he_unit}]")]
 
-    # outside the envelope
+
+def _draw_envelope(ax, X, Y, energy_map, feasible, show_limits: bool) -> list:
+    """The region outside the flight envelope hatched and, with ``show_limits``, each limit
+    active on the map drawn and labelled; returns legend handles."""
+    handles = []
     if not feasible.all():
         ax.contourf(X, Y, (~feasible).astype(float), levels=[0.5, 1.5],
                     colors=[ENVELOPE_COLOUR], hatches=[ENVELOPE_HATCH], alpha=0.6)
@@ -237,39 +266,39 @@ def plot_energy_map(energy_map, trajectories=(), *, quantity: str = "ps", x: str
             ax.clabel(cs, fmt={0.5: LIMIT_LABELS.get(name, name)}, fontsize=7, inline=True)
             handles.append(Line2D([], [], color="black", linewidth=1.0, linestyle=ls,
                                   label=LIMIT_LABELS.get(name, name)))
+    return handles
 
-    # paths
+
+def _draw_paths(ax, energy_map, trajectories, x: str, u: dict) -> list:
+    """Each trajectory in its style (:func:`path_style`), its zooms marked; returns legend
+    handles (the paths, and a zoom marker when any path zooms)."""
+    alt_fn, tas_fn = u["alt"][0], u["tas"][0]
     dt = float(getattr(energy_map, "temperature_offset_k", 0.0))
+    handles = []
     labels: list[tuple[str, float, float]] = []  # zoom labels already placed (text, x, y)
     for traj in trajectories:
         tb = traj.table
-        px = tb["mach"] if x == "mach" else u["tas"][0](tb["tas_m_s"])
+        px = tb["mach"] if x == "mach" else tas_fn(tb["tas_m_s"])
         style = path_style(traj.method, traj.objective)
         line, = ax.plot(px, alt_fn(tb["altitude_m"]), label=_label(traj),
                         markevery=max(1, len(px) // 8), **style)
         line.set_gid("path")
         handles.append(line)
         for zoom in traj.zooms:
-            _mark_zoom(ax, zoom, x, alt_fn, u["tas"][0], dt, style["color"], labels)
+            _mark_zoom(ax, zoom, x, alt_fn, tas_fn, dt, style["color"], labels)
     if any(traj.zooms for traj in trajectories):
         handles.append(Line2D([], [], color="black", marker="*", linestyle="none",
                               markersize=9, label="zoom (constant energy)"))
+    return handles
 
-    ax.set_xlabel("Mach number" if x == "mach" else u["tas"][1])
-    ax.set_ylabel(alt_label)
-    ax.set_xlim(float(np.nanmin(X)), float(np.nanmax(X)))
-    ax.set_ylim(float(np.nanmin(Y)), float(np.nanmax(Y)))
-    if title is None:
-        what = "Specific excess power" if quantity == "ps" else "Fuel-specific energy"
-        mass_u = display_unit("mass", units)
-        title = (f"{what}, mass {_from_si(energy_map.mass_kg, mass_u):,.0f} {mass_u}, "
-                 f"n = {energy_map.load_factor:g}, rating {energy_map.rating}, "
-                 f"ISA {energy_map.temperature_offset_k:+g} K")
-    ax.set_title(title, fontsize=10)
-    if legend and handles:
-        ax.legend(handles=handles, fontsize=7, loc="upper left", bbox_to_anchor=(1.01, 1.0),
-                  borderaxespad=0.0, framealpha=0.9)
-    return ax
+
+def _map_title(energy_map, quantity: str, units: str) -> str:
+    """Default title of an energy map: the field and the map's conditions."""
+    what = "Specific excess power" if quantity == "ps" else "Fuel-specific energy"
+    mass_u = display_unit("mass", units)
+    return (f"{what}, mass {_from_si(energy_map.mass_kg, mass_u):,.0f} {mass_u}, "
+            f"n = {energy_map.load_factor:g}, rating {energy_map.rating}, "
+            f"ISA {energy_map.temperature_offset_k:+g} K")
 
 
 def _mark_zoom(ax, zoom, x, alt_fn, tas_fn, temperature_offset_k, colour, labels):
@@ -313,6 +342,15 @@ def plot_fs_map(energy_map, trajectories=(), *, x: str = "mach", units: str = "s
     objectives are left out)."""
     fuel = [t for t in trajectories if t.objective == "fuel"]
     return plot_energy_map(energy_map, fuel, quantity="fs", x=x, units=units, ax=ax, **kw)
+
+
+def energy_map_figures(energy_map, trajectories=(), *, units: str = "si"):
+    """The energy-map figures that ``climbopt run`` and ``climbopt map`` write, one at a time:
+    (file stem, Figure) of Ps over Mach ("ps_mach") and over true airspeed ("ps_tas") with
+    every path, and of fuel-specific energy over Mach ("fs_mach") with the minimum-fuel ones."""
+    for stem, fn, x in (("ps_mach", plot_ps_map, "mach"), ("ps_tas", plot_ps_map, "tas"),
+                        ("fs_mach", plot_fs_map, "mach")):
+        yield stem, fn(energy_map, trajectories, x=x, units=units).figure
 
 
 # ------------------------------------------------------------------------------------------

@@ -1,5 +1,6 @@
 """Reports: the comparison table of all results, ``summary.json``, ``comparison.csv``, the
-per-point CSV and the climb-schedule CSV of each result, and atomic output folders.
+per-point CSV and the climb-schedule CSV of each result, the lines that sum up a sweep, and
+atomic output folders.
 
 Values are SI inside; :data:`climbopt.units.DISPLAY_UNITS` says what each quantity is shown in
 for each unit system (``"si"``, ``"us"``, ``"crew"``, ``"crew-lb"``) and
@@ -748,6 +749,71 @@ def _write_map_csv(path, emap, units, scenario_name, rows_per_block: int = 50):
             np.savetxt(buf, np.column_stack(cols + [feas[block].ravel().astype(float)]),
                        fmt=fmts + ["%d"], delimiter=",")
             fh.write(buf.getvalue().replace(",1\n", ",true\n").replace(",0\n", ",false\n"))
+
+
+# ------------------------------------------------------------------------------------------
+# sweep summary (the lines ``climbopt sweep`` prints)
+
+
+def sweep_plan_text(plan, table) -> str:
+    """The line announcing a sweep (:class:`climbopt.sweep.SweepPlan`): its number of cases,
+    grid or given combinations, end cases of the trade-off, method, objective and table."""
+    from climbopt.sweep import METHODS
+
+    shape = " x ".join(f"{v.name} ({len(v.values)})" for v in plan.variations)
+    n_anchor = sum(c.objective != plan.objective for c in plan.cases)
+    n_cases = len(plan.cases)
+    return (f"sweep: {n_cases} case{'s' if n_cases != 1 else ''} "
+            f"({'given combinations of' if plan.zipped else 'grid'} "
+            f"{shape}" + (f", plus {n_anchor} minimum-time/minimum-fuel end cases" if n_anchor
+                          else "")
+            + f"); {METHODS[plan.method]}, objective {plan.objective}; table {table}")
+
+
+def sweep_summary_lines(plan, result, executor: str, units: str):
+    """The lines after a sweep (:class:`climbopt.sweep.SweepResult`), one at a time: cases
+    done, failed, skipped and left, wall time and rate; this sweep's failed cases in the table
+    (the first five with their errors); rows of other cases; with the cost weight as the only
+    variation, the range of the time-fuel trade-off (time [s], fuel in ``units``)."""
+    where = {"serial": "in this process", "pool": f"on a pool of {result.workers} processes",
+             "dask": f"on the Dask cluster ({result.workers} worker threads)"}[executor]
+    rate = (f"{result.cases_per_s:.2f} cases/s {where}" if result.computed
+            else "no cases solved")
+    yield (f"done {result.computed - result.failed}, failed {result.failed}, skipped "
+           f"{result.skipped}" + (f", left for a re-run {result.remaining}" if result.remaining
+                                 else "")
+           + f"; wall time {result.wall_s:.1f} s, {rate}")
+    ours = {c.key for c in plan.cases}
+    bad = [r for r in result.rows if r["key"] in ours and r["status"] != "ok"]
+    if bad:
+        counts = {}
+        for r in bad:
+            counts[r["status"]] = counts.get(r["status"], 0) + 1
+        yield ("failed cases in the table: "
+               + ", ".join(f"{n} {s}" for s, n in sorted(counts.items())))
+        for r in bad[:5]:
+            yield f"  case {r['case']} ({r['status']}): {r['error'][:160]}"
+        if len(bad) > 5:
+            yield f"  ... {len(bad) - 5} more (see the table)"
+    if result.foreign_rows:
+        yield (f"note: {result.foreign_rows} rows of the table belong to other cases (kept at "
+               f"the end)")
+    if "cost_weight" in [v.name for v in plan.variations]:
+        yield from _tradeoff_lines(plan, [r for r in result.rows if r["key"] in ours], units)
+
+
+def _tradeoff_lines(plan, rows: list[dict], units: str):
+    """The trade-off line of :func:`sweep_summary_lines` (none unless the cost weight is the
+    only variation and the curve has two points or more)."""
+    from climbopt.sweep import tradeoff_curve
+
+    curve = tradeoff_curve([r for r in rows if r["objective"] == "weighted"]
+                           if len(plan.variations) == 1 else [])
+    if len(plan.variations) == 1 and len(curve["time_s"]) > 1:
+        fuel, m_u = to_display("mass", [min(curve["fuel_kg"]), max(curve["fuel_kg"])], units)
+        yield (f"trade-off: {len(curve['time_s'])} weights, time {min(curve['time_s']):.1f} "
+               f"to {max(curve['time_s']):.1f} s, fuel {fuel[0]:,.1f} to {fuel[1]:,.1f} "
+               f"{m_u}" + ("" if curve["monotone"] else " (not monotone: check the grid)"))
 
 
 #: Marker file of a climbopt output folder: only a folder holding it (or an empty or missing

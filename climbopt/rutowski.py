@@ -509,6 +509,9 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
                        refine: bool = True, dash_climb: str = "best") -> Trajectory:
     """Energy-state climb (and dash) path for ``objective`` in "time" | "fuel" | "weighted".
 
+    (Over 60 lines for this documentation: the body is one straight sequence, set-up, climb
+    and dash, table, notes, with the work in the helpers below.)
+
     Parameters
     ----------
     scenario : climbopt.scenario.Scenario
@@ -578,17 +581,8 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
     path, integ, passes, _ = chosen
     table, zooms = _table(prob, path, integ, start, target)
     if dash_m:
-        x_c = table["distance_m"][-1]
-        if x_c >= dash_m:
-            notes.append(
-                f"dash: the climb alone covers {x_c / 1000:.1f} km, more than the dash distance "
-                f"{dash_m / 1000:.1f} km; no dash leg is flown (the target is reached beyond it)")
-        else:  # flown from the same end-of-climb mass and distance
-            table = _append_dash(prob, table, dash, target)
-            notes.append(
-                f"dash: level flight at the target state for {(dash_m - x_c) / 1000:.1f} km, "
-                f"{dash['time'][-1]:.1f} s, {dash['fuel'][-1]:.1f} kg, throttle "
-                f"{dash['throttle'][0]:.3f} (thrust = drag)")
+        table, note = _dash_leg(prob, table, dash, target, dash_m)
+        notes.append(note)
 
     notes += _notes(prob, scenario, path, integ, passes, n_levels, objective, w)
     if progress:
@@ -599,6 +593,21 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
                       iterations=0, wall_s=_time.perf_counter() - t_wall, zooms=zooms,
                       segments=derive_segments(table, zooms), notes=notes,
                       profile=prob.limits.profile)
+
+
+def _dash_leg(prob: _Problem, table: dict, dash: dict, target, dash_m: float):
+    """(table, note): the climb's table with the dash leg appended, flown from the same
+    end-of-climb mass and distance, unless the climb alone already covers the dash distance
+    ``dash_m`` [m]; the note says which."""
+    x_c = table["distance_m"][-1]
+    if x_c >= dash_m:
+        return table, (
+            f"dash: the climb alone covers {x_c / 1000:.1f} km, more than the dash distance "
+            f"{dash_m / 1000:.1f} km; no dash leg is flown (the target is reached beyond it)")
+    return _append_dash(prob, table, dash, target), (
+        f"dash: level flight at the target state for {(dash_m - x_c) / 1000:.1f} km, "
+        f"{dash['time'][-1]:.1f} s, {dash['fuel'][-1]:.1f} kg, throttle "
+        f"{dash['throttle'][0]:.3f} (thrust = drag)")
 
 
 def _check_end_points(prob: _Problem, start, target, mass_kg: float) -> list:
@@ -671,6 +680,17 @@ def _climb_and_dash(prob, he_levels, start_mass, cost, target, dash_m, dash_clim
     j = {k: cost.fuel_weight * v[1] + cost.time_weight * v[0] for k, v in totals.items()}
     variant = min(j, key=j.get)
     label = {"time": "time", "fuel": "fuel", "weighted": f"fuel + {w:g} kg/s x time"}[objective]
+    notes += _dash_variant_notes(variants, totals, variant, label, dash_m)
+    return variants[variant], dashes[variant], notes
+
+
+def _dash_variant_notes(variants: dict, totals: dict, variant: str, label: str,
+                        dash_m: float) -> list:
+    """Notes comparing the climb variants of a dash mission: each one's total time [s], fuel
+    [kg] and climb distance [km] (``totals``: name -> (time, fuel, climb distance [m])), which
+    one is returned (lower ``label``), and energy levels where the range-aware objective
+    degenerated."""
+    notes = []
     for name, (tt, ff, xc) in totals.items():
         over = (" - more than the dash distance, so the range-aware premise (a dash after "
                 "the climb) fails" if name == "range-aware" and xc > dash_m else "")
@@ -690,7 +710,7 @@ def _climb_and_dash(prob, he_levels, start_mass, cost, target, dash_m, dash_clim
             f"dash: on {aware[0].fallback_levels} energy levels every climbing point covers "
             "distance more cheaply than the dash itself (degenerate range-aware objective); "
             "the plain objective was used there")
-    return variants[variant], dashes[variant], notes
+    return notes
 
 
 #: Halvings of the distance credit in :func:`_matched_climb`, and its coarse grid.
@@ -755,26 +775,11 @@ def _table(prob, path, integ, start, target):
     jump_idx = np.flatnonzero(path.zoom_after)
     offset = 0
     h = path.altitude
-
-    def row(h_, v_, he_, gamma, idx_from):
-        fr = energy_fields(model, h_, v_, cols["mass_kg"][idx_from], limits=prob.limits,
-                           throttle=prob.throttle, rating=prob.rating)
-        return {"time_s": cols["time_s"][idx_from], "altitude_m": h_, "tas_m_s": v_,
-                "energy_height_m": he_, "ps_m_s": float(fr.ps_m_s),
-                "flight_path_angle_rad": gamma, "mass_kg": cols["mass_kg"][idx_from],
-                "fuel_used_kg": cols["fuel_used_kg"][idx_from],
-                "distance_m": cols["distance_m"][idx_from], "throttle": prob.throttle}
-
-    def insert(cols, i, r):
-        return {k: np.insert(np.asarray(v, dtype=float), i, r[k]) for k, v in cols.items()}
-
-    def append(cols, r):
-        return {k: np.append(np.asarray(v, dtype=float), r[k]) for k, v in cols.items()}
-
     # start: off the locus -> initial zoom
     if abs(start.altitude_m - h[0]) > _ZOOM_MIN_M:
-        cols = insert(cols, 0, row(start.altitude_m, start.tas_m_s, path.he[0],
-                                   start.flight_path_angle_rad, 0))
+        r = _zoom_end_row(prob, cols, start.altitude_m, start.tas_m_s, path.he[0],
+                          start.flight_path_angle_rad, 0)
+        cols = {k: np.insert(np.asarray(v, dtype=float), 0, r[k]) for k, v in cols.items()}
         zooms.append(Zoom(float(path.he[0]), start.altitude_m, start.tas_m_s, float(h[0]),
                           float(path.tas[0]), "dive" if h[0] < start.altitude_m else "climb",
                           "initial", 1))
@@ -786,13 +791,27 @@ def _table(prob, path, integ, start, target):
     # target: off the locus -> final zoom
     if abs(target.altitude_m - h[-1]) > _ZOOM_MIN_M:
         last = cols["time_s"].size - 1
-        r = row(target.altitude_m, target.tas_m_s, path.he[-1], target.flight_path_angle_rad, last)
+        r = _zoom_end_row(prob, cols, target.altitude_m, target.tas_m_s, path.he[-1],
+                          target.flight_path_angle_rad, last)
         zooms.append(Zoom(float(path.he[-1]), float(h[-1]), float(path.tas[-1]),
                           target.altitude_m, target.tas_m_s,
                           "dive" if target.altitude_m < h[-1] else "climb", "final", last + 1))
-        cols = append(cols, r)
+        cols = {k: np.append(np.asarray(v, dtype=float), r[k]) for k, v in cols.items()}
     zooms.sort(key=lambda z: z.index)
     return _finish_columns(model, cols), zooms
+
+
+def _zoom_end_row(prob, cols: dict, h_, v_, he_, gamma, idx_from: int) -> dict:
+    """Table row of a zoom's end off the locus (altitude [m], TAS [m/s], energy height [m],
+    flight-path angle [rad]): Ps there, time, mass, fuel and distance of row ``idx_from``
+    (a zoom takes no time)."""
+    fr = energy_fields(prob.model, h_, v_, cols["mass_kg"][idx_from], limits=prob.limits,
+                       throttle=prob.throttle, rating=prob.rating)
+    return {"time_s": cols["time_s"][idx_from], "altitude_m": h_, "tas_m_s": v_,
+            "energy_height_m": he_, "ps_m_s": float(fr.ps_m_s),
+            "flight_path_angle_rad": gamma, "mass_kg": cols["mass_kg"][idx_from],
+            "fuel_used_kg": cols["fuel_used_kg"][idx_from],
+            "distance_m": cols["distance_m"][idx_from], "throttle": prob.throttle}
 
 
 def _finish_columns(model, cols):

@@ -1008,6 +1008,9 @@ def _unknown_rating(r: _Reader, fld: str, name: str, ratings) -> None:
 
 
 def _read_rating(r: _Reader, name: str, raw) -> Rating | None:
+    """``[propulsion.ratings.NAME]``: a jet rating (thrust table) or a propeller rating (shaft
+    power table and propeller efficiency) over Mach x altitude, with exactly one fuel model
+    (:func:`_read_fuel_model`). Problems are recorded; None when any."""
     path = f"propulsion.ratings.{name}"
     if not isinstance(raw, dict):
         r.problem(path, f"expected a table [{path}], got {_type_name(raw)} {_show(raw)}")
@@ -1024,39 +1027,26 @@ def _read_rating(r: _Reader, name: str, raw) -> Rating | None:
                       f"{_in_unit(alt[-1], r.unit_of(path + '.altitude', 'm'))}; expected altitudes within "
                       f"the standard atmosphere, -500 m to 70 km")
             alt = None
-    shape_ok = mach is not None and alt is not None
-
-    def table2d(key: str, dim: str, what: str) -> Table2D | None:
-        vals = r.array(raw, key, path, dim, ndim=2)
-        if vals is None or not shape_ok:
-            return None
-        fld = _join(path, key)
-        if not _check_shape(r, vals, fld, len(mach), len(alt), f"{path}.mach", f"{path}.altitude"):
-            return None
-        if not r.check_values(vals, fld, minimum=0.0, what=what):
-            return None
-        return Table2D(tuple(mach), tuple(alt), tuple(tuple(row) for row in vals))
 
     def forbid(keys: tuple[str, ...], why: str) -> None:
         for key in keys:
             if key in raw:
                 r.problem(_join(path, key), why)
 
-    fuel_keys = [k for k in ("fuel_flow", "tsfc", "specific_impulse", "psfc") if k in raw]
-    thrust = power = eff = fuel_flow = None
-    tsfc = psfc = None
+    thrust = power = eff = None
     if kind == "jet":
         forbid(("shaft_power", "propeller_efficiency", "psfc"),
                "only used with kind = \"propeller\"; a jet rating takes thrust and fuel_flow, tsfc or "
                "specific_impulse")
-        thrust = table2d("thrust", "force", "a thrust >= 0")
+        thrust = _rating_table(r, raw, path, "thrust", "force", "a thrust >= 0", mach, alt)
         allowed = ("fuel_flow", "tsfc", "specific_impulse")
         main_ok = thrust is not None
     elif kind == "propeller":
         forbid(("thrust", "tsfc", "specific_impulse"),
                "only used with kind = \"jet\"; a propeller rating takes shaft_power, "
                "propeller_efficiency and fuel_flow or psfc")
-        power = table2d("shaft_power", "power", "a shaft power >= 0")
+        power = _rating_table(r, raw, path, "shaft_power", "power", "a shaft power >= 0", mach,
+                              alt)
         eff = r.table1d(raw, "propeller_efficiency", path, "dimensionless", default_mach=mach,
                         minimum=0.0, maximum=1.0, strict_min=True,
                         what="a propeller efficiency > 0 and <= 1")
@@ -1064,35 +1054,58 @@ def _read_rating(r: _Reader, name: str, raw) -> Rating | None:
         main_ok = power is not None and eff is not None
     else:
         return None
-    fuel_keys = [k for k in fuel_keys if k in allowed]
-    fuel_ok = False
-    if len(fuel_keys) != 1:
-        r.problem(_join(path, "fuel_flow") if not fuel_keys else _join(path, fuel_keys[1]),
-                  f"{'missing fuel data' if not fuel_keys else 'more than one fuel model given'}; "
-                  f"expected exactly one of {', '.join(allowed)}")
-    else:
-        key = fuel_keys[0]
-        if key == "fuel_flow":
-            fuel_flow = table2d("fuel_flow", "mass_flow", "a fuel flow >= 0")
-            fuel_ok = fuel_flow is not None
-        elif key == "tsfc":
-            tsfc = r.quantity(raw, "tsfc", path, "tsfc", minimum=0.0, strict_min=True,
-                              expect="a positive thrust-specific fuel consumption, e.g. \"0.6 lb/lbf/h\"")
-            fuel_ok = tsfc is not None
-        elif key == "specific_impulse":
-            isp = r.quantity(raw, "specific_impulse", path, "time", minimum=0.0, strict_min=True,
-                             expect="a positive specific impulse, e.g. \"1600 s\"")
-            if isp is not None:
-                tsfc = 1.0 / (G0 * isp)  # Isp = T / (mdot g0)  (definition of specific impulse)
-            fuel_ok = tsfc is not None
-        else:
-            psfc = r.quantity(raw, "psfc", path, "psfc", minimum=0.0, strict_min=True,
-                              expect="a positive power-specific fuel consumption, e.g. \"0.5 lb/hp/h\"")
-            fuel_ok = psfc is not None
+    fuel_ok, fuel_flow, tsfc, psfc = _read_fuel_model(r, raw, path, allowed, mach, alt)
     if not (main_ok and fuel_ok):
         return None
     return Rating(name=name, kind=kind, thrust_n=thrust, shaft_power_w=power, propeller_efficiency=eff,
                   fuel_flow_kg_s=fuel_flow, tsfc_kg_per_n_s=tsfc, psfc_kg_per_w_s=psfc)
+
+
+def _rating_table(r: _Reader, raw: dict, path: str, key: str, dim: str, what: str, mach,
+                  alt) -> Table2D | None:
+    """The Mach x altitude table ``key`` of a rating (values >= 0 in quantity ``dim``); None
+    (problems recorded) when it or the rating's axes (``mach``, ``alt``; None when invalid) are
+    not right."""
+    vals = r.array(raw, key, path, dim, ndim=2)
+    if vals is None or mach is None or alt is None:
+        return None
+    fld = _join(path, key)
+    if not _check_shape(r, vals, fld, len(mach), len(alt), f"{path}.mach", f"{path}.altitude"):
+        return None
+    if not r.check_values(vals, fld, minimum=0.0, what=what):
+        return None
+    return Table2D(tuple(mach), tuple(alt), tuple(tuple(row) for row in vals))
+
+
+def _read_fuel_model(r: _Reader, raw: dict, path: str, allowed: tuple[str, ...], mach, alt):
+    """(ok, fuel flow table [kg/s], TSFC [kg/(N s)], PSFC [kg/(W s)]) of a rating: exactly one of
+    the fuel models ``allowed`` for its kind (fuel_flow, tsfc or specific_impulse for a jet,
+    fuel_flow or psfc for a propeller), the others None; problems are recorded."""
+    fuel_keys = [k for k in ("fuel_flow", "tsfc", "specific_impulse", "psfc")
+                 if k in raw and k in allowed]
+    fuel_flow = tsfc = psfc = None
+    if len(fuel_keys) != 1:
+        r.problem(_join(path, "fuel_flow") if not fuel_keys else _join(path, fuel_keys[1]),
+                  f"{'missing fuel data' if not fuel_keys else 'more than one fuel model given'}; "
+                  f"expected exactly one of {', '.join(allowed)}")
+        return False, fuel_flow, tsfc, psfc
+    key = fuel_keys[0]
+    if key == "fuel_flow":
+        fuel_flow = _rating_table(r, raw, path, "fuel_flow", "mass_flow", "a fuel flow >= 0",
+                                  mach, alt)
+    elif key == "tsfc":
+        tsfc = r.quantity(raw, "tsfc", path, "tsfc", minimum=0.0, strict_min=True,
+                          expect="a positive thrust-specific fuel consumption, e.g. \"0.6 lb/lbf/h\"")
+    elif key == "specific_impulse":
+        isp = r.quantity(raw, "specific_impulse", path, "time", minimum=0.0, strict_min=True,
+                         expect="a positive specific impulse, e.g. \"1600 s\"")
+        if isp is not None:
+            tsfc = 1.0 / (G0 * isp)  # Isp = T / (mdot g0)  (definition of specific impulse)
+    else:
+        psfc = r.quantity(raw, "psfc", path, "psfc", minimum=0.0, strict_min=True,
+                          expect="a positive power-specific fuel consumption, e.g. \"0.5 lb/hp/h\"")
+    read = fuel_flow if key == "fuel_flow" else psfc if key == "psfc" else tsfc
+    return read is not None, fuel_flow, tsfc, psfc
 
 
 def _read_atmosphere(r: _Reader, doc: dict) -> AtmosphereSpec | None:

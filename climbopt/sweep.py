@@ -62,6 +62,7 @@ __all__ = [
     "PARAMETER_NAMES", "STATUSES", "SweepError", "SweepAborted", "Parameter", "Variation", "Case",
     "SweepPlan", "SweepResult", "parameters", "parse_variation", "plan_sweep", "apply_case",
     "run_case", "run_sweep", "read_table", "write_parquet", "tradeoff_curve", "pareto_front",
+    "check_optional_packages",
 ]
 
 #: Names accepted by ``--vary``.
@@ -92,6 +93,34 @@ class SweepError(ValueError):
 class SweepAborted(RuntimeError):
     """A running sweep had to stop: a pool worker process died or the Dask cluster failed. The
     cases finished before are in the table; a re-run continues."""
+
+
+#: Messages of a missing optional package (the command line's options name them).
+_NO_PYARROW = ("--parquet needs the pyarrow package, which is not installed "
+               "(pip install pyarrow), or leave out --parquet")
+_NO_DISTRIBUTED = ("--cluster needs Dask distributed, which is not installed; install "
+                   "the optional extra: pip install 'climbopt[dask]'")
+
+
+def _import_distributed():
+    """The ``distributed`` module (SweepError when Dask distributed is not installed)."""
+    try:
+        import distributed
+    except ImportError:
+        raise SweepError(_NO_DISTRIBUTED) from None
+    return distributed
+
+
+def check_optional_packages(*, parquet: bool = False, cluster: bool = False) -> None:
+    """Before any case is solved: SweepError when ``parquet`` is asked for without pyarrow or
+    ``cluster`` without Dask distributed."""
+    if parquet:
+        import importlib.util
+
+        if importlib.util.find_spec("pyarrow") is None:
+            raise SweepError(_NO_PYARROW)
+    if cluster:
+        _import_distributed()
 
 
 # ============================================================================================
@@ -347,6 +376,22 @@ def plan_sweep(scenario: Scenario, variations, *, zip_values: bool = False,
         nothing).
     """
     variations = tuple(variations)
+    objective = _plan_objective(variations, method, objective)
+    if zip_values:
+        counts = {v.name: len(v.values) for v in variations}
+        if len(set(counts.values())) != 1:
+            raise SweepError("--zip needs the same number of values for every --vary; got "
+                             + ", ".join(f"{n} {c}" for n, c in counts.items()))
+        combos = list(zip(*(v.values for v in variations)))
+    else:
+        combos = list(itertools.product(*(v.values for v in variations)))
+    cases = _plan_cases(scenario, [v.name for v in variations], combos, method, objective)
+    return SweepPlan(scenario, variations, method, objective, bool(zip_values), tuple(cases))
+
+
+def _plan_objective(variations: tuple, method: str, objective: str | None) -> str:
+    """The sweep's objective (see :func:`plan_sweep`) after checking the variations (at least
+    one, no name twice), the method and the objective against the cost weight."""
     if not variations:
         raise SweepError("nothing to vary: give at least one --vary NAME=VALUES")
     names = [v.name for v in variations]
@@ -364,15 +409,14 @@ def plan_sweep(scenario: Scenario, variations, *, zip_values: bool = False,
         raise SweepError(f"--vary cost_weight changes only the weighted objective; with "
                          f"--objective {objective} every case would be the same (use "
                          f"--objective weighted)")
-    if zip_values:
-        counts = {v.name: len(v.values) for v in variations}
-        if len(set(counts.values())) != 1:
-            raise SweepError("--zip needs the same number of values for every --vary; got "
-                             + ", ".join(f"{n} {c}" for n, c in counts.items()))
-        combos = list(zip(*(v.values for v in variations)))
-    else:
-        combos = list(itertools.product(*(v.values for v in variations)))
+    return objective
 
+
+def _plan_cases(scenario: Scenario, names: list[str], combos: list, method: str,
+                objective: str) -> list[Case]:
+    """One case per combination of values, and with a varied cost weight the anchors: one
+    minimum-time and one minimum-fuel case per combination of the other inputs. A combination
+    given twice (the same key) is a SweepError."""
     fp = scenario_fingerprint(scenario)
     cases: list[Case] = []
     keys: dict[str, int] = {}
@@ -388,8 +432,8 @@ def plan_sweep(scenario: Scenario, variations, *, zip_values: bool = False,
 
     for combo in combos:
         add(objective, tuple(zip(names, (float(x) for x in combo))))
-    if varies_w:  # anchors: one min-time and one min-fuel case per combination of the others
-        seen = []
+    if "cost_weight" in names:  # anchors: one min-time and one min-fuel case per combination
+        seen = []  # of the other inputs, in order of first appearance
         for combo in combos:
             rest = tuple((n, float(x)) for n, x in zip(names, combo) if n != "cost_weight")
             if rest not in seen:
@@ -397,7 +441,7 @@ def plan_sweep(scenario: Scenario, variations, *, zip_values: bool = False,
         for rest in seen:
             add("time", rest)
             add("fuel", rest)
-    return SweepPlan(scenario, variations, method, objective, bool(zip_values), tuple(cases))
+    return cases
 
 
 def apply_case(scenario: Scenario, values) -> Scenario:
@@ -545,8 +589,7 @@ def write_parquet(table_path, parquet_path) -> Path:
         import pyarrow as pa
         import pyarrow.parquet as pq
     except ImportError:
-        raise SweepError("--parquet needs the pyarrow package, which is not installed "
-                         "(pip install pyarrow), or leave out --parquet") from None
+        raise SweepError(_NO_PYARROW) from None
     rows = read_table(table_path)
     header, _ = _read_rows(Path(table_path))
     cols = {}
@@ -700,12 +743,7 @@ class _DaskBackend:
 
     def __init__(self, scenario: Scenario, cluster, compile: bool | None = None):
         self.compile = compile
-        try:
-            import distributed
-        except ImportError:
-            raise SweepError("--cluster needs Dask distributed, which is not installed; install "
-                             "the optional extra: pip install 'climbopt[dask]'") from None
-        self._distributed = distributed
+        distributed = self._distributed = _import_distributed()
         if isinstance(cluster, str):
             try:
                 self.client = distributed.Client(cluster, timeout="10s")
@@ -806,16 +844,51 @@ def run_sweep(plan: SweepPlan, table_path, *, executor: str = "pool", workers: i
         Counts, wall time and the final table rows (current cases in case order, then rows of
         cases not in this sweep).
     """
+    _check_run_options(executor, cluster, max_cases)
+    table_path = Path(table_path)
+    table_path.parent.mkdir(parents=True, exist_ok=True)
+    existing = _open_table(plan, table_path)
+    todo, skipped, remaining = _cases_to_run(plan, existing, retry_failed, max_cases)
+    result = SweepResult(table_path, total=len(plan.cases), skipped=skipped, remaining=remaining,
+                         executor=executor)
+    fresh: dict[str, list[str]] = {}
+    t0 = time.perf_counter()
+    with open(table_path, "a", newline="", encoding="utf-8") as fh:
+        record = _recorder(plan, fh, result, fresh, on_case)
+        compile = _compile_choice(plan, compile, len(todo))
+
+        def started():
+            if on_start is not None:
+                on_start(len(todo), skipped)
+
+        _run_cases(plan, todo, record, started, result, executor=executor, workers=workers,
+                   cluster=cluster, compile=compile)
+    result.wall_s = time.perf_counter() - t0
+    result.foreign_rows = _rewrite_table(plan, table_path, existing, fresh)
+    result.rows = read_table(table_path)
+    return result
+
+
+def _check_run_options(executor: str, cluster, max_cases: int | None) -> None:
+    """SweepError for an unknown executor, dask without a cluster or a negative max_cases."""
     if executor not in ("serial", "pool", "dask"):
         raise SweepError(f"executor must be serial, pool or dask, got {executor!r}")
     if executor == "dask" and cluster is None:
         raise SweepError("the dask executor needs a cluster address")
     if max_cases is not None and max_cases < 0:
         raise SweepError(f"max_cases must be 0 or more, got {max_cases}")
-    header = plan.header
-    table_path = Path(table_path)
-    table_path.parent.mkdir(parents=True, exist_ok=True)
 
+
+def _write_head(fh, plan: SweepPlan) -> None:
+    """The table's comment lines and column header."""
+    fh.write("\n".join(_comment_lines(plan)) + "\n")
+    csv.writer(fh, lineterminator="\n").writerow(plan.header)
+
+
+def _open_table(plan: SweepPlan, table_path: Path) -> dict[str, list[str]]:
+    """The rows already in the table, by case key (the last row of a key); a missing, empty or
+    torn-before-its-header table is started anew, a table of another sweep refused."""
+    header = plan.header
     existing: dict[str, list[str]] = {}  # key -> last row
     old_header, old_rows = _read_rows(table_path) if table_path.exists() else (None, [])
     if old_header is not None and old_header != header and not old_rows:
@@ -830,10 +903,14 @@ def run_sweep(plan: SweepPlan, table_path, *, executor: str = "pool", workers: i
             existing[r[1]] = r
     else:  # new table (or one torn before its header was complete, or an empty one)
         with open(table_path, "w", newline="", encoding="utf-8") as fh:
-            fh.write("\n".join(_comment_lines(plan)) + "\n")
-            csv.writer(fh, lineterminator="\n").writerow(header)
+            _write_head(fh, plan)
+    return existing
 
-    status_col = header.index("status")
+
+def _cases_to_run(plan: SweepPlan, existing: dict, retry_failed: bool,
+                  max_cases: int | None) -> tuple[list[Case], int, int]:
+    """(cases to solve now, cases skipped as already in the table, cases left for a re-run)."""
+    status_col = plan.header.index("status")
     todo, skipped = [], 0
     for case in plan.cases:
         row = existing.get(case.key)
@@ -845,74 +922,71 @@ def run_sweep(plan: SweepPlan, table_path, *, executor: str = "pool", workers: i
     if max_cases is not None and len(todo) > max_cases:
         remaining = len(todo) - max_cases
         todo = todo[:max_cases]
+    return todo, skipped, remaining
 
-    result = SweepResult(table_path, total=len(plan.cases), skipped=skipped, remaining=remaining,
-                         executor=executor)
-    params = plan.parameters
-    method_name = METHODS[plan.method]
-    fresh: dict[str, list[str]] = {}
-    t0 = time.perf_counter()
 
-    with open(table_path, "a", newline="", encoding="utf-8") as fh:
-        writer = csv.writer(fh, lineterminator="\n")
+def _recorder(plan: SweepPlan, fh, result: SweepResult, fresh: dict, on_case):
+    """``record(case, out)``: write a finished case's row to the open table ``fh`` (flushed at
+    once), keep it in ``fresh`` (key -> cells), count it in ``result``, then call ``on_case``
+    with the typed row."""
+    header, params, method_name = plan.header, plan.parameters, METHODS[plan.method]
+    writer = csv.writer(fh, lineterminator="\n")
 
-        def record(case: Case, out: dict) -> None:
-            values = dict(case.values)
-            typed = {"case": case.index, "key": case.key, "method": method_name,
-                     "objective": case.objective}
-            for p in params:
-                typed[p.column] = values.get(p.name, math.nan)
-            typed.update({k: out.get(k, math.nan if k in _NUMERIC_RESULTS else "")
-                          for k in RESULT_COLUMNS})
-            cells = [_cell(typed[k]) for k in header]
-            writer.writerow(cells)
-            fh.flush()
-            fresh[case.key] = cells
-            result.computed += 1
-            if typed["status"] != "ok":
-                result.failed += 1
-            if on_case is not None:
-                on_case(typed)
+    def record(case: Case, out: dict) -> None:
+        values = dict(case.values)
+        typed = {"case": case.index, "key": case.key, "method": method_name,
+                 "objective": case.objective}
+        for p in params:
+            typed[p.column] = values.get(p.name, math.nan)
+        typed.update({k: out.get(k, math.nan if k in _NUMERIC_RESULTS else "")
+                      for k in RESULT_COLUMNS})
+        cells = [_cell(typed[k]) for k in header]
+        writer.writerow(cells)
+        fh.flush()
+        fresh[case.key] = cells
+        result.computed += 1
+        if typed["status"] != "ok":
+            result.failed += 1
+        if on_case is not None:
+            on_case(typed)
 
-        compile = _compile_choice(plan, compile, len(todo))
-        if executor == "serial" or not todo:
-            result.workers = 1
-            if on_start is not None:
-                on_start(len(todo), skipped)
-            for case in todo:
-                record(case, run_case(plan.scenario, case, compile=compile))
-        else:
-            if executor == "pool":
-                n = workers or default_workers()
-                backend = _PoolBackend(plan.scenario, max(1, min(n, len(todo))), compile)
-            else:
-                backend = _DaskBackend(plan.scenario, cluster, compile)
-            result.workers = backend.workers
+    return record
 
-            def ready():
-                if on_start is not None:
-                    on_start(len(todo), skipped)
 
-            backend.run(todo, record, ready)
-    result.wall_s = time.perf_counter() - t0
+def _run_cases(plan: SweepPlan, todo: list[Case], record, started, result: SweepResult, *,
+               executor: str, workers: int | None, cluster, compile: bool) -> None:
+    """Solve ``todo`` with the executor, passing each case's output to ``record``; ``started()``
+    once the workers are up (the pool size goes to ``result.workers``)."""
+    if executor == "serial" or not todo:
+        result.workers = 1
+        started()
+        for case in todo:
+            record(case, run_case(plan.scenario, case, compile=compile))
+        return
+    if executor == "pool":
+        n = workers or default_workers()
+        backend = _PoolBackend(plan.scenario, max(1, min(n, len(todo))), compile)
+    else:
+        backend = _DaskBackend(plan.scenario, cluster, compile)
+    result.workers = backend.workers
+    backend.run(todo, record, started)
 
-    # final table: this sweep's cases in case order, then rows of other cases, latest row wins
+
+def _rewrite_table(plan: SweepPlan, table_path: Path, existing: dict, fresh: dict) -> int:
+    """Rewrite the table (atomically): this sweep's cases in case order, then rows of other
+    cases, the latest row of a key winning. Returns the number of those other rows."""
     merged = dict(existing)
     merged.update(fresh)
     ordered = [merged[c.key] for c in plan.cases if c.key in merged]
     ours = {c.key for c in plan.cases}
     foreign = [r for k, r in merged.items() if k not in ours]
-    result.foreign_rows = len(foreign)
     buf = io.StringIO()
-    buf.write("\n".join(_comment_lines(plan)) + "\n")
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(header)
-    w.writerows(ordered + foreign)
+    _write_head(buf, plan)
+    csv.writer(buf, lineterminator="\n").writerows(ordered + foreign)
     tmp = table_path.with_name(f".{table_path.name}.tmp")
     tmp.write_text(buf.getvalue(), encoding="utf-8")
     os.replace(tmp, table_path)
-    result.rows = read_table(table_path)
-    return result
+    return len(foreign)
 
 
 #: A collocation sweep with at least this many cases to solve compiles its point function

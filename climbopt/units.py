@@ -311,6 +311,9 @@ def _unit_factors(text: str) -> list[tuple[str, int]]:
     unit name or one parenthesised group of names (no nesting), optionally raised to a whole
     power with ``^`` or ``**``; a leading ``1`` stands for a numerator of one (``1/rad``).
     Division applies to the next factor only (``a/b/c`` is a b^-1 c^-1).
+
+    One piece over 60 lines: a single pass over the tokens whose branches share its state (the
+    sign, the open group, the factors a power applies to); split, they would pass it around.
     """
     toks = _tokens(text)
     factors: list[tuple[str, int]] = []

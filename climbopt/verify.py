@@ -139,19 +139,8 @@ def resimulate(trajectory, scenario, model=None) -> Verification:
     worst = max(ratio, key=ratio.get) if ratio else ""
     limits_ok = all(v <= 1.0 for v in ratio.values())
     ok = not sim.failure and miss_rel <= FINAL_MISS_TOLERANCE and limits_ok
-    if sim.failure:
-        message = sim.failure
-    else:
-        worst_words = (f"{env.row(worst).words} {excess[worst]:.2e}, tolerance "
-                       f"{env.row(worst).tolerance:.0e}" if worst and excess[worst] > 0
-                       else "none")
-        message = (f"final miss {miss_e:.3g} m of energy height ({miss_rel:.2e} of "
-                   f"{he_f:.0f} m; tolerance {FINAL_MISS_TOLERANCE:.0e}); largest limit "
-                   f"excess: {worst_words}")
-        if sim.departure_t is not None:
-            message += (f"; the simulated path first leaves the trajectory by more than "
-                        f"{FINAL_MISS_TOLERANCE:.0e} of the final energy height near "
-                        f"t = {sim.departure_t:.1f} s")
+    message = sim.failure or _verification_message(sim, env, excess, worst, miss_e, miss_rel,
+                                                   he_f)
     return Verification(
         ok=bool(ok), message=message, final_state_miss=miss,
         simulated_final_state=StateValues(*(float(x) for x in sim.ys[-1])),
@@ -161,6 +150,24 @@ def resimulate(trajectory, scenario, model=None) -> Verification:
         worst_limit=worst if worst and excess[worst] > 0 else "",
         final_miss_tolerance=FINAL_MISS_TOLERANCE, limit_tolerance=PATH_VIOLATION_TOLERANCE,
         steps=sim.steps)
+
+
+def _verification_message(sim, env, excess: dict, worst: str, miss_e: float, miss_rel: float,
+                          he_f: float) -> str:
+    """The verdict of a finished re-simulation in words: the final miss [m of energy height]
+    against its tolerance, the largest limit excess, and where the simulated path first left
+    the trajectory."""
+    worst_words = (f"{env.row(worst).words} {excess[worst]:.2e}, tolerance "
+                   f"{env.row(worst).tolerance:.0e}" if worst and excess[worst] > 0
+                   else "none")
+    message = (f"final miss {miss_e:.3g} m of energy height ({miss_rel:.2e} of "
+               f"{he_f:.0f} m; tolerance {FINAL_MISS_TOLERANCE:.0e}); largest limit "
+               f"excess: {worst_words}")
+    if sim.departure_t is not None:
+        message += (f"; the simulated path first leaves the trajectory by more than "
+                    f"{FINAL_MISS_TOLERANCE:.0e} of the final energy height near "
+                    f"t = {sim.departure_t:.1f} s")
+    return message
 
 
 _STATE_KEYS = ("altitude_m", "tas_m_s", "flight_path_angle_rad", "mass_kg", "distance_m")
