@@ -263,8 +263,12 @@ def _stoppable(out: Path):
 @click.option("--quiet", is_flag=True, help="No progress bars and no list of files.")
 @click.option("--json", "as_json", is_flag=True,
               help="Print the summary as JSON on stdout (and nothing else).")
+@click.option("--no-schedules", "no_schedules", is_flag=True,
+              help="Skip the flown schedules (the best-schedule search for each objective and "
+                   "the scenario's own [[schedules]]): the optimisation rows alone, sooner.")
 @_format_option
-def run(scenario_file, method, objective, out_dir, units, quiet, as_json, formats):
+def run(scenario_file, method, objective, out_dir, units, quiet, as_json, no_schedules,
+        formats):
     """Solve SCENARIO, print the comparison table and write the results folder.
 
     Writes report.html (the whole run in one page), summary.json, comparison.csv, report.txt, a
@@ -294,7 +298,7 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json, format
             _fail(f"{scenario_file}: the aircraft model cannot be built: {exc}", EXIT_BAD_INPUT)
         try:
             result = run_mission(scenario, model, method=method, objectives=objectives,
-                                 progress=bar.callback)
+                                 schedules=not no_schedules, progress=bar.callback)
         except InfeasibleMission as exc:
             bar.done()
             _fail(f"{scenario_file}: infeasible mission: {exc}", EXIT_INFEASIBLE)

@@ -333,3 +333,21 @@ def test_run_refuses_foreign_out_folder(tmp_path, monkeypatch):
     result = _run(["run", scenario, "--method", "energy", "--out", "."])
     assert result.exit_code == 2 and "current folder" in result.output
     assert (foreign / "thesis.tex").read_text() == "precious"
+
+
+def test_no_schedules_runs_the_optimisation_rows_alone(tmp_path):
+    """`--no-schedules` skips the best-schedule search and the scenario's own schedules: only
+    the energy-state rows remain, with the same figures as a full run's (the flown rows do not
+    change the optimisation results)."""
+    scenario = ROOT / "scenarios" / "transport_twinjet.toml"
+    full = _run(["run", scenario, "--method", "energy", "--objective", "time", "--quiet",
+                 "--out", tmp_path / "full", "--json"])
+    quick = _run(["run", scenario, "--method", "energy", "--objective", "time", "--quiet",
+                  "--out", tmp_path / "quick", "--json", "--no-schedules"])
+    assert full.exit_code == quick.exit_code == 0, quick.output
+    rows_full = json.loads(full.stdout)["results"]
+    rows_quick = json.loads(quick.stdout)["results"]
+    assert [r["method"] for r in rows_quick] == ["energy-state"]
+    assert {"best-schedule", "schedule"} <= {r["method"] for r in rows_full}
+    assert rows_quick[0]["time_s"] == rows_full[0]["time_s"]
+    assert rows_quick[0]["fuel_kg"] == rows_full[0]["fuel_kg"]
