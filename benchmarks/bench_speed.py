@@ -214,9 +214,10 @@ print(f"{statistics.median(cpu):.4f} {tr.time_s:.6f} {ok}")
 """
 
 
-def _solve_stats(tree: Path, variant: str, repeat: int, env) -> tuple[float, float, str]:
+def _solve_stats(tree: Path, variant: str, repeat: int, env,
+                 scenario: Path = INTERCEPTOR) -> tuple[float, float, str]:
     env = {**os.environ, "PYTHONPATH": str(tree), "MPLBACKEND": "Agg", **env}
-    out = subprocess.run([sys.executable, "-c", _SOLVE_SCRIPT, str(INTERCEPTOR), variant,
+    out = subprocess.run([sys.executable, "-c", _SOLVE_SCRIPT, str(scenario), variant,
                           str(repeat)], env=env, cwd=tree, capture_output=True, text=True)
     if out.returncode:
         return float("nan"), float("nan"), out.stderr[-300:]
@@ -226,12 +227,21 @@ def _solve_stats(tree: Path, variant: str, repeat: int, env) -> tuple[float, flo
 
 def section_solve(prev: Path, repeat: int, cache: Path) -> None:
     print("\n2. Interceptor minimum-time collocation, solve + check, after the first build "
-          f"(median of {max(repeat, 5)} in one process): CPU s")
+          f"(median of 5 in one process, then the median over {repeat} processes per variant, "
+          "interleaved): CPU s")
     load("before")
     env = {"CLIMBOPT_CACHE_DIR": str(cache)}
-    rows = [("previous", _solve_stats(prev, "plain", max(repeat, 5), env)),
-            ("this", _solve_stats(ROOT, "plain", max(repeat, 5), env)),
-            ("this, compiled", _solve_stats(ROOT, "compiled", max(repeat, 5), env))]
+    work = Path(tempfile.mkdtemp(prefix="bench-solve-"))
+    variants = [("previous", prev, "plain", previous_scenario(INTERCEPTOR, work)),
+                ("this", ROOT, "plain", INTERCEPTOR), ("this, compiled", ROOT, "compiled",
+                                                       INTERCEPTOR)]
+    samples = {name: [] for name, *_ in variants}
+    for _ in range(repeat):
+        for name, tree, variant, scen in variants:
+            samples[name].append(_solve_stats(tree, variant, 5, env, scen))
+    shutil.rmtree(work, ignore_errors=True)
+    rows = [(name, (statistics.median(c for c, _, _ in runs), runs[0][1], runs[0][2]))
+            for name, runs in samples.items()]
     base_t = rows[0][1][1]
     for name, (cpu, t, ok) in rows:
         same = "same" if abs(t - base_t) <= 1e-4 else f"DIFFERS by {t - base_t:+.2e} s"
@@ -369,7 +379,10 @@ def main(argv=None) -> None:
     repeat = 1 if args.quick else args.repeat
     sections = {int(s) for s in args.sections.split(",")}
     prev = previous_tree()
-    print(f"climbopt speed: this tree ({ROOT}) against the previous release {PREVIOUS} ({prev}); "
+    head = subprocess.run(["git", "-C", str(ROOT), "rev-parse", "--short", "HEAD"],
+                          capture_output=True, text=True).stdout.strip() or "?"
+    print(f"climbopt speed: this tree (commit {head} plus any uncommitted changes) against the "
+          f"previous release {PREVIOUS} (extracted to the temporary folder); "
           f"Python {sys.version.split()[0]}; {time.strftime('%Y-%m-%d %H:%M')}")
     cache = Path(tempfile.mkdtemp(prefix="bench-cache-"))
     try:

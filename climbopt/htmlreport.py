@@ -184,11 +184,23 @@ def _glance(records, flown, units) -> str:
             continue
         disp = report.display_record(rec, units)
         to_cp = disp.get(f"fuel to common point [{m_u}]")
+        if to_cp is not None and flag == "best_fuel":
+            # the fuel ranking uses the fuel to the common point: that figure comes first
+            boxes.append(
+                f'<div><span class="small">least fuel to the common point: '
+                f'{esc(rec["label"])}</span><br><span class="big">{to_cp:,.0f}</span>&nbsp;'
+                f'{esc(m_u)} &nbsp; <span class="big">'
+                f'{esc(format_min_s(disp["time to common point [s]"]))}</span> min:s<br>'
+                f'climb: {disp[f"fuel [{m_u}]"]:,.0f}&nbsp;{esc(m_u)}, '
+                f'{esc(format_min_s(rec["time_s"]))} min:s, '
+                f'{disp[f"distance [{d_u}]"]:,.1f}&nbsp;{esc(d_u)}</div>')
+            continue
         cp = "" if to_cp is None else f"<br>{to_cp:,.0f}&nbsp;{esc(m_u)} to the common point"
+        fuel = disp[f"fuel [{m_u}]"]
         boxes.append(
             f'<div><span class="small">{esc(words)}: {esc(rec["label"])}</span><br>'
             f'<span class="big">{esc(format_min_s(rec["time_s"]))}</span> min:s '
-            f'({rec["time_s"]:,.1f} s) &nbsp; <span class="big">{disp[f"fuel [{m_u}]"]:,.0f}'
+            f'({rec["time_s"]:,.1f} s) &nbsp; <span class="big">{fuel:,.0f}'
             f'</span>&nbsp;{esc(m_u)} &nbsp; {disp[f"distance [{d_u}]"]:,.1f}&nbsp;{esc(d_u)}'
             f'{cp}</div>')
     for rec in flown:

@@ -115,6 +115,11 @@ def test_html_report_holds_conditions_comparison_schedules_and_figures(transport
     assert page.svgs == len({Path(f).stem for f in doc["figures"]}) == 4
     assert "Figure 4." in words and "Figure 5." not in words
     assert "the procedure costs" not in words and "extra time" in page.headers
+    # the fuel box leads with the figure the fuel ranking uses: fuel to the common point
+    best_fuel = next(r for r in doc["results"] if r.get("best_fuel"))
+    cp_lb = best_fuel["fuel_to_common_point_kg"] / 0.45359237   # lb, exact (NIST SP 811)
+    assert f"least fuel to the common point: {best_fuel['label']}" in words
+    assert f"{cp_lb:,.0f}" in words
 
 
 def _chromium():
