@@ -63,13 +63,18 @@ class CommonPoint:
 
     ``distance_m`` [m]; ``time_s`` [s] and ``fuel_kg`` [kg] per result (aligned with
     ``RunResult.results``; None for a row without a trajectory or that cannot cruise there);
-    ``notes`` say why a row has none.
+    ``notes`` say why a row has none. ``unusable``: why the comparison cannot use the point
+    ("" when it can): a ranked result cannot hold level flight at the target state (an
+    interceptor whose target lies above its steady ceiling), so the rows would be compared
+    at a point some of them cannot reach; the fuel ranking then uses the fuel to the end of
+    each result.
     """
 
     distance_m: float
     time_s: tuple[float | None, ...]
     fuel_kg: tuple[float | None, ...]
     notes: tuple[str, ...] = ()
+    unusable: str = ""
 
 
 @dataclass(frozen=True)
@@ -279,7 +284,7 @@ def common_point(results, scenario, model) -> CommonPoint | None:
         return None
     far = max(ranked)
     target = scenario.mission.target
-    times, fuels, notes = [], [], []
+    times, fuels, notes, unusable = [], [], [], ""
     for r in results:
         if not isinstance(r, Trajectory):
             times.append(None)
@@ -292,10 +297,12 @@ def common_point(results, scenario, model) -> CommonPoint | None:
             times.append(None)
             fuels.append(None)
             notes.append(f"{r.label}: no level flight to the common point: {exc}")
+            if r.ranked and not unusable:
+                unusable = f"level flight at the target state is not possible ({exc})"
             continue
         times.append(r.time_s + leg.time_s)
         fuels.append(r.fuel_kg + leg.fuel_kg)
-    return CommonPoint(far, tuple(times), tuple(fuels), tuple(notes))
+    return CommonPoint(far, tuple(times), tuple(fuels), tuple(notes), unusable)
 
 
 def solve_case(scenario, method: str, objective: str, *, model=None,

@@ -356,6 +356,9 @@ class _Flight:
             if h >= h_t:
                 break
             law, value, ceiling, cap = self.band(h)
+            if law == "mach" and self.crossover_m is None and self.pieces:
+                # the Mach was reached in a speed change, not in a CAS hold: the crossover
+                self.crossover_m = float(h)
             if abs(v - self.law_tas(law, value, h)) > SPEED_TOLERANCE_M_S:
                 self.change(law, value, ceiling, cap)
             else:
@@ -830,6 +833,8 @@ def _notes(fl: _Flight, cols: dict, ranges, scenario) -> tuple[str, ...]:
 
 #: Nelder-Mead stopping tolerances of the best-schedule search, in its scaled variables (knots
 #: and hundredths of Mach: 0.25 kt, Mach 0.0025) and relative to the objective.
+#: Penalty of a best schedule against its reference above which it is called a poor fit [-].
+POOR_FIT_PENALTY = 0.10
 SEARCH_XTOL = 0.25
 SEARCH_FTOL = 1.0e-5
 #: Penalty of an unflyable candidate: (PENALTY + excess) times the objective's scale.
@@ -1041,7 +1046,8 @@ def best_schedule_spec(scenario, model, objective, *, reference=None,
     x, n_round = _rounded(search, res.x)
     spec = search.spec(x)
     fl, _, _ = _fly(scenario, model, spec, env, dense=False, rtol=SEARCH_RTOL)
-    if spec.mach is not None and fl.crossover_m is None:
+    if spec.mach is not None and fl.crossover_m is None and \
+            not any(piece.law == "mach" for piece in fl.pieces):
         spec = replace(spec, mach=None)  # crossover above the target: CAS all the way
     spec = replace(spec, name=_schedule_name(spec))
     traj = fly_schedule(scenario, model, spec, envelope=env)
@@ -1061,6 +1067,12 @@ def best_schedule_spec(scenario, model, objective, *, reference=None,
     if reference is not None:
         comparison = _compare(traj, reference, objective, w)
         notes.append(_comparison_words(comparison))
+        if comparison.objective_difference_relative > POOR_FIT_PENALTY:
+            notes.append(
+                f"no constant CAS/Mach schedule comes near the optimum for this climb (penalty "
+                f"{100 * comparison.objective_difference_relative:+.0f} %): the optimum exchanges "
+                "speed and altitude (dives, zooms) in ways a constant schedule cannot fly; fly "
+                "the optimum's own schedule table instead")
     traj = traj.with_(method=Method.BEST_SCHEDULE, objective=objective,
                       iterations=search.flights + 1, wall_s=_time.perf_counter() - t_wall,
                       status=f"best schedule: {search.flights + 1} flights; {traj.status}",

@@ -141,7 +141,7 @@ def comparison(results: list[Result], common_point=None) -> list[dict]:
         rec["label"] = r.label
         records.append(rec)
     fuel_key = "fuel_kg"
-    if common_point is not None:
+    if common_point is not None and not common_point.unusable:
         fuel_key = "fuel_to_common_point_kg"
         for rec, t, f in zip(records, common_point.time_s, common_point.fuel_kg, strict=True):
             rec.update(common_point_distance_m=common_point.distance_m,
@@ -595,6 +595,9 @@ def format_common_point(point, units: str = "si") -> str:
     """Which common downrange point the comparison used, in words ('' without one)."""
     if point is None:
         return ""
+    if point.unusable:
+        return (f"no common downrange point: {point.unusable}; the results are compared at "
+                "their own ends and the fuel ranking uses the fuel to the end of each")
     d, du = to_display("distance", point.distance_m, units)
     text = (f"common point: {d:,.1f} {du} from the start (the farthest distance at which a "
             "ranked result reaches the target state); results that get there earlier continue in "

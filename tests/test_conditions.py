@@ -271,3 +271,27 @@ def test_solver_compile_option_is_read(tmp_path):
     bad = _scenario_text(tmp_path, "intervals = 100", "intervals = 100\ncompile = 1")
     result = CliRunner().invoke(cli, ["check", str(bad)])
     assert result.exit_code == 2 and "solver.compile" in result.output
+
+
+def test_no_common_point_when_the_target_state_cannot_be_held():
+    """The published interceptor's target (19,995 m, Mach 1.0) lies above its steady ceiling:
+    the minimum-time path ends in a zoom climb (Bryson, Desai & Hoffman, J. Aircraft 6(6),
+    1969, fig. 2), so thrust is below drag in level flight there. The results end at different
+    distances, but comparing them at a common point would need level flight nobody can hold:
+    the comparison says so, adds no common-point figures and ranks fuel to each result's end."""
+    from climbopt import report
+
+    scenario = load_scenario(ROOT / "tests" / "data" / "interceptor_1969.toml")
+    model = build_model(scenario)
+    run = run_mission(scenario, model, method="energy", objectives=("time", "fuel"),
+                      schedules=False)
+    cp = run.common_point
+    assert cp is not None and "level flight at the target state is not possible" in cp.unusable
+    assert "more than the" in cp.unusable and "N available" in cp.unusable
+    records = report.comparison(list(run.results), cp)
+    assert all(rec["ranked"] for rec in records)
+    assert all("fuel_to_common_point_kg" not in rec for rec in records)
+    fuel = {rec["objective"]: rec for rec in records}
+    assert fuel["fuel"]["best_fuel"] and fuel["fuel"]["fuel_kg"] < fuel["time"]["fuel_kg"]
+    text = report.format_common_point(cp)
+    assert text.startswith("no common downrange point: level flight at the target state")
