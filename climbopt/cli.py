@@ -485,6 +485,10 @@ def _problems_text(exc) -> str:
 @click.option("--table", "office", is_flag=True,
               help="Also write the office tables: time, fuel and distance to climb by mass x "
                    "temperature deviation x target altitude (climb_table.csv, .md, .html).")
+@click.option("--schedules", "fly_schedules", is_flag=True,
+              help="Also fly each case's best constant CAS/Mach schedule (about half a second "
+                   "a case): its speeds, time, fuel and penalty go to the table, and its speeds "
+                   "to the office tables.")
 @click.option("--units", **UNITS_OPTION)
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 @click.option("--compile/--no-compile", "compile_", default=None,
@@ -492,8 +496,8 @@ def _problems_text(exc) -> str:
                    "disk) and use it in every case [default: solver.compile of the scenario, "
                    "else only when already cached or at least 16 cases are to be solved].")
 def sweep_command(scenario_file, vary, zip_values, method, objective, workers, serial, cluster,
-                  out_dir, parquet, max_cases, retry_failed, no_plots, office, units, quiet,
-                  compile_):
+                  out_dir, parquet, max_cases, retry_failed, no_plots, office, fly_schedules,
+                  units, quiet, compile_):
     """Solve SCENARIO for every combination of the --vary values (a trade study).
 
     Rows stream to the table as cases finish; a re-run of the same command skips the cases
@@ -515,7 +519,7 @@ def sweep_command(scenario_file, vary, zip_values, method, objective, workers, s
     try:
         variations = [sw.parse_variation(text, scenario) for text in vary]
         plan = sw.plan_sweep(scenario, variations, zip_values=zip_values, method=method,
-                             objective=objective)
+                             objective=objective, schedules=fly_schedules)
         sw.check_optional_packages(parquet=parquet, cluster=bool(cluster))
     except sw.SweepError as exc:
         _fail(str(exc), EXIT_BAD_INPUT)

@@ -10,8 +10,10 @@ block of tables per value combination. Only cases with the sweep's main objectiv
 quantity, one column per temperature deviation, rounded as the docs state), ``climb_table.md``
 and ``climb_table.html`` (a page in the style of ``report.html``), all in the chosen units.
 
-A sweep solves optima only (energy-state or collocation, one objective): it flies no schedule,
-so the tables give no schedule speeds, and say so. Nothing here computes physics.
+A sweep solves optima (energy-state or collocation, one objective); with ``--schedules`` it
+also flies each case's best constant CAS/Mach schedule, and the tables then give its speeds
+for every cell (restriction CAS / climb CAS [kt] / Mach, as crews write them). Without, they
+say that no schedule was flown. Nothing here computes physics.
 """
 
 from __future__ import annotations
@@ -38,7 +40,12 @@ QUANTITIES = (("time_s", "time", "time"), ("fuel_kg", "fuel", "mass"),
 #: What the tables say about schedule speeds.
 NO_SCHEDULES = ("This sweep solved optima only ({method}, minimum {objective}); it flew no "
                 "climb schedule, so no schedule speeds are given. Fly a case with climbopt run "
-                "for its crew schedule.")
+                "(or sweep with --schedules) for its crew schedule.")
+SCHEDULES = ("Schedule: for each case the best constant CAS/Mach schedule for minimum "
+             "{objective} (restriction CAS / climb CAS [kt] / Mach, rounded as flown), flown "
+             "through the model; the times, fuel and distances in the tables are the {method} "
+             "optimum's, the schedule's own figures and its penalty are in sweep.csv.")
+SCHEDULE_WORDS = "schedule (restriction CAS / climb CAS [kt] / Mach)"
 
 
 @dataclass(frozen=True)
@@ -49,7 +56,8 @@ class OfficeTable:
     inputs (a single empty tuple when there are none). ``values[key]``: array of shape
     (groups, altitudes, masses, temperature deviations) for each key of :data:`QUANTITIES`,
     NaN where the case failed or is missing; ``status``: the same shape, the case status ("ok",
-    "infeasible", ..., or "missing").
+    "infeasible", ..., or "missing"); ``schedules``: the same shape, each case's best schedule
+    name ("" where none), or None when the sweep flew no schedules.
     """
 
     scenario_name: str
@@ -61,6 +69,7 @@ class OfficeTable:
     groups: tuple[tuple[tuple[str, float], ...], ...]
     values: dict
     status: np.ndarray
+    schedules: np.ndarray | None = None  # best schedule names, same shape (None: not flown)
 
     @property
     def shape(self) -> tuple[int, int, int, int]:
@@ -90,6 +99,7 @@ def office_table(plan, rows: list[dict]) -> OfficeTable:
     shape = (len(groups), *(len(a) for a in axes))
     values = {key: np.full(shape, np.nan) for key, _, _ in QUANTITIES}
     status = np.full(shape, "missing", dtype=object)
+    schedules = np.full(shape, "", dtype=object) if getattr(plan, "schedules", False) else None
     by_key = {r["key"]: r for r in rows}
     for case in plan.cases:
         if case.objective != plan.objective or case.key not in by_key:
@@ -105,8 +115,10 @@ def office_table(plan, rows: list[dict]) -> OfficeTable:
         if row["status"] == "ok":
             for key, _, _ in QUANTITIES:
                 values[key][at] = row[key]
+            if schedules is not None:
+                schedules[at] = row.get("schedule", "")
     return OfficeTable(sc.name, METHODS[plan.method], plan.objective, *map(tuple, axes),
-                       tuple(groups), values, status)
+                       tuple(groups), values, status, schedules)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -183,8 +195,9 @@ def _conditions_lines(plan, table: OfficeTable, units: str, html: bool = False) 
 
     base = [] if html else [format_conditions(conditions_of(plan.scenario), units)
                             + " (base scenario)"]
+    words = NO_SCHEDULES if table.schedules is None else SCHEDULES
     return base + [f"varied: {_varied_text(table, units)}",
-                   NO_SCHEDULES.format(method=plan_method(plan), objective=plan.objective)]
+                   words.format(method=plan_method(plan), objective=plan.objective)]
 
 
 def plan_method(plan) -> str:
@@ -223,6 +236,8 @@ def csv_rows(table: OfficeTable, plan, units: str) -> tuple[list[str], list[list
                         shown = [rounded(kind, float(v), units) if math.isfinite(v) else None
                                  for v in cells]
                     rows.append(lead + [words] + shown)
+                if table.schedules is not None:
+                    rows.append(lead + [SCHEDULE_WORDS] + list(table.schedules[g, i, j, :]))
     return header, rows
 
 
@@ -250,6 +265,15 @@ def markdown(table: OfficeTable, plan, units: str) -> str:
                     cells.append(" / ".join(nums) if nums else str(table.status[g, i, j, k]))
                 out.append(f"| {_mass_text(mass, units)} | " + " | ".join(cells) + " |")
             out.append("")
+            if table.schedules is not None:
+                out += [f"Best constant {SCHEDULE_WORDS}:", "",
+                        "| mass | " + " | ".join(isa_text(d) for d in
+                                               table.temperature_offsets_k) + " |",
+                        "|---" * (1 + len(table.temperature_offsets_k)) + "|"]
+                out += [f"| {_mass_text(mass, units)} | "
+                        + " | ".join(str(x) or "-" for x in table.schedules[g, i, j, :]) + " |"
+                        for j, mass in enumerate(table.masses_kg)]
+                out.append("")
     out += [f"> **Caution.** {CAUTION}", ""]
     return "\n".join(out)
 
@@ -273,6 +297,13 @@ def _html_block(table: OfficeTable, units: str, g: int, i: int) -> str:
             cells.append("".join(f'<td class="num">{esc(x)}</td>' for x in nums) if nums else
                          f'<td colspan="3" class="flag">{esc(table.status[g, i, j, k])}</td>')
         body.append(f"<tr><th>{esc(_mass_text(mass, units))}</th>{''.join(cells)}</tr>")
+    if table.schedules is not None:
+        body.append(f'<tr><th colspan="{1 + 3 * n}" class="grp">best constant '
+                    f"{esc(SCHEDULE_WORDS)}</th></tr>")
+        for j, mass in enumerate(table.masses_kg):
+            cells = "".join(f'<td colspan="3" class="num">{esc(str(x) or "-")}</td>'
+                            for x in table.schedules[g, i, j, :])
+            body.append(f"<tr><th>{esc(_mass_text(mass, units))}</th>{cells}</tr>")
     return (f'<table class="office"><thead><tr>{head1}</tr><tr>{head2}</tr></thead>'
             f"<tbody>{''.join(body)}</tbody></table>")
 

@@ -78,8 +78,16 @@ METHODS = {"energy": "energy-state", "collocation": "collocation"}
 #: Result columns (after the case, key, method, objective and input columns), SI.
 RESULT_COLUMNS = ("status", "time_s", "fuel_kg", "distance_m", "final_mass_kg", "wall_s", "error")
 
+#: Columns of the best constant schedule of each case (``plan_sweep(..., schedules=True)``, SI;
+#: ``schedule`` is its name as crews write it, e.g. "250/272/M0.72" in knots; the penalty is in
+#: percent of the case's optimum in the sweep's objective).
+SCHEDULE_COLUMNS = ("schedule", "schedule_cas_below_restriction_m_s", "schedule_cas_m_s",
+                    "schedule_mach", "schedule_time_s", "schedule_fuel_kg",
+                    "schedule_distance_m", "schedule_penalty_pct")
+
 #: Columns holding numbers (besides the input columns); "case" is an integer.
-_NUMERIC_RESULTS = ("time_s", "fuel_kg", "distance_m", "final_mass_kg", "wall_s")
+_NUMERIC_RESULTS = ("time_s", "fuel_kg", "distance_m", "final_mass_kg", "wall_s") + \
+    SCHEDULE_COLUMNS[1:]
 
 #: Version of the case-key recipe; bump when the recipe changes (old tables are then recomputed).
 _KEY_VERSION = 1
@@ -312,6 +320,7 @@ class Case:
     method: str  # "energy" | "collocation"
     objective: str  # "time" | "fuel" | "weighted"
     values: tuple[tuple[str, float], ...]
+    schedules: bool = False  # also fly the case's best constant schedule
 
 
 @dataclass(frozen=True)
@@ -324,6 +333,7 @@ class SweepPlan:
     objective: str
     zipped: bool
     cases: tuple[Case, ...]
+    schedules: bool = False
 
     @property
     def parameters(self) -> list[Parameter]:
@@ -334,7 +344,7 @@ class SweepPlan:
     def header(self) -> list[str]:
         """Table columns, in order."""
         return (["case", "key", "method", "objective"] + [p.column for p in self.parameters]
-                + list(RESULT_COLUMNS))
+                + list(RESULT_COLUMNS) + (list(SCHEDULE_COLUMNS) if self.schedules else []))
 
 
 def scenario_fingerprint(scenario: Scenario) -> str:
@@ -356,7 +366,8 @@ def case_key(fingerprint: str, method: str, objective: str,
 
 
 def plan_sweep(scenario: Scenario, variations, *, zip_values: bool = False,
-               method: str = "energy", objective: str | None = None) -> SweepPlan:
+               method: str = "energy", objective: str | None = None,
+               schedules: bool = False) -> SweepPlan:
     """Expand variations into cases.
 
     Parameters
@@ -374,6 +385,9 @@ def plan_sweep(scenario: Scenario, variations, *, zip_values: bool = False,
         "time", "fuel" or "weighted"; default "weighted" when the cost weight is varied, else
         "time". Varying the cost weight with another objective is an error (it would change
         nothing).
+    schedules : bool
+        Also fly each case's best constant CAS/Mach schedule for its objective
+        (:func:`climbopt.procedure.best_schedule`; columns :data:`SCHEDULE_COLUMNS`).
     """
     variations = tuple(variations)
     objective = _plan_objective(variations, method, objective)
@@ -386,7 +400,10 @@ def plan_sweep(scenario: Scenario, variations, *, zip_values: bool = False,
     else:
         combos = list(itertools.product(*(v.values for v in variations)))
     cases = _plan_cases(scenario, [v.name for v in variations], combos, method, objective)
-    return SweepPlan(scenario, variations, method, objective, bool(zip_values), tuple(cases))
+    if schedules:
+        cases = [replace(c, schedules=True) for c in cases]
+    return SweepPlan(scenario, variations, method, objective, bool(zip_values), tuple(cases),
+                     bool(schedules))
 
 
 def _plan_objective(variations: tuple, method: str, objective: str | None) -> str:
@@ -499,23 +516,48 @@ def run_case(scenario: Scenario, case: Case, *, compile: bool | None = None) -> 
     """Solve one case; never raises for a failing case (the status and error text say why).
 
     ``compile``: collocation from compiled C (see :func:`run_sweep`). Returns the result
-    columns (:data:`RESULT_COLUMNS`) as a dict of SI floats and strings.
+    columns (:data:`RESULT_COLUMNS`, and :data:`SCHEDULE_COLUMNS` when the case flies its
+    schedule) as a dict of SI floats and strings.
     """
     t0 = time.perf_counter()
     out = {"status": "ok", "time_s": math.nan, "fuel_kg": math.nan, "distance_m": math.nan,
            "final_mass_kg": math.nan, "error": ""}
     try:
-        traj = _solve(apply_case(scenario, case.values), case.method, case.objective, compile)
+        case_scenario = apply_case(scenario, case.values)
+        traj = _solve(case_scenario, case.method, case.objective, compile)
         out.update(time_s=traj.time_s, fuel_kg=traj.fuel_kg, distance_m=traj.distance_m,
                    final_mass_kg=traj.final_mass_kg)
         if not traj.ranked:
             out.update(status="solver-failure",
                        error="; ".join(traj.issues) or f"not converged: {traj.status}")
+        elif case.schedules:
+            out.update(_schedule_columns(case_scenario, case.objective, traj))
     except Exception as exc:  # a failing case is a result, not a crash
         status = _classify(exc)
         out.update(status=status, error=_error_text(exc, status))
     out["wall_s"] = time.perf_counter() - t0
     return out
+
+
+def _schedule_columns(scenario: Scenario, objective: str, optimum) -> dict:
+    """The best constant schedule of a case, measured against its optimum: the columns of
+    :data:`SCHEDULE_COLUMNS` ("schedule" says why when none can be flown; the optimum's row
+    stays "ok")."""
+    from climbopt.aircraft import build_model
+    from climbopt.procedure import ScheduleNotFlyable, best_schedule_spec
+
+    try:
+        spec, flown = best_schedule_spec(scenario, build_model(scenario), objective,
+                                         reference=optimum)
+    except ScheduleNotFlyable as exc:
+        return {"schedule": " ".join(f"none flyable: {exc}".split())[:300]}
+    penalty = flown.reference.objective_difference_relative if flown.reference else math.nan
+    numbers = {"schedule_cas_below_restriction_m_s": spec.cas_below_restriction_m_s,
+               "schedule_cas_m_s": spec.cas_m_s, "schedule_mach": spec.mach,
+               "schedule_time_s": flown.time_s, "schedule_fuel_kg": flown.fuel_kg,
+               "schedule_distance_m": flown.distance_m, "schedule_penalty_pct": 100.0 * penalty}
+    return {"schedule": spec.name,
+            **{k: math.nan if v is None else float(v) for k, v in numbers.items()}}
 
 
 # ============================================================================================
@@ -568,7 +610,7 @@ def read_table(path) -> list[dict]:
     header, rows = _read_rows(Path(path))
     if header is None:
         return []
-    text = {"key", "method", "objective", "status", "error"}
+    text = {"key", "method", "objective", "status", "error", "schedule"}
     out = []
     for r in rows:
         d = {}
@@ -597,7 +639,7 @@ def write_parquet(table_path, parquet_path) -> Path:
         vals = [r[k] for r in rows]
         if k == "case":
             cols[k] = pa.array(vals, pa.int64())
-        elif k in ("key", "method", "objective", "status", "error"):
+        elif k in ("key", "method", "objective", "status", "error", "schedule"):
             cols[k] = pa.array(vals, pa.string())
         else:
             cols[k] = pa.array(vals, pa.float64())
@@ -939,7 +981,7 @@ def _recorder(plan: SweepPlan, fh, result: SweepResult, fresh: dict, on_case):
         for p in params:
             typed[p.column] = values.get(p.name, math.nan)
         typed.update({k: out.get(k, math.nan if k in _NUMERIC_RESULTS else "")
-                      for k in RESULT_COLUMNS})
+                      for k in RESULT_COLUMNS + (SCHEDULE_COLUMNS if plan.schedules else ())})
         cells = [_cell(typed[k]) for k in header]
         writer.writerow(cells)
         fh.flush()

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 import shutil
 import subprocess
 import sys
@@ -397,3 +398,41 @@ def test_conditions_line_states_wind_rating_schedule_and_buffet_margin():
     column = dataclasses.replace(c, wind=WindProfile((-10 * KT, -40 * KT), (0.0, 6096.0)))
     assert "wind (negative: headwind) -10 kt at 0 ft, -40 kt at 20,000 ft" in format_conditions(
         column, "us")
+
+
+def test_sweep_schedules_in_the_table_and_office_tables(tmp_path):
+    """`sweep --schedules` flies each case's best constant schedule: sweep.csv holds its name,
+    speeds, figures and penalty, equal to flying it directly; the office tables give the speeds
+    per cell (restriction CAS / climb CAS [kt] / Mach) instead of saying none were flown."""
+    from climbopt import sweep as sw
+    from climbopt.aircraft import build_model
+    from climbopt.procedure import best_schedule_spec
+    from climbopt.rutowski import solve_energy_state
+
+    result = _run(["sweep", TURBOPROP, "--vary", "mass=14,16 t", "--serial", "--no-plots",
+                   "--schedules", "--table", "--units", "us", "--out", tmp_path / "s"])
+    assert result.exit_code == 0, result.output
+    rows = sw.read_table(tmp_path / "s" / "sweep.csv")
+    assert len(rows) == 2 and all(r["status"] == "ok" for r in rows)
+    scenario = load_scenario(TURBOPROP)
+    header, body = _csv(tmp_path / "s" / "climb_table.csv")
+    for r in rows:
+        case = scenario.replace(mass=f"{r['mass_kg']} kg")
+        model = build_model(case)
+        optimum = solve_energy_state(case, "time", model=model)
+        spec, flown = best_schedule_spec(case, model, "time", reference=optimum)
+        assert r["schedule"] == spec.name
+        assert re.fullmatch(r"(\d+/)?\d+(/M\d\.\d\d)?", spec.name)
+        assert r["schedule_cas_m_s"] == pytest.approx(spec.cas_m_s, rel=1e-12)
+        assert r["schedule_time_s"] == pytest.approx(flown.time_s, rel=1e-9)
+        # the energy-state optimum is itself approximate (cos gamma = 1, instant speed changes):
+        # a flown schedule may come out a little faster, never by much
+        assert r["schedule_time_s"] >= r["time_s"] * (1 - 0.01)
+        assert r["schedule_penalty_pct"] == pytest.approx(
+            100 * (flown.time_s - optimum.time_s) / optimum.time_s, rel=1e-6)
+        line = next(b for b in body if b[3].startswith("schedule")
+                    and float(b[2]) == round(r["mass_kg"] / LB, 1))
+        assert line[4] == spec.name
+    md = (tmp_path / "s" / "climb_table.md").read_text()
+    assert "flew no climb schedule" not in md and "best constant CAS/Mach schedule" in md
+    assert all(r["schedule"] in md for r in rows)
