@@ -201,7 +201,7 @@ from climbopt.verify import resimulate
 scenario = load_scenario(sys.argv[1]); model = build_model(scenario)
 guess = solve_energy_state(scenario, "time", model=model)
 new = hasattr(collocation, "POINT_PARAMETERS")
-opts = {"compile": True} if sys.argv[2] == "compiled" else {}
+opts = {"compile": True} if sys.argv[2] == "compiled" else ({"compile": False} if new else {})
 def solve_and_check():
     tr = collocation.solve_collocation(scenario, "time", model=model, guess=guess, **opts)
     return tr, (resimulate(tr, scenario, model) if new else tr.verification)
