@@ -188,23 +188,23 @@ def _law_words(law: str, value: float) -> str:
 _FUNCTIONS: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
 
 
-def _model_function(model, rating: str, law: str):
+def _model_function(model, law: str):
     """(CasADi Function, fast scalar call) of the quasi-steady point mass for one speed law.
 
     Inputs (h [m], u, m [kg], throttle [-], a [-]); ``u`` is the law's value (CAS [m/s] for
     "cas", Mach for "mach") or the TAS [m/s] for "free" (the speed is a state); ``a`` is dh/dt
     over Ps for "free" (ignored otherwise: the climb correction factor of the law is used).
-    Output rows: see ``_V`` ... ``_ALPHA``. Built once per model, rating and law.
+    Output rows: see ``_V`` ... ``_ALPHA``. Built once per model and law; the engine runs at
+    the mission's rating or rating schedule (:meth:`climbopt.aircraft.AircraftModel.engine`).
     """
     per_model = _FUNCTIONS.setdefault(model, {})
-    key = (rating, law)
-    if key not in per_model:
-        fn = _build_function(model, rating, law, model.thrust_alignment == "body")
-        per_model[key] = (fn, fast_scalar_function(fn))
-    return per_model[key]
+    if law not in per_model:
+        fn = _build_function(model, law, model.thrust_alignment == "body")
+        per_model[law] = (fn, fast_scalar_function(fn))
+    return per_model[law]
 
 
-def _build_function(model, rating: str, law: str, body: bool):
+def _build_function(model, law: str, body: bool):
     """The CasADi graph of :func:`_model_function` (equations: module docstring)."""
     import casadi as ca
 
@@ -220,7 +220,7 @@ def _build_function(model, rating: str, law: str, body: bool):
     mach = v / sound
     q = 0.5 * atm.density_kg_m3 * v * v
     q_s = q * model.reference_area_m2
-    thrust, ff = model.thrust_and_fuel_flow(h, mach, thr, rating)
+    thrust, ff = model.thrust_and_fuel_flow(h, mach, thr)
     weight = m * G0
     cla = model.lift_slope_per_rad(mach) if body else None
     cos_g = ca.MX(1.0)
@@ -308,7 +308,6 @@ class _Flight:
     name: str
     model: object
     envelope: object
-    rating: str | None
     law_value: dict  # band -> (law, value): "restriction", "climb", "mach"
     restriction_m: float | None
     target: tuple  # (altitude [m], TAS [m/s])
@@ -344,7 +343,7 @@ class _Flight:
         return float(value)
 
     def memo(self, law: str) -> _Memo:
-        return _Memo(_model_function(self.model, self.rating, law)[1], self.model.fit_domain,
+        return _Memo(_model_function(self.model, law)[1], self.model.fit_domain,
                      law == "free")
 
     # -------------------------------------------------------------- the sequence
@@ -637,7 +636,7 @@ def _columns(flight: _Flight) -> tuple[dict, list]:
     m0 = flight.scale_m
     parts, ranges, start = [], [], 0
     for p in flight.pieces:
-        fn = _model_function(flight.model, flight.rating, p.law)[0]
+        fn = _model_function(flight.model, p.law)[0]
         h, v, m, x = p.y
         u = v if p.law == "free" else np.full(h.size, p.u)
         thr = np.full(h.size, p.throttle)
@@ -723,7 +722,7 @@ def _flight_for(scenario, model, spec: ScheduleSpec, envelope, *, dense: bool,
             law_value["restriction"] = ("cas", float(spec.cas_below_restriction_m_s))
     start, target = mission.start, mission.target
     fl = _Flight(name=name, model=model, envelope=envelope,
-                 rating=None, law_value=law_value,
+                 law_value=law_value,
                  restriction_m=h_r, target=(float(target.altitude_m), float(target.tas_m_s)),
                  share=share, fuel_capacity_kg=scenario.aircraft.fuel_capacity_kg, dense=dense,
                  rtol=rtol)
@@ -928,7 +927,7 @@ def _mach_range(envelope, model, altitude_m, mass_kg) -> tuple[float, float] | N
     return (float(mach[ok][0]), float(mach[ok][-1])) if ok.any() else None
 
 
-def _best_cas(model, rating, cost_rates, altitudes, mass_kg, lo_kt, hi_kt) -> float:
+def _best_cas(model, cost_rates, altitudes, mass_kg, lo_kt, hi_kt) -> float:
     """Energy-state start speed: the CAS [kt] in [lo, hi] that maximises Ps over the
     objective's cost rate (1 / s for time, fuel flow for fuel; Rutowski 1954) at 1 g and full
     rating, averaged over ``altitudes`` (no solver: a scan of the model)."""
@@ -939,7 +938,7 @@ def _best_cas(model, rating, cost_rates, altitudes, mass_kg, lo_kt, hi_kt) -> fl
         v = np.asarray(mach_from_cas(cas * _KT, float(atm.pressure_pa)), float) * \
             float(atm.speed_of_sound_m_s)
         f = model.evaluate(np.full(v.size, h), v, mass_kg, throttle=model.throttle_max,
-                           rating=rating, check=False)
+                           check=False)
         best.append(cas[int(np.argmax(f.ps_m_s / cost_rates(f.fuel_flow_kg_s)))])
     return float(np.mean(best))
 
@@ -965,14 +964,13 @@ def _search_setup(scenario, model, objective: Objective, envelope) -> tuple[_Sea
                                  "flight envelope over the climb", limit="envelope")
     rates = {Objective.TIME: lambda ff: 1.0, Objective.FUEL: lambda ff: ff,
              Objective.WEIGHTED: lambda ff: ff + w}[objective]
-    rating = None  # the mission's rating, or its rating schedule
     x0 = []
     if has_r:
-        x0.append(_best_cas(model, rating, rates, np.linspace(h0, bottom, 4)[:-1], m0,
+        x0.append(_best_cas(model, rates, np.linspace(h0, bottom, 4)[:-1], m0,
                             *ranges[0]))
     levels = np.linspace(bottom, ht, 6)[1:-1]
-    x0.append(_best_cas(model, rating, rates, levels, m0, *ranges[-2]))
-    top_cas = _best_cas(model, rating, rates, [ht], m0, *ranges[-2])
+    x0.append(_best_cas(model, rates, levels, m0, *ranges[-2]))
+    top_cas = _best_cas(model, rates, [ht], m0, *ranges[-2])
     p_t = float(model.atmosphere(ht).pressure_pa)
     x0.append(100.0 * float(mach_from_cas(top_cas * _KT, p_t)))
     x0 = [min(max(x, lo), hi) for x, (lo, hi) in zip(x0, ranges)]

@@ -144,7 +144,6 @@ class _Problem:
 
     model: object
     limits: object  # climbopt.envelope.Envelope
-    rating: str | None  # None: the mission's rating (schedule) of the model
     throttle: float
     h_bottom_m: float
     h_top_m: float
@@ -181,7 +180,7 @@ def _fields(prob: _Problem, he, tas, mass):
     """Energy fields on constant-energy lines: altitude from he and speed."""
     h = he - tas**2 / (2.0 * G0)
     return energy_fields(prob.model, h, tas, mass, limits=prob.limits, load_factor=1.0,
-                         throttle=prob.throttle, rating=prob.rating)
+                         throttle=prob.throttle)
 
 
 def _value(f, cost: _Cost | None, dash: bool, model=None):
@@ -394,7 +393,7 @@ def _integrate(prob, path: _Path, mass_fn, start_mass):
     h = path.altitude
     mass_guess = mass_fn(path.he)
     f = energy_fields(prob.model, h, path.tas, mass_guess, limits=prob.limits, load_factor=1.0,
-                      throttle=prob.throttle, rating=prob.rating)
+                      throttle=prob.throttle)
     ps = np.asarray(f.ps_m_s, dtype=float)
     ff = np.asarray(f.fuel_flow_kg_s, dtype=float)
     inv = 1.0 / ps
@@ -425,8 +424,7 @@ def _dash(prob, target, mass0, distance_m):
     """Level flight at the target state over ``distance_m`` of ground (:func:`climbopt.cruise.
     cruise`); dict with arrays distance, time, mass, fuel, throttle (from the dash start)."""
     try:
-        leg = cruise(prob.model, target.altitude_m, target.tas_m_s, mass0, distance_m,
-                     rating=prob.rating)
+        leg = cruise(prob.model, target.altitude_m, target.tas_m_s, mass0, distance_m)
     except LevelFlightImpossible as exc:
         raise InfeasibleMission(f"the dash at the target state cannot be flown: {exc} (rating "
                                 f"{prob.model.rating_label})", math.nan, exc.altitude_m,
@@ -555,8 +553,8 @@ def solve_energy_state(scenario, objective: str = "time", *, model=None, progres
 
         model = build_model(scenario)
     env = envelope_for(scenario, model)
-    rating = None  # the mission's rating, or its rating schedule (AircraftModel.engine)
-    prob = _Problem(model, env, rating, float(model.throttle_max), env.altitude_min_m,
+    # every engine call uses the mission's rating or rating schedule (AircraftModel.engine)
+    prob = _Problem(model, env, float(model.throttle_max), env.altitude_min_m,
                     env.altitude_max_m, max(3, int(scenario.solver.grid_speed_points)), refine,
                     monotone=env.profile == "procedure")
     n_levels = max(2, int(scenario.solver.grid_altitude_points))
@@ -615,13 +613,13 @@ def _check_end_points(prob: _Problem, start, target, mass_kg: float) -> list:
     full rating) or below the start energy."""
     env, notes = prob.limits, []
     fs = energy_fields(prob.model, start.altitude_m, start.tas_m_s, mass_kg, limits=env,
-                       throttle=prob.throttle, rating=prob.rating)
+                       throttle=prob.throttle)
     if not bool(fs.feasible):
         broken = [n for n in env.names if n in fs.limits and not bool(fs.limits[n])]
         notes.append(f"the start point lies outside the flight envelope ({', '.join(broken)} "
                      "limit(s) not met); the energy-state path leaves it by a zoom")
     ft = energy_fields(prob.model, target.altitude_m, target.tas_m_s, mass_kg, limits=env,
-                       throttle=prob.throttle, rating=prob.rating)
+                       throttle=prob.throttle)
     if not bool(ft.feasible):
         broken = [n for n in env.names if n in ft.limits and not bool(ft.limits[n])]
         raise InfeasibleMission(
@@ -645,11 +643,9 @@ def _climb_and_dash(prob, he_levels, start_mass, cost, target, dash_m, dash_clim
     hef = he_levels[-1]
 
     def dash_info(mass_kg):
-        thr, _, _, mach = level_flight(model, target.altitude_m, target.tas_m_s, mass_kg,
-                                       prob.rating)
+        thr, _, _, mach = level_flight(model, target.altitude_m, target.tas_m_s, mass_kg)
         ff = float(model.fuel_flow_kg_s(target.altitude_m, mach,
-                                        min(max(thr, model.throttle_min), prob.throttle),
-                                        prob.rating))
+                                        min(max(thr, model.throttle_min), prob.throttle)))
         return cost.fuel_weight * ff + cost.time_weight
 
     ground = target.tas_m_s + float(_wind(model, target.altitude_m))
@@ -757,7 +753,7 @@ def _table(prob, path, integ, start, target):
     mass = integ["mass"]
     # Ps at the integrated mass (the optimum was chosen at the previous pass's mass)
     f_m = energy_fields(model, path.altitude, path.tas, mass, limits=prob.limits, load_factor=1.0,
-                        throttle=prob.throttle, rating=prob.rating)
+                        throttle=prob.throttle)
     ps = np.asarray(f_m.ps_m_s, dtype=float)
     cols = {
         "time_s": integ["time"],
@@ -806,7 +802,7 @@ def _zoom_end_row(prob, cols: dict, h_, v_, he_, gamma, idx_from: int) -> dict:
     flight-path angle [rad]): Ps there, time, mass, fuel and distance of row ``idx_from``
     (a zoom takes no time)."""
     fr = energy_fields(prob.model, h_, v_, cols["mass_kg"][idx_from], limits=prob.limits,
-                       throttle=prob.throttle, rating=prob.rating)
+                       throttle=prob.throttle)
     return {"time_s": cols["time_s"][idx_from], "altitude_m": h_, "tas_m_s": v_,
             "energy_height_m": he_, "ps_m_s": float(fr.ps_m_s),
             "flight_path_angle_rad": gamma, "mass_kg": cols["mass_kg"][idx_from],

@@ -192,10 +192,9 @@ def _simulate(trajectory, scenario, model, t, planned, he_f) -> _Simulation:
 
     cl_all = np.asarray(trajectory.controls.lift_coefficient, float)
     th_all = np.asarray(trajectory.controls.throttle, float)
-    rating = None  # the mission's rating, or its rating schedule (AircraftModel.engine)
     m0 = float(planned[3, 0])
     scales = _SCALES * np.array([1, 1, 1, m0, 1])
-    rhs_for = _rhs_factory(model, rating, model.thrust_alignment == "body")
+    rhs_for = _rhs_factory(model, model.thrust_alignment == "body")
     segments = np.split(np.arange(t.size), np.flatnonzero(np.diff(t) <= 0.0) + 1)
     y = planned[:, 0].copy()
     ys, cls = [y.copy()], [cl_all[0]]
@@ -229,12 +228,12 @@ def _simulate(trajectory, scenario, model, t, planned, he_f) -> _Simulation:
     return _Simulation(np.asarray(ys), np.asarray(cls), steps, departure, departure_t, failure)
 
 
-def _rhs_factory(model, rating, body):
+def _rhs_factory(model, body):
     """``rhs_for(t0, t1, cl_c, th_c)``: the right-hand side on one interval [t0, t1] with
     polynomial controls c0 + s (c1 + s c2), s = (t - t0) / (t1 - t0), limited to [lo, hi]."""
     from climbopt.fits import ModelDomainError
 
-    forces = fast_scalar_function(model.force_function(rating, body=body))
+    forces = fast_scalar_function(model.force_function(body=body))
     dom = model.fit_domain
     wind = getattr(model, "has_wind", False)
 
