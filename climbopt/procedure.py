@@ -355,8 +355,9 @@ class _Flight:
             if h >= h_t:
                 break
             law, value, ceiling, cap = self.band(h)
-            if law == "mach" and self.crossover_m is None and self.pieces:
-                # the Mach was reached in a speed change, not in a CAS hold: the crossover
+            if law == "mach" and self.crossover_m is None:
+                # the first altitude flown at the Mach: the crossover, whether a CAS hold ended
+                # there, a speed change reached the Mach first, or the start lies above it
                 self.crossover_m = float(h)
             if abs(v - self.law_tas(law, value, h)) > SPEED_TOLERANCE_M_S:
                 self.change(law, value, ceiling, cap)
@@ -1047,8 +1048,7 @@ def best_schedule_spec(scenario, model, objective, *, reference=None,
     x, n_round = _rounded(search, res.x)
     spec = search.spec(x)
     fl, _, _ = _fly(scenario, model, spec, env, dense=False, rtol=SEARCH_RTOL)
-    if spec.mach is not None and fl.crossover_m is None and \
-            not any(piece.law == "mach" for piece in fl.pieces):
+    if spec.mach is not None and fl.crossover_m is None:
         spec = replace(spec, mach=None)  # crossover above the target: CAS all the way
     spec = replace(spec, name=_schedule_name(spec))
     traj = fly_schedule(scenario, model, spec, envelope=env)
