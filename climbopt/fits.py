@@ -179,9 +179,9 @@ def _check_grid(grid: np.ndarray, name: str) -> None:
 
 @dataclass(frozen=True)
 class Basis2D:
-    """Cubic B-spline basis of a 2-D fit at some points: ``u`` and ``v`` are (first index,
-    weights) per axis (see :func:`_cubic_basis`); ``rows``: ``v`` holds one entry per row of a
-    2-D ``shape`` (a grid) instead of one per point."""
+    """Where some points lie on a 2-D fit's grid: ``u`` and ``v`` are (knot interval index,
+    local variable s in [0, 1]) per axis (see :meth:`_Axis.locate`); ``rows``: ``v`` holds one
+    entry per row of a 2-D ``shape`` (a grid) instead of one per point."""
 
     shape: tuple
     u: tuple
