@@ -30,7 +30,7 @@ from climbopt.fits import Fit1D, Fit2D, ModelDomainError, is_casadi, smoothstep
 from climbopt.scenario import Rating, Scenario
 
 __all__ = ["AircraftModel", "Domain", "ModelDomainError", "PointPerformance", "build_model",
-           "fast_scalar_function"]
+           "fast_scalar_function", "wind_at"]
 
 #: Half-width of the blend between two ratings of a rating schedule around each change
 #: altitude [m] (see :meth:`AircraftModel.rating_weights`).
@@ -426,6 +426,13 @@ class AircraftModel:
         """Specific excess power Ps = V (T - D) / (m g0) [m/s] (see :meth:`evaluate`)."""
         return self.evaluate(altitude_m, tas_m_s, mass_kg, load_factor, throttle, rating,
                              check=check).ps_m_s
+
+
+def wind_at(model, altitude_m):
+    """Along-track wind [m/s] at altitude [m] of ``model`` (numpy): its
+    :meth:`AircraftModel.wind_m_s`, or 0 when it has no wind (also for stand-in models
+    without one), without evaluating a fit then (solvers call this in their inner loops)."""
+    return model.wind_m_s(altitude_m) if getattr(model, "has_wind", False) else 0.0
 
 
 def fast_scalar_function(function):

@@ -76,6 +76,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from climbopt.aircraft import wind_at
 from climbopt.airspeed import cas_from_mach
 from climbopt.atmosphere import G0, energy_height_m
 from climbopt.envelope import CAS_RESTRICTION_BAND_M, FlightQuantities, envelope_for
@@ -607,7 +608,7 @@ def _straight_line(st: _Setup, points: int = 201) -> _Guess:
     sin_g = np.clip((st.xf[0] - st.x0[0]) / tf / v, -0.5, 0.5)
     gam = np.arcsin(sin_g)
     gam[0], gam[-1] = st.x0[2], st.xf[2]
-    x = _integrate_distance(v, gam, tau * tf, _wind_at(st.model, h))
+    x = _integrate_distance(v, gam, tau * tf, wind_at(st.model, h))
     dash_s = 0.0
     if st.dash_m is not None:
         if x[-1] > 0.9 * st.dash_m:
@@ -622,11 +623,6 @@ def _integrate_distance(v, gam, t, wind=0.0):
     """Ground distance by the trapezoidal rule [m] (``wind``: along-track wind [m/s])."""
     vx = v * np.cos(gam) + wind
     return np.concatenate([[0.0], np.cumsum(0.5 * (vx[1:] + vx[:-1]) * np.diff(t))])
-
-
-def _wind_at(model, altitude_m):
-    """Along-track wind [m/s] at altitudes [m] (0 without wind)."""
-    return model.wind_m_s(altitude_m) if getattr(model, "has_wind", False) else 0.0
 
 
 def _moving_average(y: np.ndarray, width: int) -> np.ndarray:
@@ -712,7 +708,7 @@ def _from_trajectory(st: _Setup, tr: Trajectory, points: int = 401,
     vg = np.clip(vg, st.state_lb[1], st.state_ub[1])
     gg = _moving_average(np.arcsin(np.clip(np.gradient(hg, tg) / vg, -0.9, 0.9)), width)
     gg[0], gg[-1] = st.x0[2], st.xf[2]
-    xg = _integrate_distance(vg, gg, tg, _wind_at(st.model, hg))
+    xg = _integrate_distance(vg, gg, tg, wind_at(st.model, hg))
     if st.dash_m is not None:
         if xg[-1] > 0.95 * st.dash_m:
             xg *= 0.95 * st.dash_m / xg[-1]

@@ -16,6 +16,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from climbopt.aircraft import wind_at
+
 __all__ = ["CruiseLeg", "LevelFlightImpossible", "cruise", "level_flight"]
 
 
@@ -71,7 +73,7 @@ def cruise(model, altitude_m: float, tas_m_s: float, mass_kg: float, distance_m:
     Raises :class:`LevelFlightImpossible` when the rating's full thrust cannot hold it, or when
     the headwind is not below the true airspeed.
     """
-    wind = float(model.wind_m_s(altitude_m)) if getattr(model, "has_wind", False) else 0.0
+    wind = float(wind_at(model, altitude_m))
     ground = tas_m_s + wind
     if ground <= 0.0:
         raise LevelFlightImpossible(

@@ -81,7 +81,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from scipy.integrate import solve_ivp
 
-from climbopt.aircraft import fast_scalar_function
+from climbopt.aircraft import fast_scalar_function, wind_at
 from climbopt.airspeed import (cas_from_impact_pressure, impact_pressure_from_cas,
                                impact_pressure_pa, mach_from_cas)
 from climbopt.atmosphere import G0, energy_height_m
@@ -269,10 +269,7 @@ def _ground_speed(model, altitude_m, tas_m_s, cos_gamma):
     """Ground speed [m/s] from true airspeed and flight-path angle: the one place where air
     distance becomes ground distance, V cos(gamma) plus the along-track wind at the altitude
     (:meth:`climbopt.aircraft.AircraftModel.wind_m_s`)."""
-    ground = tas_m_s * cos_gamma
-    if getattr(model, "has_wind", False):
-        ground += float(model.wind_m_s(altitude_m))
-    return ground
+    return tas_m_s * cos_gamma + float(wind_at(model, altitude_m))
 
 
 def _event(fn, direction: float):

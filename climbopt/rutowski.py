@@ -80,6 +80,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from climbopt.aircraft import wind_at
 from climbopt.airspeed import cas_from_mach
 from climbopt.atmosphere import G0, energy_height_m
 from climbopt.cruise import LevelFlightImpossible, cruise, level_flight
@@ -153,12 +154,6 @@ class _Problem:
     monotone: bool = False  # procedure profile: altitude never decreases
 
 
-def _wind(model, altitude_m):
-    """Along-track wind [m/s] at altitude [m] (0 for a model without wind)."""
-    wind = getattr(model, "wind_m_s", None)
-    return 0.0 if wind is None else wind(altitude_m)
-
-
 def _m_ft(x_m: float) -> str:
     return f"{x_m:,.0f} m ({x_m / _FT:,.0f} ft)"
 
@@ -191,7 +186,7 @@ def _value(f, cost: _Cost | None, dash: bool, model=None):
         return np.where(ok, ps, -np.inf)
     denom = cost.fuel_weight * f.fuel_flow_kg_s + cost.time_weight
     if dash:
-        ground = f.tas_m_s + _wind(model, f.altitude_m)
+        ground = f.tas_m_s + wind_at(model, f.altitude_m)
         denom = denom - cost.credit * cost.dash_rate * ground / cost.dash_tas_m_s
     ok = ok & (denom > 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -402,7 +397,7 @@ def _integrate(prob, path: _Path, mass_fn, start_mass):
     seg = lambda g: np.where(free, 0.0, 0.5 * dhe * (g[:-1] + g[1:]))  # noqa: E731
     t = np.concatenate([[0.0], np.cumsum(seg(inv))])
     fuel = np.concatenate([[0.0], np.cumsum(seg(ff * inv))])
-    ground = path.tas + _wind(prob.model, h)  # ground speed: TAS plus the along-track wind
+    ground = path.tas + wind_at(prob.model, h)  # ground speed: TAS plus the along-track wind
     dist = np.concatenate([[0.0], np.cumsum(seg(ground * inv))])
     return dict(time=t, fuel=fuel, distance=dist, mass=start_mass - fuel, fields=f)
 
@@ -648,11 +643,11 @@ def _climb_and_dash(prob, he_levels, start_mass, cost, target, dash_m, dash_clim
                                         min(max(thr, model.throttle_min), prob.throttle)))
         return cost.fuel_weight * ff + cost.time_weight
 
-    ground = target.tas_m_s + float(_wind(model, target.altitude_m))
+    ground = target.tas_m_s + float(wind_at(model, target.altitude_m))
     if ground <= 0.0:
         raise InfeasibleMission(
             f"the dash cannot cover ground: the headwind at the target altitude "
-            f"({-float(_wind(model, target.altitude_m)):.1f} m/s) is not below the target's true "
+            f"({-float(wind_at(model, target.altitude_m)):.1f} m/s) is not below the target's true "
             f"airspeed ({target.tas_m_s:.1f} m/s)", math.nan, target.altitude_m)
     cost = replace(cost, dash_rate=dash_info(start_mass), dash_tas_m_s=ground)
     variants = {}

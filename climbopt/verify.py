@@ -45,7 +45,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.integrate import solve_ivp
 
-from climbopt.aircraft import fast_scalar_function
+from climbopt.aircraft import fast_scalar_function, wind_at
 from climbopt.atmosphere import G0, energy_height_m
 from climbopt.envelope import RATIO_TOLERANCE, envelope_for, flight_quantities
 from climbopt.results import StateValues, Verification
@@ -235,7 +235,6 @@ def _rhs_factory(model, body):
 
     forces = fast_scalar_function(model.force_function(body=body))
     dom = model.fit_domain
-    wind = getattr(model, "has_wind", False)
 
     def rhs_for(t0, t1, cl_c, th_c):
         inv = 1.0 / (t1 - t0)
@@ -255,7 +254,7 @@ def _rhs_factory(model, body):
                 (thrust * math.cos(alpha) - drag) / m - G0 * math.sin(gam),
                 (thrust * math.sin(alpha) + lift) / (m * v) - G0 * math.cos(gam) / v,
                 -ff,
-                v * math.cos(gam) + (float(model.wind_m_s(h)) if wind else 0.0),
+                v * math.cos(gam) + float(wind_at(model, h)),
             ]
         return rhs
     return rhs_for
