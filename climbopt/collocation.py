@@ -10,8 +10,8 @@ minimum-time-to-climb example)::
     m'     = -fuel flow
     x'     = V cos(gamma) + w(h)
 
-with w(h) the along-track wind (ground distance), L = q S CL, D = q S CD(CL, M), q = rho V^2 / 2, thrust T and fuel flow at the throttle from
-the aircraft model, and alpha_T the angle between thrust and velocity: the angle of attack
+with w(h) the along-track wind (ground distance), L = q S CL, D = q S CD(CL, M),
+q = rho V^2 / 2, thrust T and fuel flow at the throttle from the aircraft model, and alpha_T the angle between thrust and velocity: the angle of attack
 CL / CL_alpha(M) when thrust acts along the body axis (``thrust_alignment = "body"``), zero when
 it acts along the flight path. Air data from the model's smooth US Standard Atmosphere 1976 twin.
 States: altitude h [m], true airspeed V [m/s], flight-path angle gamma [rad], mass m [kg],
@@ -216,7 +216,6 @@ class _Setup:
     scenario: object
     model: object
     objective: str
-    rating: str | None
     throttle_free: bool
     body_thrust: bool
     m0: float
@@ -282,7 +281,6 @@ def _setup(scenario, model, objective: str) -> _Setup:
     dom = model.domain
     notes: list[str] = []
     m0 = float(model.mass_kg)
-    rating = None  # the mission's rating, or its rating schedule (AircraftModel.engine)
     throttle_free = float(model.throttle_max) > float(model.throttle_min)
     body = model.thrust_alignment == "body"
     if body and not model.has_lift_slope:
@@ -337,7 +335,7 @@ def _setup(scenario, model, objective: str) -> _Setup:
         notes.append(f"minimum time with a fuel tie-break ({FUEL_TIE_BREAK_S * 0.01:g} s per 1% "
                      "of the start mass burnt): among equally fast controls the least-fuel ones")
     w = float(scenario.solver.cost_weight_kg_per_s) if objective == "weighted" else 0.0
-    return _Setup(scenario, model, objective, rating, throttle_free, body, m0, x_scale, state_lb,
+    return _Setup(scenario, model, objective, throttle_free, body, m0, x_scale, state_lb,
                   state_ub, cl_bound, x0, xf, dash, env, [r.name for r in rows],
                   np.array([r.lower for r in rows]), np.array([r.upper for r in rows]), mach_cap,
                   notes, w, float(model.temperature_offset_k), float(model.thrust_scale))
@@ -377,7 +375,7 @@ def _point_function(st: _Setup):
     cd = model.drag_coefficient(clm, machm)
     clmax = model.cl_max(machm)
     cla = model.lift_slope_per_rad(machm) if st.body_thrust else ca.MX(1.0)
-    thrust, ff = model.engine(hm, machm, thr, st.rating, thrust_scale=Pm[2],
+    thrust, ff = model.engine(hm, machm, thr, thrust_scale=Pm[2],
                               temperature_offset_k=Pm[1], standard_temperature_k=t_std,
                               speed_of_sound_m_s=sound)
     wind = model.wind_m_s(hm) if model.has_wind else ca.MX(0.0)
@@ -597,7 +595,7 @@ def _straight_line(st: _Setup, points: int = 201) -> _Guess:
     h_c = np.clip(h, st.state_lb[0], st.state_ub[0])
     a = np.asarray(model.atmosphere(h_c).speed_of_sound_m_s)
     mach = np.clip(v / a, model.domain.mach_min, model.domain.mach_max)
-    perf = model.evaluate(h_c, mach * a, st.m0, 1.0, model.throttle_max, st.rating, check=False)
+    perf = model.evaluate(h_c, mach * a, st.m0, 1.0, model.throttle_max, check=False)
     ps = np.asarray(perf.ps_m_s)
     pos = ps[ps > 0.0]
     ps_mean = float(np.mean(pos)) if pos.size else 1.0
@@ -725,7 +723,7 @@ def _dash_init(st: _Setup, m_c: float, x_c: float, dash_s: float, points: int):
     tau = np.linspace(0.0, 1.0, points)
     h, v = st.xf[0], st.xf[1]
     dur = max(dash_s, 1.0)
-    perf = model.evaluate(np.array([h]), np.array([v]), np.array([m_c]), 1.0, 1.0, st.rating,
+    perf = model.evaluate(np.array([h]), np.array([v]), np.array([m_c]), 1.0, 1.0,
                           check=False)
     thr = float(np.clip(perf.drag_n[0] / perf.thrust_n[0], model.throttle_min,
                         model.throttle_max))
@@ -1329,7 +1327,7 @@ def _trajectory(st: _Setup, sol: _Solution, *, converged: bool, status: str, ite
     q = 0.5 * np.asarray(atm.density_kg_m3, float) * v * v
     S = model.reference_area_m2
     drag = q * S * np.asarray(model.drag_coefficient(cl, mach_c, check=False), float)
-    thrust = np.asarray(model.thrust_n(hc, mach_c, thr, st.rating, check=False), float)
+    thrust = np.asarray(model.thrust_n(hc, mach_c, thr, check=False), float)
     lift_over_weight = q * S * cl / (m * G0)
     t_par = thrust
     alpha = None
