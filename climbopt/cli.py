@@ -273,10 +273,9 @@ def run(scenario_file, method, objective, out_dir, units, quiet, as_json, no_sch
 
     Writes report.html (the whole run in one page), summary.json, comparison.csv, report.txt, a
     per-point CSV and a climb schedule CSV for each result, and the plots (PNG; SVG and PDF
-    with --format). Exit codes: 0 ok, 2 bad
-    input, 3 infeasible
-    mission, 4 solver failure (an unconverged, unverified or over-capacity optimisation; the
-    results are still written and labelled), 130 interrupted (Ctrl-C), 143 terminated.
+    with --format). Exit codes: 0 ok, 2 bad input, 3 infeasible mission, 4 solver failure (an
+    unconverged, unverified or over-capacity optimisation; the results are still written and
+    labelled), 130 interrupted (Ctrl-C), 143 terminated.
     """
     from climbopt import report
     from climbopt.aircraft import build_model
@@ -606,7 +605,8 @@ def _sweep_outputs(folder: Path, table: Path, plan, rows: list, *, parquet: bool
     except sw.SweepError as exc:
         _fail(str(exc), EXIT_BAD_INPUT)
     except Exception as exc:  # outputs after the table: report, keep the table
-        click.echo(f"warning: could not write the plots: {type(exc).__name__}: {exc}", err=True)
+        click.echo(f"warning: could not write the outputs after the table (Parquet, plots, "
+                   f"office tables): {type(exc).__name__}: {exc}", err=True)
     return written
 
 
