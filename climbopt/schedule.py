@@ -32,7 +32,7 @@ import numpy as np
 from climbopt.airspeed import impact_pressure_from_cas, impact_pressure_pa
 from climbopt.atmosphere import altitude_from_pressure
 from climbopt.results import LEVEL_TOLERANCE_M, Method, Trajectory, derive_segments
-from climbopt.units import ft_to_m
+from climbopt.units import format_min_s, ft_to_m
 
 #: Row spacing of schedules printed in US units (2,000 ft) and in SI units (500 m).
 STEP_US_M = ft_to_m(2000.0)
@@ -376,12 +376,6 @@ def _instruction(report, units: str, r: ScheduleRow, flown: bool) -> str:
     return words.format(s=speed)
 
 
-def _min_s(seconds: float) -> str:
-    from climbopt.units import format_min_s
-
-    return format_min_s(seconds)
-
-
 def schedule_records(schedule: ClimbSchedule, units: str = "si") -> tuple[list[str], list[list]]:
     """Header and rows of a climb schedule in ``units``: altitude, what to fly, CAS (whole
     knots or km/h), Mach (0.01), TAS, rate of climb (ft/min, or m/s to 0.1), cumulative time in
@@ -402,7 +396,7 @@ def schedule_records(schedule: ClimbSchedule, units: str = "si") -> tuple[list[s
             show("altitude", r.altitude_m, 0), _instruction(report, units, r, schedule.flown),
             show("airspeed", r.cas_m_s, 0), round(r.mach, 2), show("airspeed", r.tas_m_s, 0),
             show("rate", r.rate_of_climb_m_s, fine), round(r.time_s, 1),
-            _min_s(r.time_s), show("mass", r.fuel_kg, 0), show("distance", r.distance_m, 1),
+            format_min_s(r.time_s), show("mass", r.fuel_kg, 0), show("distance", r.distance_m, 1),
             r.point])
     return header, rows
 
@@ -426,7 +420,7 @@ def schedule_summary(schedule: ClimbSchedule, units: str = "si") -> str:
     top = schedule.top_of_climb
     mass, mu = report.to_display("mass", top.fuel_kg, units)
     dist, du = report.to_display("distance", top.distance_m, units)
-    return (f"{what}; top of climb {at(top.altitude_m)} at {_min_s(top.time_s)} "
+    return (f"{what}; top of climb {at(top.altitude_m)} at {format_min_s(top.time_s)} "
             f"({top.time_s:,.0f} s), fuel {mass:,.0f} {mu}, {dist:,.1f} {du}")
 
 
