@@ -85,6 +85,9 @@ SCHEDULE_COLUMNS = ("schedule", "schedule_cas_below_restriction_m_s", "schedule_
                     "schedule_mach", "schedule_time_s", "schedule_fuel_kg",
                     "schedule_distance_m", "schedule_penalty_pct")
 
+#: Columns holding text; every other column holds a number ("case" an integer).
+_TEXT_COLUMNS = ("key", "method", "objective", "status", "error", "schedule")
+
 #: Columns holding numbers (besides the input columns); "case" is an integer.
 _NUMERIC_RESULTS = ("time_s", "fuel_kg", "distance_m", "final_mass_kg", "wall_s") + \
     SCHEDULE_COLUMNS[1:]
@@ -503,13 +506,15 @@ def _error_text(exc: BaseException, status: str) -> str:
     return f"{type(exc).__name__}: {text}" if status == "error" else text
 
 
-def _solve(scenario: Scenario, method: str, objective: str, compile: bool | None = None):
+def _solve(scenario: Scenario, method: str, objective: str, compile: bool | None = None,
+           model=None):
     """The case's result through the one pipeline (:func:`climbopt.pipeline.solve_case`); a
     collocation case starts from the solution of the case this process solved before (same
     optimum to IPOPT's tolerance, about half the iterations of its first mesh pass)."""
     from climbopt.pipeline import solve_case
 
-    return solve_case(scenario, method, objective, compile=compile, from_neighbour=True)
+    return solve_case(scenario, method, objective, model=model, compile=compile,
+                      from_neighbour=True)
 
 
 def run_case(scenario: Scenario, case: Case, *, compile: bool | None = None) -> dict:
@@ -523,15 +528,18 @@ def run_case(scenario: Scenario, case: Case, *, compile: bool | None = None) -> 
     out = {"status": "ok", "time_s": math.nan, "fuel_kg": math.nan, "distance_m": math.nan,
            "final_mass_kg": math.nan, "error": ""}
     try:
+        from climbopt.aircraft import build_model
+
         case_scenario = apply_case(scenario, case.values)
-        traj = _solve(case_scenario, case.method, case.objective, compile)
+        model = build_model(case_scenario)  # one model for the optimum and the schedule
+        traj = _solve(case_scenario, case.method, case.objective, compile, model)
         out.update(time_s=traj.time_s, fuel_kg=traj.fuel_kg, distance_m=traj.distance_m,
                    final_mass_kg=traj.final_mass_kg)
         if not traj.ranked:
             out.update(status="solver-failure",
                        error="; ".join(traj.issues) or f"not converged: {traj.status}")
         elif case.schedules:
-            out.update(_schedule_columns(case_scenario, case.objective, traj))
+            out.update(_schedule_columns(case_scenario, model, case.objective, traj))
     except Exception as exc:  # a failing case is a result, not a crash
         status = _classify(exc)
         out.update(status=status, error=_error_text(exc, status))
@@ -539,16 +547,14 @@ def run_case(scenario: Scenario, case: Case, *, compile: bool | None = None) -> 
     return out
 
 
-def _schedule_columns(scenario: Scenario, objective: str, optimum) -> dict:
+def _schedule_columns(scenario: Scenario, model, objective: str, optimum) -> dict:
     """The best constant schedule of a case, measured against its optimum: the columns of
     :data:`SCHEDULE_COLUMNS` ("schedule" says why when none can be flown; the optimum's row
     stays "ok")."""
-    from climbopt.aircraft import build_model
     from climbopt.procedure import ScheduleNotFlyable, best_schedule_spec
 
     try:
-        spec, flown = best_schedule_spec(scenario, build_model(scenario), objective,
-                                         reference=optimum)
+        spec, flown = best_schedule_spec(scenario, model, objective, reference=optimum)
     except ScheduleNotFlyable as exc:
         return {"schedule": " ".join(f"none flyable: {exc}".split())[:300]}
     penalty = flown.reference.objective_difference_relative if flown.reference else math.nan
@@ -610,7 +616,7 @@ def read_table(path) -> list[dict]:
     header, rows = _read_rows(Path(path))
     if header is None:
         return []
-    text = {"key", "method", "objective", "status", "error", "schedule"}
+    text = set(_TEXT_COLUMNS)
     out = []
     for r in rows:
         d = {}
@@ -639,7 +645,7 @@ def write_parquet(table_path, parquet_path) -> Path:
         vals = [r[k] for r in rows]
         if k == "case":
             cols[k] = pa.array(vals, pa.int64())
-        elif k in ("key", "method", "objective", "status", "error", "schedule"):
+        elif k in _TEXT_COLUMNS:
             cols[k] = pa.array(vals, pa.string())
         else:
             cols[k] = pa.array(vals, pa.float64())
