@@ -153,10 +153,9 @@ def _group_text(group, plan) -> str:
 
 
 def _mass_text(mass_kg: float, units: str) -> str:
-    from climbopt.report import to_display
+    from climbopt.report import quantity_text
 
-    value, unit = to_display("mass", mass_kg, units)
-    return f"{value:,.0f} {unit}"
+    return quantity_text("mass", mass_kg, units)
 
 
 def _cell_numbers(table: OfficeTable, units: str, at) -> tuple[str, str, str] | None:

@@ -78,6 +78,13 @@ def to_display(kind: str, value_si, units: str):
     return _units.from_si(value_si, unit), unit or "-"
 
 
+def quantity_text(kind: str, value_si, units: str, fmt: str = ",.0f") -> str:
+    """An SI value of quantity ``kind`` as text in the display unit of ``units``, e.g.
+    "35,000 ft" (``fmt``: the number's format, default thousands separators, no decimals)."""
+    value, unit = to_display(kind, value_si, units)
+    return f"{value:{fmt}} {unit}"
+
+
 def rounded(kind: str, value_si, units: str):
     """An SI value in the display unit of ``units``, rounded to the decimals stated for that
     unit (:data:`climbopt.units.UNIT_DIGITS`); None stays None."""
@@ -368,8 +375,7 @@ def format_conditions(c, units: str) -> str:
     ISA, rating, climb profile, target altitude and the limits (``c``:
     :class:`climbopt.schedule.Conditions`)."""
     def q(kind, v):
-        value, unit = to_display(kind, v, units)
-        return f"{value:,.0f} {unit}"
+        return quantity_text(kind, v, units)
 
     limits = []
     if c.max_cas_m_s is not None:
@@ -397,13 +403,13 @@ def wind_text(wind, units: str) -> str:
     column "wind -10 kt at 0 ft, -40 kt at 20,000 ft" (negative: headwind)."""
     if wind is None:
         return ""
-    spd = lambda v: f"{to_display('airspeed', v, units)[0]:+,.0f} {unit_label('airspeed', units)}"  # noqa: E731
     if not wind.altitude_m:
         w = wind.along_track_m_s[0]
-        return f"wind {spd(w)} ({'headwind' if w < 0 else 'tailwind' if w > 0 else 'calm'})"
-    alt = lambda h: f"{to_display('altitude', h, units)[0]:,.0f} {unit_label('altitude', units)}"  # noqa: E731
+        return (f"wind {quantity_text('airspeed', w, units, '+,.0f')} "
+                f"({'headwind' if w < 0 else 'tailwind' if w > 0 else 'calm'})")
     return "wind (negative: headwind) " + ", ".join(
-        f"{spd(w)} at {alt(h)}" for h, w in zip(wind.altitude_m, wind.along_track_m_s))
+        f"{quantity_text('airspeed', w, units, '+,.0f')} at {quantity_text('altitude', h, units)}"
+        for h, w in zip(wind.altitude_m, wind.along_track_m_s))
 
 
 def rating_schedule_text(steps, units: str) -> str:
@@ -414,9 +420,7 @@ def rating_schedule_text(steps, units: str) -> str:
     parts = []
     for st in steps:
         derate = "" if st.thrust_fraction == 1.0 else f" at {100 * st.thrust_fraction:g} % thrust"
-        until = ("" if st.until_m is None else
-                 f" to {to_display('altitude', st.until_m, units)[0]:,.0f} "
-                 f"{unit_label('altitude', units)}")
+        until = "" if st.until_m is None else f" to {quantity_text('altitude', st.until_m, units)}"
         parts.append(f"{st.rating}{derate}{until}")
     return "rating schedule " + ", then ".join(parts)
 

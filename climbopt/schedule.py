@@ -405,10 +405,9 @@ def schedule_summary(schedule: ClimbSchedule, units: str = "si") -> str:
     """One line: the schedule flown (holds and where each ends) or, for an optimum, that the
     rows give its own speeds; then the top of climb (altitude, time, fuel, distance)."""
     report = _units(units)
-    alt = report.unit_label("altitude", units)
 
     def at(h):
-        return f"{report.to_display('altitude', h, units)[0]:,.0f} {alt}"
+        return report.quantity_text("altitude", h, units)
 
     if schedule.flown:
         holds = ", ".join(f"{_speed_text(report, units, v, v, fly)} to {at(h)}"
