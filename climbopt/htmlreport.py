@@ -125,8 +125,8 @@ def table(header, rows, *, css: str = "", numeric=None, cell_class=None,
     for i, r in enumerate(rows):
         cells = []
         for j, c in enumerate(r):
-            classes = (["num"] if j in numeric else []) + \
-                ([cell_class(i, j, str(c))] if cell_class and cell_class(i, j, str(c)) else [])
+            extra = cell_class(i, j, str(c)) if cell_class else ""
+            classes = (["num"] if j in numeric else []) + ([extra] if extra else [])
             attr = f' class="{" ".join(classes)}"' if classes else ""
             cells.append(f"<td{attr}>{esc(c)}</td>")
         rc = row_class(i) if row_class else ""
@@ -384,10 +384,7 @@ def conditions_table(scenario, units: str) -> str:
     from climbopt import report
 
     def q(kind, v, digits=0):
-        if v is None:
-            return "none"
-        value, unit = report.to_display(kind, v, units)
-        return f"{value:,.{digits}f} {unit}"
+        return "none" if v is None else report.quantity_text(kind, v, units, f",.{digits}f")
 
     def point(p):
         speed = (f"Mach {p.speed_value:.3f}" if p.speed_kind == "mach"
