@@ -181,6 +181,9 @@ def _figures(folder: Path, scenario, trajs, units, model, formats) -> tuple[list
     axes[0].set_title(scenario.name, fontsize=10)
     made.append(("time_histories", axes[0].figure))
     for name, fig in made:
-        figures += plots.save_figure(fig, folder / name, formats)
-        svgs.append((name, plots.figure_svg(fig)))
+        written = plots.save_figure(fig, folder / name, formats)
+        figures += written
+        svg_file = next((p for p in written if p.suffix == ".svg"), None)  # drawn once
+        svgs.append((name, svg_file.read_text(encoding="utf-8") if svg_file
+                     else plots.figure_svg(fig)))
     return figures, svgs
