@@ -214,13 +214,13 @@ def write_reduce_folder(folder: Path, plan, points, surface, comparison, units):
 
 #: Captions of the flight-test figures (stem -> title, caption).
 _FIGURE_WORDS = {
-    "measured_ps": ("Measured Ps", "standardised points (standard weight, standard day, 1 g) "
-                    "over the fitted Ps contours; hatched where the data do not reach"),
-    "residuals": ("Residuals", "standardised Ps minus the fitted surface at each point"),
-    "predicted_vs_measured": ("Predicted against measured Ps", "the fitted surface against the "
-                              "predicted model's standard-day Ps"),
-    "climb_comparison": ("Minimum-time climbs", "the predicted and the measured aircraft's "
-                         "minimum-time climbs and best flyable schedules"),
+    "measured_ps": ("Measured Ps", "Standardised points (standard weight, standard day, 1 g) "
+                    "over the fitted Ps contours; hatched where the data do not reach."),
+    "residuals": ("Residuals", "Standardised Ps minus the fitted surface at each point."),
+    "predicted_vs_measured": ("Predicted against measured Ps", "The fitted surface against the "
+                              "predicted model's standard-day Ps."),
+    "climb_comparison": ("Minimum-time climbs", "The predicted and the measured aircraft's "
+                         "minimum-time climbs and best flyable schedules."),
 }
 
 
@@ -252,12 +252,8 @@ def reduce_page(plan, points, surface, comparison, units, lines, schedules, figu
             body += f"<h3>{hr.esc(name)}</h3>" + hr.table(h, [[_cell(c) for c in row]
                                                              for row in r])
         sections.append(("climbs", "Predicted and measured climbs", body))
-    figs = "".join(
-        f"<figure>{hr.svg_inline(svg)}<figcaption><strong>Figure {k}.</strong> "
-        f"{hr.esc(_FIGURE_WORDS.get(stem, (stem, ''))[0])}: "
-        f"{hr.esc(_FIGURE_WORDS.get(stem, ('', ''))[1])}.</figcaption></figure>"
-        for k, (stem, svg) in enumerate(figures, 1))
-    sections.append(("figures", "Figures", figs))
+    sections.append(("figures", "Figures", hr.figures_html(
+        [(*_FIGURE_WORDS.get(stem, (stem, "")), svg) for stem, svg in figures])))
     notes = list(surface.reference.notes) + (list(comparison.notes) if comparison else [])
     sections.append(("notes", "Notes", "<ul>" + "".join(f"<li>{hr.esc(n)}</li>" for n in notes)
                      + "</ul>"))

@@ -21,7 +21,7 @@ import re
 
 from climbopt import CAUTION, __version__
 
-__all__ = ["page", "run_report", "table", "svg_inline"]
+__all__ = ["page", "run_report", "table", "svg_inline", "figures_html"]
 
 #: The page's style sheet: screen (a sheet of paper on grey) and print (A4, no background).
 STYLE = """
@@ -337,7 +337,9 @@ def _notes_section(records, errors, warnings) -> str:
     return "".join(out) or "<p>No notes.</p>"
 
 
-def _figures_section(figures) -> str:
+def figures_html(figures) -> str:
+    """Numbered figures with their captions: ``figures`` are ``(title, caption, svg text)``
+    triples; "Figure k. Title. Caption." under each."""
     out = []
     for k, (title, caption, svg) in enumerate(figures, 1):
         out.append(f"<figure>{svg_inline(svg)}<figcaption><strong>Figure {k}.</strong> "
@@ -372,7 +374,7 @@ def run_report(*, scenario, units: str, records, flown, schedules, procedure_cos
             "<p>Energy-state solutions of the same mission with the procedure profile "
             "(altitude never decreasing, between the start and target altitudes) and with the "
             "free profile (dives and overshoots allowed).</p>" + table(header, rows)))
-    sections += [("figures", "Figures", _figures_section(figures)),
+    sections += [("figures", "Figures", figures_html(figures)),
                  ("notes", "Notes", _notes_section(records, errors, warnings))]
     meta = (f"climbopt {esc(__version__)} &middot; scenario file {esc(scenario.source_path)} "
             f"&middot; units {esc(report.units_words(units))}")
