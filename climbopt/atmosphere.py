@@ -418,11 +418,13 @@ class SmoothAtmosphere:
     def _casadi_t_lnp(self, z):
         import casadi as ca
 
+        from climbopt.staging import call_table
+
         fun = self._tables.casadi_function
         rows, cols = z.shape
         n = rows * cols
         if n == 1:
-            out = fun(z)
+            out = call_table(fun, z)
             return out[0], out[1]
         out = fun.map(n)(ca.reshape(z, 1, n))  # 2 x n
         return ca.reshape(out[0, :], rows, cols), ca.reshape(out[1, :], rows, cols)

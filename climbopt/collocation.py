@@ -346,45 +346,44 @@ def _point_function(st: _Setup):
 
     ``p`` holds the scenario numbers a sweep varies that enter the dynamics
     (:data:`POINT_PARAMETERS`: start mass, which also scales the mass state, temperature offset
-    and thrust scale), so one function, and one NLP built on it, serves every such case. The
-    tables (aircraft model and atmosphere, CasADi B-splines) are called in a small MX graph; all
-    remaining algebra sits in one SX function, which keeps derivative evaluation cheap.
+    and thrust scale), so one function, and one NLP built on it, serves every such case. It is
+    written in SX with the table look-ups (aircraft model and atmosphere, CasADi B-splines)
+    lifted out, and assembled as SX algebra around one MX node per look-up
+    (:func:`climbopt.staging.staged_function`), which keeps its derivatives cheap.
     """
     import casadi as ca
 
     from climbopt.atmosphere import GAMMA_AIR, R_AIR
+    from climbopt.staging import lifted_tables, staged_function
 
     model = st.model
     xs = st.x_scale
-    algebra = _point_algebra(st)
-
-    # MX part: the tables, with the day's temperature offset and the thrust scale as symbols.
-    Xm = ca.MX.sym("x", 5)
-    Um = ca.MX.sym("u", st.n_u)
-    Pm = ca.MX.sym("p", len(POINT_PARAMETERS))
-    hm = Xm[0] * xs[0]
-    vm = Xm[1] * xs[1]
-    t_std, ln_p = model.atmosphere.standard_temperature_log_pressure(hm)
-    temperature = t_std + Pm[1]
-    pressure = ca.exp(ln_p)
-    density = pressure / (R_AIR * temperature)
-    sound = ca.sqrt(GAMMA_AIR * R_AIR * temperature)
-    machm = vm / sound
-    clm = Um[0]
-    thr = Um[1] if st.throttle_free else st.fixed_throttle
-    cd = model.drag_coefficient(clm, machm)
-    clmax = model.cl_max(machm)
-    cla = model.lift_slope_per_rad(machm) if st.body_thrust else ca.MX(1.0)
-    thrust, ff = model.engine(hm, machm, thr, thrust_scale=Pm[2],
-                              temperature_offset_k=Pm[1], standard_temperature_k=t_std,
-                              speed_of_sound_m_s=sound)
-    wind = model.wind_m_s(hm) if model.has_wind else ca.MX(0.0)
-    fo, po = algebra(Xm, Um, Pm[0], pressure, density, sound, cd, clmax, cla, thrust, ff, wind)
-    return ca.Function("point", [Xm, Um, Pm], [fo, po])
+    X = ca.SX.sym("x", 5)
+    U = ca.SX.sym("u", st.n_u)
+    P = ca.SX.sym("p", len(POINT_PARAMETERS))
+    with lifted_tables() as calls:
+        h = X[0] * xs[0]
+        v = X[1] * xs[1]
+        t_std, ln_p = model.atmosphere.standard_temperature_log_pressure(h)
+        temperature = t_std + P[1]
+        pressure = ca.exp(ln_p)
+        density = pressure / (R_AIR * temperature)
+        sound = ca.sqrt(GAMMA_AIR * R_AIR * temperature)
+        mach = v / sound
+        thr = U[1] if st.throttle_free else st.fixed_throttle
+        cd = model.drag_coefficient(U[0], mach)
+        clmax = model.cl_max(mach)
+        cla = model.lift_slope_per_rad(mach) if st.body_thrust else ca.SX(1.0)
+        thrust, ff = model.engine(h, mach, thr, thrust_scale=P[2], temperature_offset_k=P[1],
+                                  standard_temperature_k=t_std, speed_of_sound_m_s=sound)
+        wind = model.wind_m_s(h) if model.has_wind else ca.SX(0.0)
+    fo, po = _point_algebra(st)(X, U, P[0], pressure, density, sound, cd, clmax, cla, thrust,
+                                ff, wind)
+    return staged_function("point", [X, U, P], [fo, po], calls)
 
 
 def _point_algebra(st: _Setup):
-    """The SX part of :func:`_point_function`: CasADi Function (x_scaled[5], u[n_u], m0 [kg],
+    """The algebra of :func:`_point_function`: SX Function (x_scaled[5], u[n_u], m0 [kg],
     pressure [Pa], density [kg/m^3], speed of sound [m/s], CD, CLmax, CL_alpha [1/rad],
     thrust [N], fuel flow [kg/s], along-track wind [m/s]) -> (dx_scaled/dt [5], path [n_path]):
     the equations of motion of the module docstring and the envelope's path constraints."""

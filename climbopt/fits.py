@@ -31,9 +31,14 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.interpolate import PchipInterpolator, RectBivariateSpline, make_interp_spline
 
+from climbopt.staging import call_table
+
 
 #: Dense pieces per table interval in step 1.
 SUBDIVISIONS = 8
+#: CasADi options of the table functions: SX graphs can call them (as call nodes, or lifted
+#: out by :func:`climbopt.staging.lifted_tables`); MX calls are call nodes either way.
+_NEVER_INLINE = {"never_inline": True}
 
 
 class ModelDomainError(ValueError):
@@ -234,11 +239,12 @@ class Fit1D:
         if self._ca is None:
             s = ca.MX.sym("x")
             expr = ca.bspline(s, ca.DM(self._spline.c), [list(self._spline.t)], [3], 1, {})
-            self._ca = ca.Function(_casadi_name(self.name), [s], [expr])
+            self._ca = ca.Function(_casadi_name(self.name), [s], [expr], _NEVER_INLINE)
         return self._ca
 
     def __call__(self, x, *, check: bool = True):
-        """Evaluate at ``x`` (numpy array/float, or CasADi MX).
+        """Evaluate at ``x`` (numpy array/float, CasADi MX, or an SX scalar: see
+        :func:`climbopt.staging.call_table`).
 
         numpy: raises :class:`ModelDomainError` where ``x`` lies outside the fit's extended
         domain when ``check`` is true; with ``check=False`` inputs are clipped to that domain.
@@ -246,11 +252,11 @@ class Fit1D:
         if is_casadi(x):
             import casadi as ca
 
-            if isinstance(x, ca.SX):
-                raise TypeError(f"{self.name}: CasADi B-splines need MX symbols, not SX")
             f = self._casadi_function()
             if x.numel() == 1:
-                return f(x)
+                return call_table(f, x, ([list(self.knots)], self.coefficients))
+            if isinstance(x, ca.SX):
+                raise TypeError(f"{self.name}: SX arguments of a table must be scalars")
             return ca.reshape(f.map(x.numel())(ca.vec(x).T), x.shape)
         x = np.asarray(x, dtype=float)
         if check:
@@ -347,16 +353,21 @@ class Fit2D:
             coeffs = np.asarray(c).reshape(len(tu) - 4, len(tv) - 4).ravel(order="F")
             s = ca.MX.sym("uv", 2)
             expr = ca.bspline(s, ca.DM(coeffs), [list(tu), list(tv)], [3, 3], 1, {})
-            self._ca = ca.Function(_casadi_name(self.name), [s], [expr])
+            self._ca = ca.Function(_casadi_name(self.name), [s], [expr], _NEVER_INLINE)
         return self._ca
 
     def __call__(self, u, v, *, check: bool = True):
-        """Evaluate at (u, v): numpy arrays broadcast together, or CasADi MX scalars/rows."""
+        """Evaluate at (u, v): numpy arrays broadcast together, CasADi MX scalars/rows, or SX
+        scalars (see :func:`climbopt.staging.call_table`)."""
         if is_casadi(u) or is_casadi(v):
             import casadi as ca
 
             if isinstance(u, ca.SX) or isinstance(v, ca.SX):
-                raise TypeError(f"{self.name}: CasADi B-splines need MX symbols, not SX")
+                if ca.SX(u).numel() != 1 or ca.SX(v).numel() != 1:
+                    raise TypeError(f"{self.name}: SX arguments of a table must be scalars")
+                return call_table(self._casadi_function(), ca.vertcat(u, v),
+                                  ([list(self.knots_u), list(self.knots_v)],
+                                   self.coefficients.ravel(order="F")))
             u = ca.MX(u) if not isinstance(u, ca.MX) else u
             v = ca.MX(v) if not isinstance(v, ca.MX) else v
             f = self._casadi_function()
