@@ -11,6 +11,22 @@ CAUTION = (
     "procedures and local regulations govern."
 )
 
+#: Environment variable naming climbopt's cache folder (compiled point functions, pint's parsed
+#: unit definitions); default ``$XDG_CACHE_HOME/climbopt`` or ``~/.cache/climbopt``.
+CACHE_ENV = "CLIMBOPT_CACHE_DIR"
+
+
+def cache_dir():
+    """Folder of climbopt's cached artefacts (:data:`CACHE_ENV`, else the user cache)."""
+    import os
+    from pathlib import Path
+
+    if os.environ.get(CACHE_ENV):
+        return Path(os.environ[CACHE_ENV])
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "climbopt"
+
+
 #: The public API, one name per step of the data flow (scenario -> model -> energy -> solvers ->
 #: results/verify -> report/plots). Loaded on first use so that ``import climbopt`` stays fast
 #: (CasADi and matplotlib are imported only when a name that needs them is used).

@@ -76,6 +76,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from climbopt import CACHE_ENV, cache_dir  # noqa: F401 (CACHE_ENV: the name tests and users know)
 from climbopt.aircraft import wind_at
 from climbopt.airspeed import cas_from_mach
 from climbopt.atmosphere import G0, energy_height_m
@@ -429,9 +430,6 @@ def _point_algebra(st: _Setup):
 # Compiled point functions (on-disk cache)
 # --------------------------------------------------------------------------------------------
 
-#: Environment variable naming the folder of compiled point functions; default
-#: ``$XDG_CACHE_HOME/climbopt`` or ``~/.cache/climbopt``.
-CACHE_ENV = "CLIMBOPT_CACHE_DIR"
 #: Version of the code-generation recipe (part of every artefact's key).
 _COMPILE_RECIPE = 2
 #: C compiler flags. -O1: on the 1969 interceptor the first IPOPT pass evaluates as fast as
@@ -439,17 +437,6 @@ _COMPILE_RECIPE = 2
 COMPILE_FLAGS = ("-O1", "-fPIC", "-shared")
 #: Compiled functions already loaded in this process, by artefact path.
 _LOADED: dict = {}
-
-
-def cache_dir():
-    """Folder of climbopt's compiled artefacts (:data:`CACHE_ENV`, else the user cache)."""
-    import os
-    from pathlib import Path
-
-    if os.environ.get(CACHE_ENV):
-        return Path(os.environ[CACHE_ENV])
-    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
-    return Path(base) / "climbopt"
 
 
 def _artefact_path(key: str):

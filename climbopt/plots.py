@@ -57,6 +57,7 @@ ENVELOPE_COLOUR = "#c8c8c8"
 #: Labels of the envelope limits (names as in climbopt.energy.LIMIT_NAMES) and their line styles.
 LIMIT_LABELS = {
     "data": "edge of table data",
+    "table_mach": "table Mach range",
     "altitude": "altitude limit",
     "stall": "CLmax",
     "dynamic_pressure": "q limit",
@@ -65,7 +66,7 @@ LIMIT_LABELS = {
     "cas_restriction": "CAS restriction",
 }
 LIMIT_LINESTYLES = {
-    "data": ":", "altitude": "-", "stall": "-", "dynamic_pressure": "-.",
+    "data": ":", "table_mach": (0, (3, 1, 1, 1, 1, 1)), "altitude": "-", "stall": "-", "dynamic_pressure": "-.",
     "mach": (0, (8, 2, 2, 2)), "cas": (0, (4, 2)), "cas_restriction": (0, (1, 1)),
 }
 
@@ -241,7 +242,7 @@ def _draw_energy_heights(ax, X, Y, energy_map, u: dict) -> list:
         return []
     hs = ax.contour(X, Y, he, levels=he_levels, colors="#6b6b6b", linewidths=0.8,
                     linestyles=[(0, (2, 2))])
-    ax.clabel(hs, fontsize=7, fmt=lambda v: f"he {v:g} {he_unit}")
+    ax.clabel(hs, fontsize=7, fmt=lambda v: f"hE {v:g}")  # the unit is in the legend
     return [Line2D([], [], color="#6b6b6b", linewidth=0.8, linestyle=(0, (2, 2)),
                    label=f"energy height [{he_unit}]")]
 

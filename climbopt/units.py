@@ -42,10 +42,25 @@ MAX_SHOWN_CHARS = 60
 
 @functools.lru_cache(maxsize=None)
 def registry() -> pint.UnitRegistry:
-    """The single unit registry of climbopt, built on first use (about 0.15 s) rather than at
-    import. pint's built-in definitions use the international foot (0.3048 m), pound
-    (0.45359237 kg), nautical mile (1852 m) and knot (1852 m / 3600 s)."""
-    return pint.UnitRegistry(autoconvert_offset_to_baseunit=False)
+    """The single unit registry of climbopt, built on first use rather than at import. pint's
+    built-in definitions use the international foot (0.3048 m), pound (0.45359237 kg), nautical
+    mile (1852 m) and knot (1852 m / 3600 s).
+
+    pint keeps its parsed definitions in ``pint/`` under climbopt's cache folder
+    (:func:`climbopt.cache_dir`): about 0.05 s instead of 0.15 s from the second run on. A
+    cache that cannot be written or read (a read-only home, a file cut short by a killed
+    process) is removed and the registry built without it."""
+    import shutil
+
+    from climbopt import cache_dir
+
+    folder = cache_dir() / "pint"
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        return pint.UnitRegistry(autoconvert_offset_to_baseunit=False, cache_folder=folder)
+    except Exception:  # noqa: BLE001 - any failure of the cache only costs time
+        shutil.rmtree(folder, ignore_errors=True)
+        return pint.UnitRegistry(autoconvert_offset_to_baseunit=False)
 
 
 def __getattr__(name: str):

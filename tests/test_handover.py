@@ -33,12 +33,14 @@ def _run(args):
 
 
 class _Page(HTMLParser):
-    """Text, section ids, header cells, inline SVGs, scripts and external references of a page."""
+    """Text, section ids, header cells, inline SVGs (and the words drawn in them), scripts and
+    external references of a page."""
 
     def __init__(self):
         super().__init__()
         self.text, self.sections, self.headers, self.svgs = [], [], [], 0
         self.scripts, self.external, self.tables = 0, [], 0
+        self.figure_text, self._svg_depth = [], 0
         self._in_th = False
 
     def handle_starttag(self, tag, attrs):
@@ -47,6 +49,7 @@ class _Page(HTMLParser):
             self.sections.append(a.get("id"))
         elif tag == "svg":
             self.svgs += 1
+            self._svg_depth += 1
         elif tag == "script":
             self.scripts += 1
         elif tag == "table":
@@ -60,8 +63,13 @@ class _Page(HTMLParser):
     def handle_endtag(self, tag):
         if tag == "th":
             self._in_th = False
+        elif tag == "svg":
+            self._svg_depth -= 1
 
     def handle_data(self, data):
+        if self._svg_depth:
+            self.figure_text.append(data)
+            return
         self.text.append(data)
         if self._in_th:
             self.headers.append(data.strip())
@@ -96,6 +104,8 @@ def test_html_report_holds_conditions_comparison_schedules_and_figures(transport
                              "figures", "notes"]
     assert page.scripts == 0 and page.external == []
     assert words.count(CAUTION) == 2                      # top and foot
+    drawn = " ".join(" ".join(page.figure_text).split())  # words of the figures, as text
+    assert drawn.count(CAUTION) == 4                      # each figure carries it, as its PNG
     for condition in ("154,324 lb", "ISA +0 K", "1,500 ft, CAS 200 kt", "35,000 ft, Mach 0.780",
                       "250 kt below 10,000 ft", "procedure (acceleration share 0.5)"):
         assert condition in words, condition              # 70,000 kg = 154,324 lb
