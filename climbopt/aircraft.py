@@ -402,23 +402,26 @@ class AircraftModel:
         """
         import casadi as ca
 
+        from climbopt.staging import staged
+
         if body is None:
             body = self.thrust_alignment == "body"
         key = (rating or (None if self.scheduled else self.default_rating), bool(body))
         cache = self.__dict__.setdefault("_force_functions", {})
         if key in cache:
             return cache[key]
-        h, v, cl, thr = (ca.MX.sym(n) for n in ("h", "v", "cl", "thr"))
-        atm = self.atmosphere(h)
-        mach = v / atm.speed_of_sound_m_s
-        q = 0.5 * atm.density_kg_m3 * v * v
         S = self.reference_area_m2
-        thrust, ff = self.thrust_and_fuel_flow(h, mach, thr, key[0])
-        alpha = cl / self.lift_slope_per_rad(mach) if body else ca.MX(0.0)
-        cache[key] = ca.Function("forces", [h, v, cl, thr],
-                                 [ca.vertcat(mach, q, atm.pressure_pa, q * S * cl,
-                                             q * S * self.drag_coefficient(cl, mach), thrust,
-                                             ff, alpha)])
+
+        def forces(h, v, cl, thr):
+            atm = self.atmosphere(h)
+            mach = v / atm.speed_of_sound_m_s
+            q = 0.5 * atm.density_kg_m3 * v * v
+            thrust, ff = self.thrust_and_fuel_flow(h, mach, thr, key[0])
+            alpha = cl / self.lift_slope_per_rad(mach) if body else ca.SX(0.0)
+            return [ca.vertcat(mach, q, atm.pressure_pa, q * S * cl,
+                               q * S * self.drag_coefficient(cl, mach), thrust, ff, alpha)]
+
+        cache[key] = staged("forces", ("h", "v", "cl", "thr"), forces)
         return cache[key]
 
     def specific_excess_power_m_s(self, altitude_m, tas_m_s, mass_kg, load_factor=1.0,

@@ -493,7 +493,7 @@ def _problems_text(exc) -> str:
 @click.option("--compile/--no-compile", "compile_", default=None,
               help="Collocation: compile the aircraft's point function to C once (cached on "
                    "disk) and use it in every case [default: solver.compile of the scenario, "
-                   "else only when already cached or at least 4 cases are to be solved].")
+                   "else only when already cached or at least 8 cases are to be solved].")
 def sweep_command(scenario_file, vary, zip_values, method, objective, workers, serial, cluster,
                   out_dir, parquet, max_cases, retry_failed, no_plots, office, fly_schedules,
                   units, quiet, compile_):

@@ -24,7 +24,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Any
 
-__all__ = ["call_table", "lifted_tables", "staged_function"]
+__all__ = ["call_table", "lifted_tables", "staged", "staged_function"]
 
 
 @dataclass
@@ -136,3 +136,18 @@ def staged_function(name: str, inputs: list, outputs: list, calls: list[TableCal
     if not isinstance(results, (list, tuple)):
         results = [results]
     return ca.Function(name, mx_inputs, list(results))
+
+
+def staged(name: str, input_names, body):
+    """MX Function ``name`` of scalar inputs named ``input_names``: ``body(*SX symbols)``
+    returns the output expressions (a list), written with the model's methods as for numpy;
+    its table look-ups are lifted (:func:`lifted_tables`) and the result assembled by
+    :func:`staged_function`. Inside ``body`` a table's value is a free symbol, so ``body``
+    must not differentiate through it (``casadi.jacobian`` would miss the table's slope):
+    derivatives are taken of the function returned."""
+    import casadi as ca
+
+    inputs = [ca.SX.sym(n) for n in input_names]
+    with lifted_tables() as calls:
+        outputs = list(body(*inputs))
+    return staged_function(name, inputs, outputs, calls)

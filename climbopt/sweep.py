@@ -1038,9 +1038,10 @@ def _rewrite_table(plan: SweepPlan, table_path: Path, existing: dict, fresh: dic
 
 
 #: A collocation sweep with at least this many cases to solve compiles its point function
-#: unless told otherwise: a compilation costs about 2 s of CPU once, and saves about 0.6 s per
-#: case (measured on the demo transport, benchmarks/bench_speed.py).
-COMPILE_MIN_CASES = 4
+#: unless told otherwise: a compilation costs about 2 s of CPU once, and saves about 0.35 s per
+#: case since the point function is staged (:mod:`climbopt.staging`; 0.6 s before), so it
+#: pays from about six cases (measured on the demo transport, benchmarks/bench_speed.py).
+COMPILE_MIN_CASES = 8
 
 
 def _compile_choice(plan: SweepPlan, compile: bool | None, n_todo: int) -> bool:
