@@ -3,7 +3,8 @@
 The page holds the conditions, the comparison (engineering figures first, the solver
 diagnostics in a small table of their own), every crew schedule (the flown schedules first:
 that is what crews fly), what the procedure profile costs against the free optimum, the figures
-(inline SVG, so nothing is fetched and print stays sharp), the notes and the caution. It needs
+(embedded: the PNG files as data, or inline SVG when SVG files are written, so nothing is
+fetched), the notes and the caution. It needs
 no network and no JavaScript, and prints on A4 (print style sheet, page breaks kept out of
 tables and figures).
 
@@ -78,7 +79,7 @@ ul.notes.detail { font-size: 7.8pt; color: #3b4a52; }
 ul.notes.flagged li { color: var(--warn); }
 .who { color: var(--muted); font-size: 8pt; }
 figure { margin: 3mm 0 5mm; break-inside: avoid; text-align: center; }
-figure svg { width: 100%; height: auto; max-height: 235mm; }
+figure svg, figure img { width: 100%; height: auto; max-height: 235mm; }
 figcaption { font-size: 8.6pt; color: var(--muted); text-align: left; margin-top: 1mm; }
 footer { margin-top: 8mm; border-top: .6pt solid var(--rule); padding-top: 2mm; font-size: 8pt;
          color: var(--muted); }
@@ -338,11 +339,19 @@ def _notes_section(records, errors, warnings) -> str:
 
 
 def figures_html(figures) -> str:
-    """Numbered figures with their captions: ``figures`` are ``(title, caption, svg text)``
-    triples; "Figure k. Title. Caption." under each."""
+    """Numbered figures with their captions: ``figures`` are ``(title, caption, drawing)``
+    triples, the drawing an SVG document (text, inlined) or a PNG file's bytes (embedded as a
+    data URI); "Figure k. Title. Caption." under each."""
+    import base64
+
     out = []
-    for k, (title, caption, svg) in enumerate(figures, 1):
-        out.append(f"<figure>{svg_inline(svg)}<figcaption><strong>Figure {k}.</strong> "
+    for k, (title, caption, drawing) in enumerate(figures, 1):
+        if isinstance(drawing, bytes):
+            data = base64.b64encode(drawing).decode("ascii")
+            body = f'<img src="data:image/png;base64,{data}" alt="{esc(title)}">'
+        else:
+            body = svg_inline(drawing)
+        out.append(f"<figure>{body}<figcaption><strong>Figure {k}.</strong> "
                    f"{esc(title)}. {esc(caption)}</figcaption></figure>")
     return "".join(out) or "<p>No figures (no result carries a path).</p>"
 
@@ -354,7 +363,8 @@ def run_report(*, scenario, units: str, records, flown, schedules, procedure_cos
     ``records``: :func:`climbopt.report.comparison`; ``flown``:
     :func:`climbopt.report.flown_schedule_records`; ``schedules``: the crew schedules in the
     order to show (flown first); ``procedure_costs``: :class:`climbopt.pipeline.ProcedureCost`
-    list; ``figures``: ``(title, caption, svg text)`` triples; ``common_point``: the text of
+    list; ``figures``: ``(title, caption, drawing)`` triples (see :func:`figures_html`);
+    ``common_point``: the text of
     :func:`climbopt.report.format_common_point` ("" without a common downrange point).
     """
     from climbopt import report

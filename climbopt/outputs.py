@@ -39,7 +39,8 @@ def write_outputs(result, out_dir, scenario, *, units: str = "si", model=None,
     progress : callable(label), optional
         Told when the slow steps start.
     formats : sequence of "png", "svg", "pdf"
-        Figure files to write (report.html always carries the figures inline).
+        Figure files to write (report.html carries the figures too: the PNG files embedded,
+        or the SVG inline when SVG is among the formats).
 
     Returns
     -------
@@ -111,7 +112,7 @@ def _write_folder(folder: Path, result, scenario, units, model, exit_code, progr
                                 conditions)
     if progress is not None:
         progress("plots")
-    figures, svgs = _figures(folder, scenario, trajs, units, model, formats)
+    figures, drawings = _figures(folder, scenario, trajs, units, model, formats)
 
     lines = {k: schedule_summary(v, units) for k, v in schedules.items()}
     flown = report.flown_schedule_records(records, lines, units)
@@ -120,7 +121,7 @@ def _write_folder(folder: Path, result, scenario, units, model, exit_code, progr
              "schedules": report.format_flown_schedules(records, lines, units),
              "procedure_cost": report.format_procedure_costs(result.procedure_costs, units)}
     _write_report_txt(folder, scenario, units, records, texts, ordered, result, conditions)
-    _write_report_html(folder, scenario, units, records, flown, ordered, result, svgs,
+    _write_report_html(folder, scenario, units, records, flown, ordered, result, drawings,
                        texts["common_point"])
     doc = report.summary_document(
         records, scenario_name=scenario.name, scenario_path=scenario.source_path, units=units,
@@ -149,12 +150,12 @@ def _write_report_txt(folder, scenario, units, records, texts, schedules, result
     report.write_text_atomic(folder / "report.txt", "\n".join(text) + "\n")
 
 
-def _write_report_html(folder, scenario, units, records, flown, schedules, result, svgs,
+def _write_report_html(folder, scenario, units, records, flown, schedules, result, drawings,
                        common_point=""):
     """``report.html``: the whole run in one self-contained page (:mod:`climbopt.htmlreport`)."""
     from climbopt import htmlreport, report
 
-    figures = [(*FIGURES.get(stem, (stem, "")), svg) for stem, svg in svgs]
+    figures = [(*FIGURES.get(stem, (stem, "")), drawing) for stem, drawing in drawings]
     page = htmlreport.run_report(
         scenario=scenario, units=units, records=records, flown=flown, schedules=schedules,
         procedure_costs=result.procedure_costs, figures=figures, errors=result.errors,
@@ -164,7 +165,9 @@ def _write_report_html(folder, scenario, units, records, flown, schedules, resul
 
 def _figures(folder: Path, scenario, trajs, units, model, formats) -> tuple[list, list]:
     """The Ps and fs maps with every path, and the time histories; returns the paths written
-    and ``(stem, SVG text)`` of each figure for the HTML report."""
+    and ``(stem, drawing)`` of each figure for the HTML report: the SVG text when SVG files
+    were asked for, else the bytes of the PNG file just written (drawing the figure once more
+    as SVG would cost about as much as the PNG itself)."""
     from climbopt import plots
     from climbopt.energy import build_energy_map
 
@@ -175,7 +178,7 @@ def _figures(folder: Path, scenario, trajs, units, model, formats) -> tuple[list
 
         model = build_model(scenario)
     emap = build_energy_map(scenario, model=model, shape=(160, 160))
-    figures, svgs = [], []
+    figures, drawings = [], []
     made = list(plots.energy_map_figures(emap, trajs, units=units))
     axes = plots.plot_time_histories(trajs, units=units)
     axes[0].set_title(scenario.name, fontsize=10)
@@ -183,7 +186,11 @@ def _figures(folder: Path, scenario, trajs, units, model, formats) -> tuple[list
     for name, fig in made:
         written = plots.save_figure(fig, folder / name, formats)
         figures += written
-        svg_file = next((p for p in written if p.suffix == ".svg"), None)  # drawn once
-        svgs.append((name, svg_file.read_text(encoding="utf-8") if svg_file
-                     else plots.figure_svg(fig)))
-    return figures, svgs
+        files = {p.suffix: p for p in written}
+        if ".svg" in files:
+            drawings.append((name, files[".svg"].read_text(encoding="utf-8")))
+        elif ".png" in files:
+            drawings.append((name, files[".png"].read_bytes()))
+        else:  # PDF alone: the page still needs a drawing
+            drawings.append((name, plots.figure_svg(fig)))
+    return figures, drawings

@@ -247,6 +247,10 @@ def test_format_option_writes_requested_figures(tmp_path):
     assert doc["figures"] == sorted(f"{s}.{e}" for s in stems for e in ("png", "svg"))
     svg = (out / "time_histories.svg").read_text()
     assert svg.lstrip().startswith("<?xml") and "<svg" in svg and CAUTION.split(".")[0] in svg
+    # with SVG files, report.html carries those drawings inline, their words as text
+    page = (out / "report.html").read_text(encoding="utf-8")
+    assert page.count("<svg") == 4 and "data:image/png" not in page
+    assert page.count(CAUTION.split(".")[0]) >= 4 + 2   # each figure's foot, the page's top and foot
     bad = _run(["map", scenario, "--out", tmp_path / "g", "--format", "png,tiff"])
     assert bad.exit_code == 2
     assert "'png,tiff'" in bad.output and "png, svg, pdf" in bad.output

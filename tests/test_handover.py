@@ -3,6 +3,7 @@ API reproduces, office tables from sweeps, and the map options."""
 
 from __future__ import annotations
 
+import base64
 import json
 import math
 import re
@@ -40,7 +41,7 @@ class _Page(HTMLParser):
         super().__init__()
         self.text, self.sections, self.headers, self.svgs = [], [], [], 0
         self.scripts, self.external, self.tables = 0, [], 0
-        self.figure_text, self._svg_depth = [], 0
+        self.figure_text, self._svg_depth, self.png_images = [], 0, []
         self._in_th = False
 
     def handle_starttag(self, tag, attrs):
@@ -54,6 +55,8 @@ class _Page(HTMLParser):
             self.scripts += 1
         elif tag == "table":
             self.tables += 1
+        elif tag == "img" and (a.get("src") or "").startswith("data:image/png;base64,"):
+            self.png_images.append(base64.b64decode(a["src"].split(",", 1)[1]))
         elif tag == "th":
             self._in_th = True
         for key in ("src", "href"):
@@ -104,8 +107,6 @@ def test_html_report_holds_conditions_comparison_schedules_and_figures(transport
                              "figures", "notes"]
     assert page.scripts == 0 and page.external == []
     assert words.count(CAUTION) == 2                      # top and foot
-    drawn = " ".join(" ".join(page.figure_text).split())  # words of the figures, as text
-    assert drawn.count(CAUTION) == 4                      # each figure carries it, as its PNG
     for condition in ("154,324 lb", "ISA +0 K", "1,500 ft, CAS 200 kt", "35,000 ft, Mach 0.780",
                       "250 kt below 10,000 ft", "procedure (acceleration share 0.5)"):
         assert condition in words, condition              # 70,000 kg = 154,324 lb
@@ -123,7 +124,10 @@ def test_html_report_holds_conditions_comparison_schedules_and_figures(transport
     # the flown schedules come first: what crews fly
     first = words.index("climb schedule 250/272/M0.72 (best schedule, minimum time)")
     assert first < words.index("climb schedule, collocation, minimum time")
-    assert page.svgs == len({Path(f).stem for f in doc["figures"]}) == 4
+    # the figures are the PNG files themselves, embedded (not drawn a second time)
+    pngs = [out / f for f in doc["figures"]]
+    assert page.svgs == 0 and len(page.png_images) == len(pngs) == 4
+    assert sorted(page.png_images) == sorted(p.read_bytes() for p in pngs)
     assert "Figure 4." in words and "Figure 5." not in words
     assert "the procedure costs" not in words and "extra time" in page.headers
     # the fuel box leads with the figure the fuel ranking uses: fuel to the common point
