@@ -205,42 +205,46 @@ def _model_function(model, law: str):
 
 
 def _build_function(model, law: str, body: bool):
-    """The CasADi graph of :func:`_model_function` (equations: module docstring)."""
+    """The CasADi function of :func:`_model_function` (equations: module docstring), staged:
+    SX algebra around the table look-ups (:mod:`climbopt.staging`)."""
     import casadi as ca
 
-    h, u, m, thr, a = (ca.MX.sym(n) for n in ("h", "u", "m", "thr", "a"))
-    atm = model.atmosphere(h)
-    sound = atm.speed_of_sound_m_s
-    v = {"cas": lambda: mach_from_cas(u, atm.pressure_pa) * sound,
-         "mach": lambda: u * sound}.get(law, lambda: u)()
-    if law == "free":
-        share = a
-    else:
-        share = 1.0 / (1.0 + v * ca.jacobian(v, h) / G0)  # climb correction factor
-    mach = v / sound
-    q = 0.5 * atm.density_kg_m3 * v * v
-    q_s = q * model.reference_area_m2
-    thrust, ff = model.thrust_and_fuel_flow(h, mach, thr)
-    weight = m * G0
-    cla = model.lift_slope_per_rad(mach) if body else None
-    cos_g = ca.MX(1.0)
-    for _ in range(GAMMA_PASSES + 1):
-        lift_and_thrust = weight * cos_g  # L + T sin(alpha_T)
-        if body:
-            cl = lift_and_thrust / (q_s + thrust / cla)  # small-angle start, then one step
-            cl = (lift_and_thrust - thrust * ca.sin(cl / cla)) / q_s
-            alpha = cl / cla
-            t_path = thrust * ca.cos(alpha)
+    from climbopt.staging import jacobian, staged
+
+    def quasi_steady(h, u, m, thr, a):
+        atm = model.atmosphere(h)
+        sound = atm.speed_of_sound_m_s
+        v = {"cas": lambda: mach_from_cas(u, atm.pressure_pa) * sound,
+             "mach": lambda: u * sound}.get(law, lambda: u)()
+        if law == "free":
+            share = a
         else:
-            cl, alpha, t_path = lift_and_thrust / q_s, ca.MX(0.0), thrust
-        drag = q_s * model.drag_coefficient(cl, mach)
-        ps = v * (t_path - drag) / weight
-        sin_g = ca.fmin(ca.fmax(share * ps / v, -1.0), 1.0)
-        cos_g = ca.sqrt(1.0 - sin_g * sin_g)
-    out = ca.vertcat(v, ps, sin_g, cos_g, ff, mach, q, atm.pressure_pa,
-                     impact_pressure_pa(mach, atm.pressure_pa), cl, q_s * cl / weight, thrust,
-                     drag, alpha)
-    return ca.Function(f"quasi_steady_{law}", [h, u, m, thr, a], [out])
+            share = 1.0 / (1.0 + v * jacobian(v, h) / G0)  # climb correction factor
+        mach = v / sound
+        q = 0.5 * atm.density_kg_m3 * v * v
+        q_s = q * model.reference_area_m2
+        thrust, ff = model.thrust_and_fuel_flow(h, mach, thr)
+        weight = m * G0
+        cla = model.lift_slope_per_rad(mach) if body else None
+        cos_g = ca.SX(1.0)
+        for _ in range(GAMMA_PASSES + 1):
+            lift_and_thrust = weight * cos_g  # L + T sin(alpha_T)
+            if body:
+                cl = lift_and_thrust / (q_s + thrust / cla)  # small-angle start, then one step
+                cl = (lift_and_thrust - thrust * ca.sin(cl / cla)) / q_s
+                alpha = cl / cla
+                t_path = thrust * ca.cos(alpha)
+            else:
+                cl, alpha, t_path = lift_and_thrust / q_s, ca.SX(0.0), thrust
+            drag = q_s * model.drag_coefficient(cl, mach)
+            ps = v * (t_path - drag) / weight
+            sin_g = ca.fmin(ca.fmax(share * ps / v, -1.0), 1.0)
+            cos_g = ca.sqrt(1.0 - sin_g * sin_g)
+        return [ca.vertcat(v, ps, sin_g, cos_g, ff, mach, q, atm.pressure_pa,
+                           impact_pressure_pa(mach, atm.pressure_pa), cl, q_s * cl / weight,
+                           thrust, drag, alpha)]
+
+    return staged(f"quasi_steady_{law}", ("h", "u", "m", "thr", "a"), quasi_steady)
 
 
 class _Memo:

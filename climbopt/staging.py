@@ -24,7 +24,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Any
 
-__all__ = ["call_table", "lifted_tables", "staged", "staged_function"]
+__all__ = ["call_table", "jacobian", "lifted_tables", "staged", "staged_function"]
 
 
 @dataclass
@@ -74,6 +74,39 @@ def call_table(function, argument, spline=None):
         calls.append(TableCall(function, argument, value, spline))
         return value
     return function(argument)
+
+
+def jacobian(expr, x):
+    """Jacobian of SX ``expr`` with respect to SX ``x`` inside :func:`lifted_tables`, through
+    the table look-ups recorded so far: the chain rule adds, for each look-up ``expr``
+    depends on, d expr / d value times the table's slope at its argument (a look-up of the
+    table's derivative, recorded like any other) times d argument / d x (found the same way,
+    so tables of tables are followed). Outside a recording this is ``casadi.jacobian``."""
+    import casadi as ca
+
+    calls = _recording()
+    total = ca.jacobian(expr, x)
+    for call in list(calls or ()):  # a snapshot: the slopes add look-ups of their own
+        if not ca.depends_on(expr, call.value):
+            continue
+        d_argument = jacobian(call.argument, x)
+        if d_argument.nnz() == 0:
+            continue
+        n_out, n_in = call.value.numel(), call.argument.numel()
+        slope = ca.reshape(call_table(_slope_function(call.function), call.argument),
+                           n_out, n_in)
+        total = total + ca.mtimes(ca.mtimes(ca.jacobian(expr, call.value), slope), d_argument)
+    return total
+
+
+def _slope_function(function):
+    """MX Function x -> vec(d function / d x) (column-major) of a table's Function of one
+    argument."""
+    import casadi as ca
+
+    x = ca.MX.sym("x", function.size1_in(0))
+    return ca.Function(f"{function.name()}_slope", [x],
+                       [ca.vec(ca.jacobian(function(x), x))], {"never_inline": True})
 
 
 def _merged(calls: list[TableCall]) -> list[tuple[Any, Any, list[TableCall]]]:
@@ -142,9 +175,9 @@ def staged(name: str, input_names, body):
     """MX Function ``name`` of scalar inputs named ``input_names``: ``body(*SX symbols)``
     returns the output expressions (a list), written with the model's methods as for numpy;
     its table look-ups are lifted (:func:`lifted_tables`) and the result assembled by
-    :func:`staged_function`. Inside ``body`` a table's value is a free symbol, so ``body``
-    must not differentiate through it (``casadi.jacobian`` would miss the table's slope):
-    derivatives are taken of the function returned."""
+    :func:`staged_function`. Inside ``body`` a table's value is a free symbol: derivatives
+    there are taken with :func:`jacobian` (``casadi.jacobian`` would miss the tables'
+    slopes)."""
     import casadi as ca
 
     inputs = [ca.SX.sym(n) for n in input_names]

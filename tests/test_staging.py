@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from climbopt.fits import Fit1D
-from climbopt.staging import lifted_tables, staged_function
+from climbopt.staging import jacobian, lifted_tables, staged, staged_function
 
 GRID = [0.0, 1.0, 2.0, 4.0]
 
@@ -57,3 +57,21 @@ def test_sx_table_call_outside_a_recording_is_a_call_node():
     assert float(F(1.5)) == pytest.approx(2.0 * 5.5, rel=1e-12)
     with pytest.raises(TypeError, match="SX arguments of a table must be scalars"):
         fa(ca.SX.sym("v", 2))
+
+
+def test_jacobian_inside_a_recording_follows_the_tables():
+    """d/ds of a(s) * c(2 a(s)) through two nested look-ups, in closed form."""
+    fa = _line(3.0, 1.0, name="a(x)")
+    fc = _line(0.25, -1.0, grid=[0.0, 5.0, 10.0, 20.0], name="c(y)")
+
+    def body(s):
+        a = fa(s)
+        y = a * fc(2.0 * a)
+        return [y, jacobian(y, s)]
+
+    F = staged("f", ("s",), body)
+    for x in (0.5, 1.7, 3.3):
+        av = 3.0 * x + 1.0
+        cv = 0.25 * 2.0 * av - 1.0
+        assert float(F(x)[0]) == pytest.approx(av * cv, rel=1e-12)
+        assert float(F(x)[1]) == pytest.approx(3.0 * cv + av * 0.25 * 2.0 * 3.0, rel=1e-9)
