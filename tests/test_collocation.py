@@ -514,3 +514,22 @@ def test_neighbouring_cases_start_from_each_other_with_the_same_optimum(intercep
         assert tr.time_s == pytest.approx(alone.time_s, rel=1e-6)
         assert tr.fuel_kg == pytest.approx(alone.fuel_kg, rel=1e-6)
     assert abs(chained[2].time_s / chained[0].time_s - 1.0) > 1e-3  # the cases really differ
+
+
+def test_a_neighbour_start_that_takes_too_long_gives_way_to_the_guess(interceptor, monkeypatch):
+    """With the neighbour's start capped at NEIGHBOUR_MAX_ITER iterations (here 2, too few), the
+    case starts from its own guess and still reaches the optimum of an independent solve."""
+    from climbopt import collocation
+
+    scenario, model = interceptor
+    cases = [_changed(scenario, mass=f * model.mass_kg) for f in (1.0, 0.97)]
+    guesses = [solve_energy_state(c, "time", model=build_model(c)) for c in cases]
+    collocation._NEIGHBOURS.clear()
+    monkeypatch.setattr(collocation, "NEIGHBOUR_MAX_ITER", 2)
+    chained = [solve_collocation(c, "time", model=build_model(c), guess=g, from_neighbour=True)
+               for c, g in zip(cases, guesses)]
+    assert not any("previous case's solution" in " ".join(t.notes) for t in chained)
+    alone = solve_collocation(cases[1], "time", model=build_model(cases[1]), guess=guesses[1])
+    assert chained[1].time_s == pytest.approx(alone.time_s, rel=1e-6)
+    # the iterations spent in vain on the capped start are counted: 2 of them
+    assert chained[1].iterations == alone.iterations + 2
