@@ -31,14 +31,11 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.interpolate import PchipInterpolator, RectBivariateSpline, make_interp_spline
 
-from climbopt.staging import call_table
+from climbopt.staging import bspline_function, call_table
 
 
 #: Dense pieces per table interval in step 1.
 SUBDIVISIONS = 8
-#: CasADi options of the table functions: SX graphs can call them (as call nodes, or lifted
-#: out by :func:`climbopt.staging.lifted_tables`); MX calls are call nodes either way.
-_NEVER_INLINE = {"never_inline": True}
 
 
 class ModelDomainError(ValueError):
@@ -231,15 +228,13 @@ class Fit1D:
         windows = self.coefficients[np.arange(self._axis.n)[:, None] + np.arange(4)]
         power = np.einsum("jpr,jr->jp", self._axis.power, windows)  # (interval, power)
         self._power = np.ascontiguousarray(power.T)  # (power, interval): one gather per power
+        # the same knots and coefficients for CasADi (climbopt.staging.bspline_function)
+        self._casadi_spline = ((tuple(map(float, self.knots)),), self.coefficients)
         self._ca = None
 
     def _casadi_function(self):
-        import casadi as ca
-
         if self._ca is None:
-            s = ca.MX.sym("x")
-            expr = ca.bspline(s, ca.DM(self._spline.c), [list(self._spline.t)], [3], 1, {})
-            self._ca = ca.Function(_casadi_name(self.name), [s], [expr], _NEVER_INLINE)
+            self._ca = bspline_function(_casadi_name(self.name), *self._casadi_spline)
         return self._ca
 
     def __call__(self, x, *, check: bool = True):
@@ -254,7 +249,7 @@ class Fit1D:
 
             f = self._casadi_function()
             if x.numel() == 1:
-                return call_table(f, x, ([list(self.knots)], self.coefficients))
+                return call_table(f, x, self._casadi_spline)
             if isinstance(x, ca.SX):
                 raise TypeError(f"{self.name}: SX arguments of a table must be scalars")
             return ca.reshape(f.map(x.numel())(ca.vec(x).T), x.shape)
@@ -302,6 +297,9 @@ class Fit2D:
         # the same, one row per coefficient s^p r^q (index 4 p + q) over the cells i * nv + j:
         # 16 one-dimensional gathers are several times faster than one (n, 4, 4) gather
         self._power_rows = np.ascontiguousarray(self._power.reshape(nu * nv, 16).T)
+        # the same knots and coefficients for CasADi (climbopt.staging.bspline_function)
+        knots = (tuple(map(float, self.knots_u)), tuple(map(float, self.knots_v)))
+        self._casadi_spline = (knots, self.coefficients.ravel(order="F"))
         self._ca = None
 
     def same_grid(self, other: "Fit2D") -> bool:
@@ -346,14 +344,8 @@ class Fit2D:
         return (((in_v[3] * su + in_v[2]) * su + in_v[1]) * su + in_v[0]).reshape(basis.shape)
 
     def _casadi_function(self):
-        import casadi as ca
-
         if self._ca is None:
-            tu, tv, c = self._spline.tck
-            coeffs = np.asarray(c).reshape(len(tu) - 4, len(tv) - 4).ravel(order="F")
-            s = ca.MX.sym("uv", 2)
-            expr = ca.bspline(s, ca.DM(coeffs), [list(tu), list(tv)], [3, 3], 1, {})
-            self._ca = ca.Function(_casadi_name(self.name), [s], [expr], _NEVER_INLINE)
+            self._ca = bspline_function(_casadi_name(self.name), *self._casadi_spline)
         return self._ca
 
     def __call__(self, u, v, *, check: bool = True):
@@ -366,8 +358,7 @@ class Fit2D:
                 if ca.SX(u).numel() != 1 or ca.SX(v).numel() != 1:
                     raise TypeError(f"{self.name}: SX arguments of a table must be scalars")
                 return call_table(self._casadi_function(), ca.vertcat(u, v),
-                                  ([list(self.knots_u), list(self.knots_v)],
-                                   self.coefficients.ravel(order="F")))
+                                  self._casadi_spline)
             u = ca.MX(u) if not isinstance(u, ca.MX) else u
             v = ca.MX(v) if not isinstance(v, ca.MX) else v
             f = self._casadi_function()

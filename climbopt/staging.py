@@ -13,7 +13,7 @@ for the value. :func:`staged_function` then builds one MX function out of the re
 functions for the algebra between the tables (in stages: the atmosphere first, then the tables
 of Mach that depend on its speed of sound), and one MX B-spline node per table look-up. The
 values are the same expressions evaluated in the same order, so results agree to rounding; on
-the demo transport the IPOPT time of the four collocation solves fell by about 40 %
+the demo transport the IPOPT time of the four collocation solves fell by about half
 (benchmarks/bench_speed.py).
 """
 
@@ -24,7 +24,12 @@ from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Any
 
-__all__ = ["call_table", "jacobian", "lifted_tables", "staged", "staged_function"]
+__all__ = ["bspline_function", "call_table", "jacobian", "lifted_tables", "staged",
+           "staged_function"]
+
+#: CasADi options of the table functions: SX graphs can call them (as call nodes, or lifted
+#: out by :func:`lifted_tables`); MX calls are call nodes either way.
+_NEVER_INLINE = {"never_inline": True}
 
 
 @dataclass
@@ -35,7 +40,7 @@ class TableCall:
     function: Any
     argument: Any
     value: Any
-    spline: Any = None  # (knots per input, coefficients (n, 1)) of a cubic B-spline, or None
+    spline: Any = None  # (knots per input, coefficients) of a cubic B-spline (see call_table)
 
 
 _LOCAL = threading.local()
@@ -60,12 +65,28 @@ def lifted_tables():
         stack.pop()
 
 
+def bspline_function(name: str, knots, coefficients):
+    """MX Function x -> the values of cubic B-splines on ``knots`` (one knot list per input):
+    ``coefficients`` holds one column per value (a flat vector for one value), its rows in
+    CasADi's order (the first input's index runs fastest). Callable from SX
+    (``never_inline``)."""
+    import casadi as ca
+    import numpy as np
+
+    coefficients = np.asarray(coefficients, dtype=float)
+    n_values = 1 if coefficients.ndim == 1 else coefficients.shape[1]
+    x = ca.MX.sym("x", len(knots))
+    expr = ca.bspline(x, ca.DM(coefficients.ravel()), [list(k) for k in knots],
+                      [3] * len(knots), n_values, {})
+    return ca.Function(name, [x], [expr], _NEVER_INLINE)
+
+
 def call_table(function, argument, spline=None):
     """``function(argument)`` for a table's CasADi Function (built with ``never_inline``) on
     SX or MX; inside :func:`lifted_tables`, an SX argument gives a new SX symbol instead and the
-    call is recorded. ``spline`` = (knots per input, coefficients as ``casadi.bspline`` takes
-    them) says that ``function`` is that cubic B-spline of one value, so that look-ups of
-    tables on the same knots at the same point can share one node."""
+    call is recorded. ``spline`` = (knots per input, coefficients) says that ``function`` is
+    ``bspline_function(name, *spline)`` of one value, so that look-ups of tables on the same
+    knots at the same point can share one node."""
     import casadi as ca
 
     calls = _recording()
@@ -106,7 +127,7 @@ def _slope_function(function):
 
     x = ca.MX.sym("x", function.size1_in(0))
     return ca.Function(f"{function.name()}_slope", [x],
-                       [ca.vec(ca.jacobian(function(x), x))], {"never_inline": True})
+                       [ca.vec(ca.jacobian(function(x), x))], _NEVER_INLINE)
 
 
 def _merged(calls: list[TableCall]) -> list[tuple[Any, Any, list[TableCall]]]:
@@ -132,12 +153,10 @@ def _merged(calls: list[TableCall]) -> list[tuple[Any, Any, list[TableCall]]]:
         if len(group) == 1:
             out.append((group[0].function, group[0].argument, group))
             continue
-        knots = group[0].spline[0]
-        coeffs = np.column_stack([np.asarray(c.spline[1], float).ravel() for c in group])
-        x = ca.MX.sym("x", group[0].argument.numel())
-        expr = ca.bspline(x, ca.DM(coeffs.ravel()), knots, [3] * len(knots), len(group), {})
         name = "tables_" + "_".join(c.function.name().removeprefix("fit_") for c in group)
-        out.append((ca.Function(name[:120], [x], [expr]), group[0].argument, group))
+        merged = bspline_function(name[:120], group[0].spline[0],
+                                  np.column_stack([c.spline[1] for c in group]))
+        out.append((merged, group[0].argument, group))
     return out
 
 
@@ -160,15 +179,11 @@ def staged_function(name: str, inputs: list, outputs: list, calls: list[TableCal
     for s in range(max(stage, default=-1) + 1):
         nodes = _merged([c for c, cs in zip(calls, stage) if cs == s])
         arguments = ca.Function(f"{name}_arguments{s}", known_sx,
-                                [argument for _, argument, _ in nodes])(*known_mx)
-        if not isinstance(arguments, (list, tuple)):
-            arguments = [arguments]
+                                [argument for _, argument, _ in nodes]).call(known_mx)
         known_sx.append(ca.vertcat(*[c.value for _, _, group in nodes for c in group]))
         known_mx.append(ca.vertcat(*[f(a) for (f, _, _), a in zip(nodes, arguments)]))
-    results = ca.Function(f"{name}_algebra", known_sx, outputs)(*known_mx)
-    if not isinstance(results, (list, tuple)):
-        results = [results]
-    return ca.Function(name, mx_inputs, list(results))
+    results = ca.Function(f"{name}_algebra", known_sx, outputs).call(known_mx)
+    return ca.Function(name, mx_inputs, results)
 
 
 def staged(name: str, input_names, body):
