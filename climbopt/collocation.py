@@ -11,9 +11,9 @@ minimum-time-to-climb example)::
     x'     = V cos(gamma) + w(h)
 
 with w(h) the along-track wind (ground distance), L = q S CL, D = q S CD(CL, M),
-q = rho V^2 / 2, thrust T and fuel flow at the throttle from the aircraft model, and alpha_T the angle between thrust and velocity: the angle of attack
-CL / CL_alpha(M) when thrust acts along the body axis (``thrust_alignment = "body"``), zero when
-it acts along the flight path. Air data from the model's smooth US Standard Atmosphere 1976 twin.
+q = rho V^2 / 2, thrust T and fuel flow at the throttle from the aircraft model, and alpha_T
+the angle between thrust and velocity: the angle of attack CL / CL_alpha(M) when thrust acts
+along the body axis (``thrust_alignment = "body"``), zero when it acts along the flight path. Air data from the model's smooth US Standard Atmosphere 1976 twin.
 States: altitude h [m], true airspeed V [m/s], flight-path angle gamma [rad], mass m [kg],
 ground distance x [m]. Controls: lift coefficient CL and, when the scenario's throttle range is
 not a single value, the throttle.
@@ -76,7 +76,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from climbopt import CACHE_ENV, cache_dir  # noqa: F401 (CACHE_ENV: the name tests and users know)
+from climbopt import cache_dir
 from climbopt.aircraft import wind_at
 from climbopt.airspeed import cas_from_mach
 from climbopt.atmosphere import G0, energy_height_m

@@ -4,9 +4,8 @@ The page holds the conditions, the comparison (engineering figures first, the so
 diagnostics in a small table of their own), every crew schedule (the flown schedules first:
 that is what crews fly), what the procedure profile costs against the free optimum, the figures
 (embedded: the PNG files as data, or inline SVG when SVG files are written, so nothing is
-fetched), the notes and the caution. It needs
-no network and no JavaScript, and prints on A4 (print style sheet, page breaks kept out of
-tables and figures).
+fetched), the notes and the caution. It needs no network and no JavaScript, and prints on A4
+(print style sheet, page breaks kept out of tables and figures).
 
 An output module: it formats numbers that :mod:`climbopt.report` and :mod:`climbopt.schedule`
 already put in display units and computes nothing. :func:`run_report` is called by
@@ -364,8 +363,8 @@ def run_report(*, scenario, units: str, records, flown, schedules, procedure_cos
     :func:`climbopt.report.flown_schedule_records`; ``schedules``: the crew schedules in the
     order to show (flown first); ``procedure_costs``: :class:`climbopt.pipeline.ProcedureCost`
     list; ``figures``: ``(title, caption, drawing)`` triples (see :func:`figures_html`);
-    ``common_point``: the text of
-    :func:`climbopt.report.format_common_point` ("" without a common downrange point).
+    ``common_point``: the text of :func:`climbopt.report.format_common_point` ("" without a
+    common downrange point).
     """
     from climbopt import report
 

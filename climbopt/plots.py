@@ -66,7 +66,8 @@ LIMIT_LABELS = {
     "cas_restriction": "CAS restriction",
 }
 LIMIT_LINESTYLES = {
-    "data": ":", "table_mach": (0, (3, 1, 1, 1, 1, 1)), "altitude": "-", "stall": "-", "dynamic_pressure": "-.",
+    "data": ":", "table_mach": (0, (3, 1, 1, 1, 1, 1)), "altitude": "-", "stall": "-",
+    "dynamic_pressure": "-.",
     "mach": (0, (8, 2, 2, 2)), "cas": (0, (4, 2)), "cas_restriction": (0, (1, 1)),
 }
 

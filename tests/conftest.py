@@ -38,7 +38,7 @@ def _private_compile_cache(tmp_path_factory):
     earlier work left there."""
     import os
 
-    from climbopt.collocation import CACHE_ENV
+    from climbopt import CACHE_ENV
 
     old = os.environ.get(CACHE_ENV)
     os.environ[CACHE_ENV] = str(tmp_path_factory.mktemp("compiled"))

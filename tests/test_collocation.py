@@ -17,6 +17,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from climbopt import CACHE_ENV
 from climbopt.aircraft import build_model
 from climbopt.collocation import SolverFailure, solve_collocation
 from climbopt.pipeline import solve_case
@@ -456,7 +457,7 @@ def test_compiled_point_function_cached_and_invalidated(tmp_path, monkeypatch):
     uses a stale one."""
     from climbopt import collocation
 
-    monkeypatch.setenv(collocation.CACHE_ENV, str(tmp_path / "cache"))
+    monkeypatch.setenv(CACHE_ENV, str(tmp_path / "cache"))
     monkeypatch.setattr(collocation, "_LOADED", {})
     scenario = load_scenario(SCENARIOS / "turboprop_regional.toml")
     fun, path, note = collocation.compiled_point_function(scenario)

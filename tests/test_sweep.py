@@ -18,7 +18,7 @@ from pathlib import Path
 import pytest
 from click.testing import CliRunner
 
-from climbopt import CAUTION
+from climbopt import CACHE_ENV, CAUTION
 from climbopt import rutowski
 from climbopt import plots
 from climbopt import sweep as sw
@@ -643,7 +643,7 @@ def test_compile_only_where_it_pays(twin, tmp_path, monkeypatch):
     with --no-compile, and not for a few cases whose artefact is not cached yet."""
     from climbopt import collocation
 
-    monkeypatch.setenv(collocation.CACHE_ENV, str(tmp_path / "cache"))
+    monkeypatch.setenv(CACHE_ENV, str(tmp_path / "cache"))
     monkeypatch.setattr(collocation, "_LOADED", {})
     attempts = []
 
