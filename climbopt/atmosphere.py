@@ -324,13 +324,9 @@ def _smooth_tables() -> _SmoothTables:
     knots = np.asarray(spline.t, dtype=float)
     coeffs = np.asarray(spline.c, dtype=float)
 
-    import casadi as ca
+    from climbopt.staging import bspline_function
 
-    z_sym = ca.MX.sym("altitude_m")
-    # casadi.bspline coefficient layout: value dimension fastest -> row-major flatten of (n, 2).
-    out = ca.bspline(z_sym, ca.DM(coeffs.ravel().tolist()), [knots.tolist()], [3], 2, {})
-    fun = ca.Function("us1976_smooth", [z_sym], [out], ["altitude_m"], ["t_std_k_ln_p_pa"],
-                      {"never_inline": True})
+    fun = bspline_function("us1976_smooth", (knots,), coeffs)  # columns: T_std, ln p
     return _SmoothTables(knots=knots, coeffs=coeffs, z0=float(nodes[0]), step=step,
                          poly=poly, casadi_function=fun)
 
